@@ -1,0 +1,3 @@
+from qualbayes.cli import main
+
+raise SystemExit(main())

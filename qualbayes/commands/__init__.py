@@ -1,0 +1,1 @@
+"""One module per command: argument definitions (light) and a ``run`` (imports lazily)."""

@@ -1,0 +1,41 @@
+"""Options shared by the commands, and emitting a finished run."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from qualbayes.caution import CAUTION
+
+
+def add_input_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", help="xlsx or csv export")
+    p.add_argument("--sheet", help="xlsx sheet to read (default: the first visible one)")
+    p.add_argument("--columns", metavar="KEY=HEADER,...",
+                   help="name columns whose headers are not recognised, "
+                        "e.g. --columns 'inspected=Checked Qty,lot=Batch'")
+    p.add_argument("--max-rows", type=int, default=500_000,
+                   help="refuse files with more data rows than this (default 500000)")
+
+
+def add_output_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--confidence", default="0.95",
+                   help="confidence C for bounds and decisions (default 0.95)")
+    p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
+    p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
+    p.add_argument("--out", metavar="DIR", help="write the evidence workbook into DIR")
+    p.add_argument("--force", action="store_true",
+                   help="allow replacing files of an earlier run in --out")
+
+
+def print_text(text: str) -> None:
+    sys.stdout.write(text.rstrip("\n") + "\n")
+
+
+def caution_line() -> str:
+    return CAUTION
+
+
+def out_path(args, filename: str) -> Path | None:
+    return Path(args.out) / filename if getattr(args, "out", None) else None

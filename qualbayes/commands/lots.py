@@ -1,0 +1,73 @@
+"""``qualbayes lots FILE --spec LIMIT``: can each lot be accepted against its limit?"""
+
+from __future__ import annotations
+
+import argparse
+
+from qualbayes.commands.common import add_input_options, add_output_options, print_text
+
+WORKBOOK = "lot_decisions.xlsx"
+RECORD = "lot_decisions.json"
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "lots", help="decide lot by lot whether the defect rate is within its limit",
+        description="For each lot: posterior of the defect rate p, P(p <= spec | data), and "
+                    "accept / reject / undecided at the stated confidence.",
+        formatter_class=argparse.ArgumentDefaultsHelpFormatter)
+    add_input_options(p)
+    p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
+    p.add_argument("--prior", default="uniform",
+                   help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
+                        "lots of each part number, NUTS)")
+    add_output_options(p)
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from qualbayes.acceptance import assess_lots  # noqa: PLC0415
+    from qualbayes.data.lots import read_lots  # noqa: PLC0415
+    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
+    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
+    from qualbayes.evidence.lots_record import lots_record, lots_sheets, lots_text  # noqa: PLC0415
+    from qualbayes.models.priors import parse_lot_prior  # noqa: PLC0415
+    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+    from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
+
+    spec = parse_rate(args.spec)
+    confidence = parse_probability(args.confidence, "--confidence")
+    prior = parse_lot_prior(args.prior)
+    targets = _targets(args)
+    check_targets(targets, args.force)
+    data = read_lots(args.file, sheet=args.sheet, columns=args.columns, max_rows=args.max_rows)
+    sha = sha256_file(args.file)
+    result = assess_lots(data, spec, confidence, prior, seed=args.seed)
+    record = lots_record(result, data, sha, command_line(args.argv), versions())
+    if targets:
+        _write(record, data, targets, args.force)
+    if args.json:
+        print_text(dumps(record))
+    else:
+        print_text(lots_text(record))
+        if targets:
+            print_text(f"evidence written: {', '.join(str(t) for t in targets)}")
+    return 0
+
+
+def _targets(args):
+    from pathlib import Path  # noqa: PLC0415
+
+    if not args.out:
+        return []
+    return [Path(args.out) / WORKBOOK, Path(args.out) / RECORD]
+
+
+def _write(record, data, targets, force) -> None:
+    from qualbayes.evidence.files import write_text_atomic  # noqa: PLC0415
+    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
+    from qualbayes.evidence.lots_record import lots_sheets  # noqa: PLC0415
+    from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
+
+    write_workbook(targets[0], lots_sheets(record, data), force=force)
+    write_text_atomic(targets[1], dumps(record), force=force)

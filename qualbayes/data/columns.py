@@ -1,0 +1,117 @@
+"""Finding the columns of an export by their header spellings.
+
+Headers are compared after normalising: case, spaces, punctuation and a trailing unit in
+brackets are ignored ("Qty. Inspected", "qty inspected" and "QTY_INSPECTED" are the same).
+An explicit mapping (``--columns inspected="Checked Qty"``) overrides the spellings.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+from qualbayes.data.readers import RawTable
+from qualbayes.errors import InputError, OptionError
+
+HEADER_SEARCH_ROWS = 20  # title rows above the header are common in exports
+
+
+@dataclass(frozen=True)
+class Column:
+    key: str
+    spellings: tuple[str, ...]
+    required: bool = True
+    label: str = ""
+
+
+def normalise(header: object) -> str:
+    text = "" if header is None else str(header)
+    text = re.sub(r"\[[^\]]*\]|\([^)]*\)", "", text)  # "Time (h)" -> "Time"
+    return re.sub(r"[^0-9a-z]+", "", text.lower())
+
+
+@dataclass
+class Located:
+    """Where each wanted column is: key -> (column index, header text as written)."""
+
+    header_row: int
+    columns: dict[str, tuple[int, str]]
+    first_data: int  # index into table.rows
+
+
+def parse_mapping(text: str | None) -> dict[str, str]:
+    """``lot=Batch,inspected=Qty Checked`` -> {"lot": "Batch", "inspected": "Qty Checked"}."""
+    if not text:
+        return {}
+    out: dict[str, str] = {}
+    for part in text.split(","):
+        if "=" not in part:
+            raise OptionError(f"--columns: {part!r} is not of the form key=Header")
+        key, header = (s.strip().strip('"').strip("'") for s in part.split("=", 1))
+        out[key.lower()] = header
+    return out
+
+
+def locate(table: RawTable, schema: tuple[Column, ...],
+           mapping: dict[str, str] | None = None) -> Located:
+    """Find the header row (the first of the top rows naming every required column)."""
+    mapping = mapping or {}
+    known = {c.key for c in schema}
+    for key in mapping:
+        if key not in known:
+            raise OptionError(f"--columns: unknown key {key!r}; the keys are "
+                              f"{', '.join(sorted(known))}")
+    if not table.rows:
+        raise table.error("the sheet is empty")
+    best: tuple[int, dict, list[str]] | None = None
+    for i, row in enumerate(table.rows[:HEADER_SEARCH_ROWS]):
+        found, missing = _match(row, schema, mapping)
+        if not missing:
+            _check_duplicate_headers(table, i, row, found)
+            return Located(table.row_numbers[i], found, i + 1)
+        if best is None or len(found) > len(best[1]):
+            best = (i, found, missing)
+    assert best is not None
+    i, found, missing = best
+    wanted = "; ".join(f"{c.key} (e.g. {', '.join(repr(s) for s in c.spellings[:4])})"
+                       for c in schema if c.key in missing)
+    raise InputError(f"missing column(s): {wanted}. Name them with --columns key=Header",
+                     file=table.file, sheet=table.sheet, row=table.row_numbers[i])
+
+
+def _match(row: list[object], schema: tuple[Column, ...], mapping: dict[str, str]):
+    norm = [normalise(h) for h in row]
+    found: dict[str, tuple[int, str]] = {}
+    for col in schema:
+        targets = [normalise(mapping[col.key])] if col.key in mapping else [
+            normalise(s) for s in col.spellings]
+        for t in targets:
+            if t in norm:
+                j = norm.index(t)
+                found[col.key] = (j, str(row[j]).strip())
+                break
+    missing = [c.key for c in schema if c.required and c.key not in found]
+    return found, missing
+
+
+def _check_duplicate_headers(table: RawTable, i: int, row: list[object], found: dict) -> None:
+    norm = [normalise(h) for h in row]
+    for key, (j, text) in found.items():
+        if norm.count(norm[j]) > 1:
+            raise InputError(f"two columns are headed {text!r}; which one is {key}? Rename one "
+                             "or use --columns", file=table.file, sheet=table.sheet,
+                             row=table.row_numbers[i], column=text)
+
+
+def cell(table: RawTable, located: Located, i: int, key: str) -> object:
+    """The raw cell of data row ``i`` (index into table.rows) in column ``key``."""
+    if key not in located.columns:
+        return None
+    j = located.columns[key][0]
+    row = table.rows[i]
+    if (i, j) in table.formula_cells and (j >= len(row) or row[j] is None):
+        raise InputError(f"formula {table.formula_cells[(i, j)]!r} has no saved value; open "
+                         "the file in a spreadsheet program, recalculate and save it",
+                         file=table.file, sheet=table.sheet, row=table.row_numbers[i],
+                         column=located.columns[key][1])
+    return row[j] if j < len(row) else None

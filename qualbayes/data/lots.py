@@ -1,0 +1,126 @@
+"""Incoming-inspection tables: one row per lot."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import pandas as pd
+
+from qualbayes.data.columns import Column, cell, locate, parse_mapping
+from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
+from qualbayes.data.values import describe, is_blank, parse_count, parse_date, parse_text
+from qualbayes.errors import InputError
+
+LOT_COLUMNS: tuple[Column, ...] = (
+    Column("lot", ("Lot", "Lot ID", "Lot No.", "Lot Number", "Lot #", "Batch", "Batch ID",
+                   "Lot Nr")),
+    Column("inspected", ("Inspected", "Sample Size", "Qty Inspected", "n", "Sample",
+                         "Units Inspected", "Sampled", "Qty Sampled", "Quantity Inspected")),
+    Column("defectives", ("Defectives", "Defects", "Nonconforming", "Non-conforming",
+                          "Rejects", "Rejected", "Defective", "Failures", "Qty Rejected",
+                          "Fails", "x")),
+    Column("lot_size", ("Lot Size", "Lot Qty", "Lot Quantity", "Qty Received", "Received",
+                        "N", "Batch Size"), required=False),
+    Column("part", ("Part", "Part No.", "Part Number", "Part ID", "Item", "Material", "PN"),
+           required=False),
+    Column("supplier", ("Supplier", "Vendor", "Supplier Name", "Vendor Name"),
+           required=False),
+    Column("date", ("Date", "Inspection Date", "Received Date", "Receipt Date", "Date Received"),
+           required=False),
+)
+
+
+@dataclass
+class LotTable:
+    """Validated lots, with where they came from."""
+
+    frame: pd.DataFrame  # lot, part, supplier, date, lot_size, inspected, defectives, row
+    file: str
+    sheet: str | None
+    header_row: int
+    headers: dict[str, str]  # key -> header as written in the file
+    notes: list[str]
+
+
+def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
+              max_rows: int = DEFAULT_MAX_ROWS) -> LotTable:
+    """Read and validate an inspection export; raises :class:`InputError` on the first fault."""
+    table = read_table(path, sheet=sheet, max_rows=max_rows)
+    mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
+    return validate_lots(table, mapping)
+
+
+def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> LotTable:
+    loc = locate(table, LOT_COLUMNS, mapping)
+    headers = {k: v[1] for k, v in loc.columns.items()}
+    records = []
+    seen: dict[str, int] = {}
+    for i in range(loc.first_data, len(table.rows)):
+        rownum = table.row_numbers[i]
+
+        def fail(msg: str, key: str, rownum: int = rownum) -> InputError:
+            return table.error(msg, row=rownum, column=headers.get(key, key))
+
+        def get(key: str, i: int = i):
+            return cell(table, loc, i, key)
+
+        lot_raw = get("lot")
+        if is_blank(lot_raw):
+            if all(is_blank(get(k)) for k in ("inspected", "defectives")):
+                continue  # a trailing note or a spacer row
+            raise fail("lot id is empty", "lot")
+        try:
+            lot = parse_text(lot_raw)
+        except ValueError as err:
+            raise fail(str(err), "lot") from None
+        if lot in seen:
+            raise fail(f"lot id {lot!r} appears twice (rows {seen[lot]} and {rownum})", "lot")
+        seen[lot] = rownum
+        counts = {}
+        for key in ("inspected", "defectives", "lot_size"):
+            raw = get(key)
+            if is_blank(raw):
+                if key == "lot_size":
+                    counts[key] = None
+                    continue
+                raise fail(f"{key} is empty", key)
+            try:
+                value = parse_count(raw, table.decimal_comma)
+            except ValueError as err:
+                raise fail(str(err), key) from None
+            if value < 0:
+                raise fail(f"{key} is negative ({describe(raw)})", key)
+            counts[key] = value
+        n, x, big_n = counts["inspected"], counts["defectives"], counts["lot_size"]
+        if n == 0:
+            raise fail("no units were inspected (0); remove the row or give the sample size",
+                       "inspected")
+        if x > n:
+            raise fail(f"defectives ({x}) exceed units inspected ({n})", "defectives")
+        if big_n is not None and n > big_n:
+            raise fail(f"units inspected ({n}) exceed the lot size ({big_n})", "inspected")
+        part = _optional_text(get("part"), fail, "part")
+        supplier = _optional_text(get("supplier"), fail, "supplier")
+        date = None
+        if not is_blank(get("date")):
+            try:
+                date = parse_date(get("date"))
+            except ValueError as err:
+                raise fail(str(err), "date") from None
+        records.append((lot, part, supplier, date, big_n, n, x, rownum))
+    if not records:
+        raise table.error("no lots found below the header", row=loc.header_row)
+    frame = pd.DataFrame.from_records(
+        records, columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
+                          "defectives", "row"])
+    frame["lot_size"] = frame["lot_size"].astype("Int64")
+    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, list(table.notes))
+
+
+def _optional_text(raw, fail, key: str) -> str | None:
+    if is_blank(raw):
+        return None
+    try:
+        return parse_text(raw)
+    except ValueError as err:
+        raise fail(str(err), key) from None

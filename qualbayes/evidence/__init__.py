@@ -1,0 +1,1 @@
+"""Evidence: terminal tables, JSON, workbooks, reports and figures."""

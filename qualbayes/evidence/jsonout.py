@@ -1,0 +1,42 @@
+"""JSON documents: plain types only, NaN written as null."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import math
+
+import numpy as np
+
+
+def plain(value):
+    """Recursively convert numpy/pandas values to JSON-ready Python values."""
+    if isinstance(value, dict):
+        return {str(k): plain(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return [plain(v) for v in value.tolist()]
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating | float):
+        f = float(value)
+        return f if math.isfinite(f) else None
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, dt.date | dt.datetime):
+        return value.isoformat()
+    if value is None or isinstance(value, str | int | bool):
+        return value
+    try:
+        import pandas as pd  # noqa: PLC0415
+
+        if value is pd.NA or value is pd.NaT:
+            return None
+    except ImportError:  # pragma: no cover
+        pass
+    return str(value)
+
+
+def dumps(document: dict) -> str:
+    return json.dumps(plain(document), indent=2, ensure_ascii=False, allow_nan=False)

@@ -1,0 +1,63 @@
+"""Evidence workbooks (xlsx). Text from the input is never evaluated by a spreadsheet."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pandas as pd
+
+from qualbayes.evidence.files import write_atomic
+
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def safe_cell(value: object) -> object:
+    """Numbers stay numbers; text that a spreadsheet would read as a formula gets a leading
+    apostrophe (and is stored as a text cell), as OWASP advises for CSV/formula injection."""
+    if isinstance(value, str):
+        return "'" + value if value.startswith(_FORMULA_START) else value
+    if isinstance(value, float) and not math.isfinite(value):
+        return str(value)
+    if value is pd.NA or value is pd.NaT:
+        return None
+    if hasattr(value, "item") and not isinstance(value, str):  # numpy scalars
+        return value.item()
+    return value
+
+
+def write_workbook(path: Path, sheets: dict[str, pd.DataFrame | list[list[object]]],
+                   force: bool = False) -> Path:
+    """Write ``sheets`` (name -> DataFrame or rows) to ``path`` atomically."""
+    from openpyxl import Workbook  # noqa: PLC0415
+    from openpyxl.styles import Font  # noqa: PLC0415
+
+    def writer(tmp: Path) -> None:
+        wb = Workbook()
+        wb.remove(wb.active)
+        for name, content in sheets.items():
+            ws = wb.create_sheet(title=name[:31])
+            rows = _rows(content)
+            for r, row in enumerate(rows, start=1):
+                for c, value in enumerate(row, start=1):
+                    cell = ws.cell(row=r, column=c)
+                    cell.value = safe_cell(value)
+                    if isinstance(cell.value, str):
+                        cell.data_type = "s"
+            if isinstance(content, pd.DataFrame):
+                for cell in ws[1]:
+                    cell.font = Font(bold=True)
+                ws.freeze_panes = "A2"
+            for col in ws.columns:
+                width = max((len(str(c.value)) for c in col if c.value is not None), default=8)
+                ws.column_dimensions[col[0].column_letter].width = min(max(width + 2, 8), 80)
+        wb.save(tmp)
+
+    return write_atomic(path, writer, force)
+
+
+def _rows(content) -> list[list[object]]:
+    if isinstance(content, pd.DataFrame):
+        frame = content.astype(object).where(content.notna(), None)
+        return [list(frame.columns), *frame.values.tolist()]
+    return [list(r) for r in content]

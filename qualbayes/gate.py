@@ -1,0 +1,111 @@
+"""The convergence gate: no decision is reported from chains that fail it.
+
+Thresholds follow Vehtari, Gelman, Simpson, Carpenter & Buerkner (2021), "Rank-normalization,
+folding, and localization: an improved R-hat", Bayesian Analysis 16:667: rank-normalised
+split R-hat <= 1.01 and bulk and tail ESS >= 400 (100 per chain for 4 chains), and no
+divergent transitions. The older "R-hat < 1.1, ESS >= 100" rule is not used (see docs).
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+
+RHAT_MAX = 1.01
+ESS_MIN = 400.0
+DIVERGENCES_MAX = 0
+
+
+@dataclass
+class ParamDiagnostics:
+    name: str
+    rhat: float
+    ess_bulk: float
+    ess_tail: float
+
+    @property
+    def passed(self) -> bool:
+        return self.rhat <= RHAT_MAX and self.ess_bulk >= ESS_MIN and self.ess_tail >= ESS_MIN
+
+
+@dataclass
+class GateResult:
+    params: list[ParamDiagnostics]
+    divergences: int
+    attempts: int = 1
+    settings: dict = field(default_factory=dict)
+
+    @property
+    def passed(self) -> bool:
+        return self.divergences <= DIVERGENCES_MAX and all(p.passed for p in self.params)
+
+    @property
+    def max_rhat(self) -> float:
+        return max(p.rhat for p in self.params)
+
+    @property
+    def min_ess_bulk(self) -> float:
+        return min(p.ess_bulk for p in self.params)
+
+    @property
+    def min_ess_tail(self) -> float:
+        return min(p.ess_tail for p in self.params)
+
+    def reasons(self) -> list[str]:
+        out = []
+        if self.divergences > DIVERGENCES_MAX:
+            out.append(f"{self.divergences} divergent transitions (allowed {DIVERGENCES_MAX})")
+        for p in self.params:
+            if p.rhat > RHAT_MAX:
+                out.append(f"R-hat of {p.name} is {p.rhat:.3f} (> {RHAT_MAX})")
+            if p.ess_bulk < ESS_MIN:
+                out.append(f"bulk ESS of {p.name} is {p.ess_bulk:.0f} (< {ESS_MIN:.0f})")
+            if p.ess_tail < ESS_MIN:
+                out.append(f"tail ESS of {p.name} is {p.ess_tail:.0f} (< {ESS_MIN:.0f})")
+        return out
+
+    def summary(self) -> str:
+        status = "passed" if self.passed else "FAILED"
+        return (f"convergence gate {status}: max R-hat {self.max_rhat:.4f}, min bulk ESS "
+                f"{self.min_ess_bulk:.0f}, min tail ESS {self.min_ess_tail:.0f}, "
+                f"divergences {self.divergences}, attempts {self.attempts}")
+
+    def to_dict(self) -> dict:
+        return {
+            "passed": self.passed,
+            "thresholds": {"rhat_max": RHAT_MAX, "ess_bulk_min": ESS_MIN,
+                           "ess_tail_min": ESS_MIN, "divergences_max": DIVERGENCES_MAX},
+            "max_rhat": self.max_rhat,
+            "min_ess_bulk": self.min_ess_bulk,
+            "min_ess_tail": self.min_ess_tail,
+            "divergences": self.divergences,
+            "attempts": self.attempts,
+            "settings": self.settings,
+            "parameters": [asdict(p) | {"passed": p.passed} for p in self.params],
+            "reasons": self.reasons(),
+        }
+
+
+def diagnose(draws: dict, divergences: int, attempts: int = 1,
+             settings: dict | None = None) -> GateResult:
+    """Diagnostics of draws ``{name: array (chain, draw, *shape)}`` with ArviZ."""
+    import numpy as np  # noqa: PLC0415
+    import warnings  # noqa: PLC0415
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FutureWarning)
+        import arviz as az  # noqa: PLC0415
+
+    params = []
+    for name, arr in draws.items():
+        a = np.asarray(arr, dtype=float)
+        flat = a.reshape(a.shape[0], a.shape[1], -1)
+        for k in range(flat.shape[2]):
+            x = flat[:, :, k]
+            label = name if flat.shape[2] == 1 else f"{name}[{k}]"
+            params.append(ParamDiagnostics(
+                label,
+                float(az.rhat(x, method="rank")),
+                float(az.ess(x, method="bulk")),
+                float(az.ess(x, method="tail")),
+            ))
+    return GateResult(params, int(divergences), attempts, dict(settings or {}))

@@ -1,0 +1,76 @@
+r"""Single-lot defect rate, closed form.
+
+Model: :math:`x \mid p \sim \mathrm{Binomial}(n, p)`, :math:`p \sim \mathrm{Beta}(a, b)`, so
+:math:`p \mid x \sim \mathrm{Beta}(a + x,\; b + n - x)` (conjugacy; Hamada, Wilson, Reese &
+Martz, Bayesian Reliability, 2008, ch. 2).
+
+For a finite lot of N units of which n were inspected, the number D of defectives among the
+N - n units not inspected is, under the posterior, beta-binomial:
+:math:`D \sim \mathrm{BetaBinomial}(N - n,\; a + x,\; b + n - x)`.
+
+All functions are vectorised over lots (numpy arrays in, arrays out) and use scipy.stats.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import special, stats
+
+MAX_EXTRA_UNITS = 10**9
+
+
+def posterior(x, n, a: float, b: float) -> tuple[np.ndarray, np.ndarray]:
+    """Posterior Beta parameters (a + x, b + n - x)."""
+    x = np.asarray(x, dtype=float)
+    n = np.asarray(n, dtype=float)
+    return a + x, b + n - x
+
+
+def summarise(a_post, b_post, spec: float, confidence: float) -> dict[str, np.ndarray]:
+    """Posterior mean, central credible interval at ``confidence``, one-sided upper bound
+    at ``confidence`` and P(p <= spec)."""
+    dist = stats.beta(a_post, b_post)
+    tail = (1.0 - confidence) / 2.0
+    return {
+        "posterior_mean": dist.mean(),
+        "interval_low": dist.ppf(tail),
+        "interval_high": dist.ppf(1.0 - tail),
+        "upper_bound": dist.ppf(confidence),
+        "prob_within_spec": dist.cdf(spec),
+    }
+
+
+def extra_clean_units(a_post: float, b_post: float, spec: float, confidence: float) -> int | None:
+    """Smallest m >= 0 such that P(p <= spec) >= confidence after m more defect-free units,
+    i.e. ``betainc(a_post, b_post + m, spec) >= confidence``.
+
+    The regularised incomplete beta I_spec(a, b + m) increases with m (towards 1), so an
+    exponential search then bisection over whole m finds it exactly. None if more than
+    MAX_EXTRA_UNITS would be needed.
+    """
+
+    def ok(m: float) -> bool:
+        return bool(special.betainc(a_post, b_post + m, spec) >= confidence)
+
+    if ok(0):
+        return 0
+    hi = 1
+    while not ok(hi):
+        hi *= 2
+        if hi > MAX_EXTRA_UNITS:
+            return None
+    lo = hi // 2  # ok(lo) is False (or lo == 0, already checked)
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if ok(mid):
+            hi = mid
+        else:
+            lo = mid
+    return hi
+
+
+def remaining_defectives(a_post, b_post, remaining, confidence: float) -> dict[str, np.ndarray]:
+    """Median and one-sided upper bound at ``confidence`` of the defectives among the
+    ``remaining`` = N - n units not inspected (beta-binomial predictive)."""
+    dist = stats.betabinom(np.asarray(remaining, dtype=int), a_post, b_post)
+    return {"median": dist.ppf(0.5), "upper_bound": dist.ppf(confidence)}

@@ -113,7 +113,7 @@ def _part_groups(frame: pd.DataFrame) -> dict[str, np.ndarray]:
 
 def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
     from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
-    from qualbayes.models.lot_history import fit_history  # noqa: PLC0415
+    from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
 
     settings = settings or SamplerSettings(seed=seed)
     results = {c: [None] * len(frame) for c in RESULT_COLUMNS}
@@ -121,12 +121,15 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
     x_all = frame["defectives"].to_numpy(float)
     n_all = frame["inspected"].to_numpy(float)
     tail = (1 - confidence) / 2
-    for part, idx in _part_groups(frame).items():
-        fit = fit_history(x_all[idx], n_all[idx], settings)
-        diagnostics[part] = fit.gate.to_dict()
-        ok = fit.gate.passed
-        mu = fit.draws["mu"].reshape(-1)
-        kappa = fit.draws["kappa"].reshape(-1)
+    groups = _part_groups(frame)
+    fit = fit_histories([(x_all[idx], n_all[idx]) for idx in groups.values()], settings,
+                        names=list(groups))
+    for j, (part, idx) in enumerate(groups.items()):
+        gate = fit.gate.select(part)
+        diagnostics[part] = gate.to_dict()
+        ok = gate.passed
+        mu = fit.draws["mu"][:, :, j].reshape(-1)
+        kappa = fit.draws["kappa"][:, :, j].reshape(-1)
         a0, b0 = mu * kappa, (1 - mu) * kappa
         next_lot[part] = _next_lot_summary(a0, b0, spec, confidence, tail) if ok else {
             "decision": NOT_CONVERGED}

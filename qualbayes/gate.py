@@ -69,6 +69,12 @@ class GateResult:
                 f"{self.min_ess_bulk:.0f}, min tail ESS {self.min_ess_tail:.0f}, "
                 f"divergences {self.divergences}, attempts {self.attempts}")
 
+    def select(self, tag: str) -> GateResult:
+        """The parameters labelled ``name[tag]`` (e.g. one part of a joint fit). Divergences
+        belong to the joint sampler and are kept whole."""
+        chosen = [p for p in self.params if p.name.endswith(f"[{tag}]")]
+        return GateResult(chosen, self.divergences, self.attempts, self.settings)
+
     def to_dict(self) -> dict:
         return {
             "passed": self.passed,

@@ -33,19 +33,27 @@ def mean(alpha: np.ndarray, beta: np.ndarray) -> float:
     return float(np.mean(alpha / (alpha + beta)))
 
 
+def betabinom_pmf_matrix(k_max: int, remaining: int, alpha: np.ndarray,
+                         beta: np.ndarray) -> np.ndarray:
+    """pmf of BetaBinomial(remaining, alpha_d, beta_d) at k = 0..k_max, shape (D, k_max+1):
+    C(R, k) B(k + alpha, R - k + beta) / B(alpha, beta), evaluated in logs."""
+    k = np.arange(k_max + 1)[None, :]
+    a = np.asarray(alpha, float)[:, None]
+    b = np.asarray(beta, float)[:, None]
+    log_choose = (special.gammaln(remaining + 1) - special.gammaln(k + 1)
+                  - special.gammaln(remaining - k + 1))
+    return np.exp(log_choose + special.betaln(k + a, remaining - k + b) - special.betaln(a, b))
+
+
 def betabinom_ppf(q: float, remaining: int, alpha: np.ndarray, beta: np.ndarray) -> int:
-    """The q-quantile of the number of defectives among ``remaining`` units, mixed over draws."""
+    """The q-quantile of the number of defectives among ``remaining`` units, mixed over draws
+    (the smallest k whose mixture CDF reaches q)."""
     if remaining <= 0:
         return 0
-
-    def mcdf(k: int) -> float:
-        return float(np.mean(stats.betabinom.cdf(k, remaining, alpha, beta)))
-
-    lo, hi = -1, remaining  # mcdf(remaining) == 1 >= q
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if mcdf(mid) >= q:
-            hi = mid
-        else:
-            lo = mid
-    return hi
+    k_max = min(15, remaining)
+    while True:
+        cdf_k = np.cumsum(betabinom_pmf_matrix(k_max, remaining, alpha, beta).mean(axis=0))
+        hit = np.flatnonzero(cdf_k >= q - 1e-12)
+        if hit.size or k_max == remaining:
+            return int(hit[0]) if hit.size else remaining
+        k_max = min(4 * k_max, remaining)

@@ -201,6 +201,8 @@ def extra_clean_units_reweighted(alpha, beta, spec, confidence, max_units=10**7)
         ess = w.sum() ** 2 / (w**2).sum()
         return float(np.average(special.betainc(alpha, beta + m, spec), weights=w)), ess
 
+    if prob(0)[0] >= confidence:
+        return 0
     hi = 1
     while True:
         p, ess = prob(hi)

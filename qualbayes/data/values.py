@@ -14,6 +14,7 @@ import re
 _THOUSANDS = re.compile(r"^[+-]?\d{1,3}([,\u00a0\u202f' ]\d{3})+$")
 _THOUSANDS_DOT = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+,\d+$")  # 1.234,5
 _THOUSANDS_COMMA = re.compile(r"^[+-]?\d{1,3}(,\d{3})+\.\d+$")  # 1,234.5
+_THOUSANDS_DOTS = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+$")  # 12.000 in a decimal-comma file
 _DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+$")
 _PLAIN = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
@@ -68,6 +69,8 @@ def parse_count(value: object, decimal_comma: bool = False) -> int:
     if isinstance(value, str) and _THOUSANDS.match(value.strip()):
         # "1,200" in a count column is a thousands separator, whatever the decimal mark
         x = float(re.sub(r"[,\u00a0\u202f' ]", "", value.strip()))
+    elif isinstance(value, str) and decimal_comma and _THOUSANDS_DOTS.match(value.strip()):
+        x = float(value.strip().replace(".", ""))
     if x != math.floor(x):
         raise ValueError(f"expected a whole number of units, found {describe(value)}")
     if abs(x) > 2**53:

@@ -175,9 +175,9 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
         for g in groups:
             if g not in present:
                 where = f"column {headers['group']!r}" if has_group else "no group column"
+                names = ", ".join(repr(p) for p in dict.fromkeys(frame["group"]))
                 raise InputError(f"group {g!r} has no units in the file ({where}; groups "
-                                 f"present: {', '.join(repr(p) for p in dict.fromkeys(frame['group']))})",
-                                 file=table.file, sheet=table.sheet)
+                                 f"present: {names})", file=table.file, sheet=table.sheet)
         frame = frame[frame["group"].isin(groups)].reset_index(drop=True)
     return LifeTable(frame, table.file, table.sheet, loc.header_row, headers, notes, units)
 

@@ -196,22 +196,32 @@ FLAT = LifePrior(shape=None, scale_kind="flat")
 
 @dataclass
 class GroupStats:
-    """One group's data in the form the log density uses (times relative to t_ref)."""
+    """One group's data in the form the log density uses (times relative to t_ref).
+
+    Identical observations are merged into one entry with a count (``w_*``), which is exact.
+    """
 
     log_tref: float
     n_f: int
     sum_log_tf: float  # sum of log t over exact failures
     sum_d_f: float  # sum of (log t - log t_ref) over exact failures
-    d_exposed: np.ndarray  # log t - log t_ref, exact failures and suspensions
-    d_int_a: np.ndarray  # interval starts
+    d_exposed: np.ndarray  # log t - log t_ref of exact failures and suspensions (distinct)
+    w_exposed: np.ndarray  # how many units share each value
+    d_int_a: np.ndarray  # interval starts (distinct intervals)
     log_ratio_int: np.ndarray  # log(b / a) of the intervals (> 0)
-    d_left: np.ndarray  # left-censored inspection times
+    w_int: np.ndarray
+    d_left: np.ndarray  # left-censored inspection times (distinct)
+    w_left: np.ndarray
     counts: dict[str, int] = field(default_factory=dict)
 
     @property
     def failures(self) -> int:
         """Units known to have failed (exact, interval and left-censored)."""
-        return self.n_f + len(self.d_int_a) + len(self.d_left)
+        return self.counts["failure"] + self.counts["interval"] + self.counts["left"]
+
+    @property
+    def units(self) -> int:
+        return sum(self.counts.values())
 
 
 def group_stats(failures, suspensions, interval_lower=(), interval_upper=(),
@@ -227,18 +237,67 @@ def group_stats(failures, suspensions, interval_lower=(), interval_upper=(),
         raise ValueError("every unit is left-censored (found failed at the first "
                          "inspection): the data bound the life only from above")
     log_tref = float(np.log(anchors.max()))
+    d_exp, w_exp = np.unique(np.concatenate([np.log(tf), np.log(ts)]) - log_tref,
+                             return_counts=True)
+    if ia.size:
+        pairs, w_int = np.unique(np.column_stack([ia, ib]), axis=0, return_counts=True)
+    else:
+        pairs, w_int = np.zeros((0, 2)), np.zeros(0, int)
+    d_left, w_left = np.unique(np.log(tl) - log_tref, return_counts=True)
     return GroupStats(
         log_tref=log_tref,
         n_f=int(tf.size),
         sum_log_tf=float(np.log(tf).sum()),
         sum_d_f=float((np.log(tf) - log_tref).sum()),
-        d_exposed=np.concatenate([np.log(tf), np.log(ts)]) - log_tref,
-        d_int_a=np.log(ia) - log_tref,
-        log_ratio_int=np.log(ib) - np.log(ia),
-        d_left=np.log(tl) - log_tref,
+        d_exposed=d_exp, w_exposed=w_exp.astype(float),
+        d_int_a=np.log(pairs[:, 0]) - log_tref,
+        log_ratio_int=np.log(pairs[:, 1]) - np.log(pairs[:, 0]),
+        w_int=w_int.astype(float),
+        d_left=d_left, w_left=w_left.astype(float),
         counts={"failure": int(tf.size), "suspension": int(ts.size),
                 "interval": int(ia.size), "left": int(tl.size)},
     )
+
+
+# ----------------------------------------------------------------------------- fast sums
+
+TAYLOR_ORDER = 24
+SHAPE_CAP_SD = 12.0  # the shape is capped this many Laplace sd above its mode
+
+
+def binned_moments(d: np.ndarray, w: np.ndarray, beta_cap: float,
+                   order: int = TAYLOR_ORDER) -> tuple[np.ndarray, np.ndarray]:
+    r"""Bins of :math:`d` with centres :math:`c_j` and coefficients :math:`a_{jk} =
+    \sum_{i \in j} w_i (d_i - c_j)^k / k!`, so that for :math:`\beta \le 2\beta_{cap}`
+
+    .. math:: \sum_i w_i e^{\beta d_i} = \sum_j e^{\beta c_j} \sum_{k \le K} a_{jk}\beta^k
+
+    up to a relative error below :math:`2^{K+1} e^2/(K+1)!` (about :math:`10^{-17}` for
+    K = 24): bins are :math:`2/\beta_{cap}` wide, so :math:`|\beta(d_i - c_j)| \le 2`.
+    """
+    from math import factorial  # noqa: PLC0415
+
+    half = 1.0 / beta_cap
+    lo = float(d.min())
+    idx = np.floor((d - lo) / (2 * half)).astype(int)
+    nbins = int(idx.max()) + 1
+    centres = lo + (np.arange(nbins) + 0.5) * 2 * half
+    dev = d - centres[idx]
+    coef = np.zeros((nbins, order + 1))
+    power = w.astype(float).copy()
+    for k in range(order + 1):
+        coef[:, k] = np.bincount(idx, weights=power, minlength=nbins) / factorial(k)
+        power = power * dev
+    return centres, coef
+
+
+def exposure_sum_binned(beta, centres, coef, xp=np):
+    """The sum of w_i exp(beta d_i) from :func:`binned_moments` (Horner per bin)."""
+    bb = beta[..., None]
+    poly = coef[..., -1] + 0.0 * bb
+    for k in range(coef.shape[-1] - 2, -1, -1):
+        poly = poly * bb + coef[..., k]
+    return xp.sum(xp.exp(bb * centres) * poly, axis=-1)
 
 
 # ----------------------------------------------------------------------------- density
@@ -263,14 +322,21 @@ def log_expm1(y, xp=np):
 def log_likelihood(b, s, data: dict, xp=np):
     r"""Log-likelihood of shape exp(b), relative log scale s.
 
-    ``data`` holds arrays whose last axis runs over units, padded with weight 0
-    (keys: n_f, sum_log_tf, sum_d_f, d_exp, w_exp, d_ia, lr_int, w_int, d_left, w_left);
-    ``b`` and ``s`` broadcast against the leading axes.
+    ``data`` holds arrays whose last axis runs over (distinct) observations with their
+    counts as weights; padding has weight 0 (keys: n_f, sum_log_tf, sum_d_f, d_exp, w_exp,
+    d_ia, lr_int, w_int, d_left, w_left). With keys ``bin_c``, ``bin_a`` and ``beta_cap``
+    the sum over exact failures and suspensions comes from :func:`binned_moments` instead,
+    and the shape is capped at 2 * beta_cap. ``b`` and ``s`` broadcast against the leading
+    axes.
     """
     beta = xp.exp(b)
     bb, ss = beta[..., None], s[..., None]
-    # exact failures and suspensions: the sum of H(t) in one pass (d <= 0, no overflow)
-    sum_h = xp.exp(-beta * s) * xp.sum(data["w_exp"] * xp.exp(bb * data["d_exp"]), axis=-1)
+    # exact failures and suspensions: the sum of H(t) (d <= 0, so no overflow)
+    if "bin_c" in data:
+        expo = exposure_sum_binned(beta, data["bin_c"], data["bin_a"], xp)
+    else:
+        expo = xp.sum(data["w_exp"] * xp.exp(bb * data["d_exp"]), axis=-1)
+    sum_h = xp.exp(-beta * s) * expo
     ll = (data["n_f"] * (b - beta * s) - data["sum_log_tf"] + beta * data["sum_d_f"] - sum_h)
     if data["d_ia"].shape[-1]:
         lh_a = bb * (data["d_ia"] - ss)
@@ -280,6 +346,8 @@ def log_likelihood(b, s, data: dict, xp=np):
     if data["d_left"].shape[-1]:
         term = log1mexp_from_log(bb * (data["d_left"] - ss), xp)
         ll = ll + xp.sum(data["w_left"] * term, axis=-1)
+    if "bin_c" in data:
+        ll = xp.where(beta <= 2.0 * data["beta_cap"], ll, -xp.inf)
     return ll
 
 
@@ -311,13 +379,13 @@ def log_prior(b, s, prior: LifePrior, log_tref, xp=np):
 
 
 def data_arrays(st: GroupStats) -> dict[str, np.ndarray]:
-    """Unpadded arrays of one group for :func:`log_likelihood` (numpy)."""
+    """Unpadded arrays of one group for :func:`log_likelihood` (numpy, exact sums)."""
     return {
         "n_f": np.float64(st.n_f), "sum_log_tf": np.float64(st.sum_log_tf),
         "sum_d_f": np.float64(st.sum_d_f),
-        "d_exp": st.d_exposed, "w_exp": np.ones_like(st.d_exposed),
-        "d_ia": st.d_int_a, "lr_int": st.log_ratio_int, "w_int": np.ones_like(st.d_int_a),
-        "d_left": st.d_left, "w_left": np.ones_like(st.d_left),
+        "d_exp": st.d_exposed, "w_exp": st.w_exposed,
+        "d_ia": st.d_int_a, "lr_int": st.log_ratio_int, "w_int": st.w_int,
+        "d_left": st.d_left, "w_left": st.w_left,
     }
 
 
@@ -391,8 +459,8 @@ def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
 
 def _s_start(st: GroupStats, beta: float) -> float:
     """Relative log scale maximising the exact/right-censored likelihood at this shape."""
-    expo = float(np.sum(np.exp(beta * st.d_exposed))) if st.d_exposed.size else 0.0
-    expo += float(np.sum(np.exp(beta * st.d_int_a))) if st.d_int_a.size else 0.0
+    expo = float(np.sum(st.w_exposed * np.exp(beta * st.d_exposed)))
+    expo += float(np.sum(st.w_int * np.exp(beta * st.d_int_a)))
     events = max(st.failures, 1)
     if expo <= 0:
         return 0.0

@@ -44,7 +44,7 @@ class LotAssessment:
 MODEL_CONJUGATE = ("x ~ Binomial(n, p); p ~ Beta(a, b); posterior p | x ~ Beta(a + x, b + n - x) "
                    "(closed form)")
 MODEL_HISTORY = ("x_i ~ Binomial(n_i, p_i); p_i ~ Beta(mu*kappa, (1-mu)*kappa); mu ~ Beta(1,1); "
-                 "phi = 1/sqrt(kappa+1) ~ Uniform(0,1); p_i marginalised, NUTS on (mu, phi), "
+                 "phi = 1/sqrt(kappa+1) ~ Uniform(1e-4, 1); p_i marginalised, NUTS on (mu, phi), "
                  "p_i | mu, kappa, x_i ~ Beta(mu*kappa + x_i, (1-mu)*kappa + n_i - x_i); "
                  "one model per part number")
 

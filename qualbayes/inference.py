@@ -42,7 +42,7 @@ class SamplerSettings:
     num_chains: int = 4
     num_warmup: int = 1000
     num_samples: int = 1000
-    target_accept: float = 0.8
+    target_accept: float = 0.9
     max_tree_depth: int = 10
     seed: int = 20261202
     retry: bool = True

@@ -19,16 +19,20 @@ N = np.array([50, 80, 125, 50, 80, 200, 125, 80, 50, 125, 200, 80], float)
 def grid_posterior(x, n, size=700):
     """Exact posterior of (mu, phi) by quadrature on a grid in (logit mu, logit phi).
 
-    Density in (u, v) = (logit mu, logit phi) with uniform priors on mu and phi:
-    prod_i BB(x_i | n_i, mu kappa, (1-mu) kappa) * mu(1-mu) * phi(1-phi), kappa = 1/phi^2 - 1.
+    With phi = c + (1 - c) expit(v), c = PHI_MIN, the density in (u, v) = (logit mu, v) is
+    prod_i BB(x_i | n_i, mu kappa, (1-mu) kappa) * mu(1-mu) * s(1-s), s = expit(v),
+    kappa = 1/phi^2 - 1 (uniform priors on mu and on phi in (c, 1)).
     """
+    from qualbayes.models.lot_history import PHI_MIN
+
     u = np.linspace(-9, 3, size)
-    v = np.linspace(-9, 6, size)
+    v = np.linspace(-14, 6, size)
     uu, vv = np.meshgrid(u, v, indexing="ij")
-    mu, phi = special.expit(uu), special.expit(vv)
+    mu, s = special.expit(uu), special.expit(vv)
+    phi = PHI_MIN + (1 - PHI_MIN) * s
     kappa = 1 / phi**2 - 1
     a, b = mu * kappa, (1 - mu) * kappa
-    logp = np.log(mu) + np.log1p(-mu) + np.log(phi) + np.log1p(-phi)
+    logp = np.log(mu) + np.log1p(-mu) + np.log(s) + np.log1p(-s)
     for xi, ni in zip(x, n, strict=True):
         logp = logp + special.betaln(a + xi, b + ni - xi) - special.betaln(a, b)
     w = np.exp(logp - logp.max())

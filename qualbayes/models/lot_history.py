@@ -7,13 +7,18 @@ Model, for part j and its lots i = 1..k_j (parts are independent of each other):
     x_{ji} \mid p_{ji} &\sim \mathrm{Binomial}(n_{ji}, p_{ji}) \\
     p_{ji} \mid \mu_j, \kappa_j &\sim \mathrm{Beta}(\mu_j\kappa_j,\; (1-\mu_j)\kappa_j) \\
     \mu_j &\sim \mathrm{Beta}(1, 1), \qquad
-    \phi_j = (\kappa_j + 1)^{-1/2} \sim \mathrm{Uniform}(0, 1)
+    \phi_j = (\kappa_j + 1)^{-1/2} \sim \mathrm{Uniform}(\phi_{min}, 1),
+    \quad \phi_{min} = 10^{-4}
 
 :math:`\mu_j` is the mean defect rate of the part's lots and :math:`\phi_j^2 = 1/(\kappa_j+1)`
 the intra-class correlation: the lot-to-lot standard deviation of :math:`p_{ji}` is
 :math:`\phi_j\sqrt{\mu_j(1-\mu_j)}`. A uniform :math:`\phi` is a proper version of the prior
 :math:`p(\mu, \kappa) \propto (\kappa+1)^{-3/2}` (compare Gelman et al., Bayesian Data
 Analysis, 3rd ed., sec. 5.3, which uses the improper :math:`(\alpha+\beta)^{-5/2}`).
+The lower bound caps :math:`\kappa` at about :math:`10^8`: lots that alike are
+indistinguishable from the binomial limit for any real sample size, and beyond it the
+log-gamma differences of the beta-binomial lose all precision even in float64 (a chain that
+wandered there met a flat, meaningless likelihood and stalled; seen in testing).
 
 The lot rates are marginalised out: :math:`x_{ji} \mid \mu_j,\kappa_j \sim
 \mathrm{BetaBinomial}(n_{ji}, \mu_j\kappa_j, (1-\mu_j)\kappa_j)`, so NUTS samples two
@@ -34,6 +39,8 @@ import numpy as np
 
 from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
 
+PHI_MIN = 1e-4  # kappa <= 1/PHI_MIN^2 - 1, about 1e8
+
 setup_jax()
 
 import jax.numpy as jnp  # noqa: E402
@@ -45,7 +52,7 @@ def lot_history_model(x, n):
     """Marginalised hierarchical beta-binomial; ``x``, ``n`` have shape (parts, lots)."""
     with numpyro.plate("parts", x.shape[0], dim=-2):
         mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
-        phi = numpyro.sample("phi", dist.Uniform(0.0, 1.0))
+        phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
         kappa = numpyro.deterministic("kappa", 1.0 / phi**2 - 1.0)
         with numpyro.plate("lots", x.shape[1], dim=-1):
             numpyro.sample("x", dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa,
@@ -56,7 +63,7 @@ def lot_history_model_plain(x, n):
     """The same model with every p sampled (not marginalised): for the benchmark only."""
     with numpyro.plate("parts", x.shape[0], dim=-2):
         mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
-        phi = numpyro.sample("phi", dist.Uniform(0.0, 1.0))
+        phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
         kappa = numpyro.deterministic("kappa", 1.0 / phi**2 - 1.0)
         with numpyro.plate("lots", x.shape[1], dim=-1):
             p = numpyro.sample("p", dist.Beta(mu * kappa, (1.0 - mu) * kappa))

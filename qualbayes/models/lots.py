@@ -8,13 +8,18 @@ For a finite lot of N units of which n were inspected, the number D of defective
 N - n units not inspected is, under the posterior, beta-binomial:
 :math:`D \sim \mathrm{BetaBinomial}(N - n,\; a + x,\; b + n - x)`.
 
-All functions are vectorised over lots (numpy arrays in, arrays out) and use scipy.stats.
+All functions are vectorised over lots (numpy arrays in, arrays out). They use the
+regularised incomplete beta function and its inverse from scipy.special directly (the same
+functions scipy.stats.beta evaluates, which the tests use as the reference); importing
+scipy.stats would cost more than the whole computation.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
+
+from qualbayes.models.mixtures import betabinom_ppf
 
 MAX_EXTRA_UNITS = 10**9
 
@@ -29,14 +34,15 @@ def posterior(x, n, a: float, b: float) -> tuple[np.ndarray, np.ndarray]:
 def summarise(a_post, b_post, spec: float, confidence: float) -> dict[str, np.ndarray]:
     """Posterior mean, central credible interval at ``confidence``, one-sided upper bound
     at ``confidence`` and P(p <= spec)."""
-    dist = stats.beta(a_post, b_post)
+    a = np.asarray(a_post, dtype=float)
+    b = np.asarray(b_post, dtype=float)
     tail = (1.0 - confidence) / 2.0
     return {
-        "posterior_mean": dist.mean(),
-        "interval_low": dist.ppf(tail),
-        "interval_high": dist.ppf(1.0 - tail),
-        "upper_bound": dist.ppf(confidence),
-        "prob_within_spec": dist.cdf(spec),
+        "posterior_mean": a / (a + b),
+        "interval_low": special.betaincinv(a, b, tail),
+        "interval_high": special.betaincinv(a, b, 1.0 - tail),
+        "upper_bound": special.betaincinv(a, b, confidence),
+        "prob_within_spec": special.betainc(a, b, spec),
     }
 
 
@@ -72,5 +78,11 @@ def extra_clean_units(a_post: float, b_post: float, spec: float, confidence: flo
 def remaining_defectives(a_post, b_post, remaining, confidence: float) -> dict[str, np.ndarray]:
     """Median and one-sided upper bound at ``confidence`` of the defectives among the
     ``remaining`` = N - n units not inspected (beta-binomial predictive)."""
-    dist = stats.betabinom(np.asarray(remaining, dtype=int), a_post, b_post)
-    return {"median": dist.ppf(0.5), "upper_bound": dist.ppf(confidence)}
+    a = np.atleast_1d(np.asarray(a_post, dtype=float))
+    b = np.atleast_1d(np.asarray(b_post, dtype=float))
+    r = np.atleast_1d(np.asarray(remaining, dtype=int))
+    med = [betabinom_ppf(0.5, int(ri), ai[None], bi[None]) for ai, bi, ri in zip(a, b, r,
+                                                                                strict=True)]
+    up = [betabinom_ppf(confidence, int(ri), ai[None], bi[None])
+          for ai, bi, ri in zip(a, b, r, strict=True)]
+    return {"median": np.array(med), "upper_bound": np.array(up)}

@@ -8,7 +8,7 @@ regularised incomplete beta functions, its quantiles the roots of that average.
 from __future__ import annotations
 
 import numpy as np
-from scipy import optimize, special, stats
+from scipy import special
 
 
 def cdf(p: float, alpha: np.ndarray, beta: np.ndarray, weights: np.ndarray | None = None):
@@ -18,8 +18,10 @@ def cdf(p: float, alpha: np.ndarray, beta: np.ndarray, weights: np.ndarray | Non
 
 def ppf(q: float, alpha: np.ndarray, beta: np.ndarray) -> float:
     """The q-quantile of the equal-weight mixture, by bracketing root search."""
-    lo = float(np.min(stats.beta.ppf(q, alpha, beta)))
-    hi = float(np.max(stats.beta.ppf(q, alpha, beta)))
+    from scipy import optimize  # noqa: PLC0415 - only the history path needs it
+
+    lo = float(np.min(special.betaincinv(alpha, beta, q)))
+    hi = float(np.max(special.betaincinv(alpha, beta, q)))
     if hi - lo < 1e-15:
         return lo
 

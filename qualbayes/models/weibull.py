@@ -215,6 +215,12 @@ class GroupStats:
     counts: dict[str, int] = field(default_factory=dict)
 
     @property
+    def anchored(self) -> bool:
+        """True when some unit was seen working at a known time (exact, suspension or
+        interval start): only then does the default scale prior give a proper posterior."""
+        return self.counts["failure"] + self.counts["suspension"] + self.counts["interval"] > 0
+
+    @property
     def failures(self) -> int:
         """Units known to have failed (exact, interval and left-censored)."""
         return self.counts["failure"] + self.counts["interval"] + self.counts["left"]
@@ -233,10 +239,10 @@ def group_stats(failures, suspensions, interval_lower=(), interval_upper=(),
     ib = np.asarray(interval_upper, float)
     tl = np.asarray(left, float)
     anchors = np.concatenate([tf, ts, ia])
-    if anchors.size == 0:
-        raise ValueError("every unit is left-censored (found failed at the first "
-                         "inspection): the data bound the life only from above")
-    log_tref = float(np.log(anchors.max()))
+    if anchors.size == 0 and tl.size == 0:
+        raise ValueError("no units")
+    # all left-censored: the data bound the life only from above (see ``anchored``)
+    log_tref = float(np.log(anchors.max() if anchors.size else tl.max()))
     d_exp, w_exp = np.unique(np.concatenate([np.log(tf), np.log(ts)]) - log_tref,
                              return_counts=True)
     if ia.size:

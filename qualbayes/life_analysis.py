@@ -1,0 +1,230 @@
+"""Weibull life: from validated units to reliability answers per group (the API behind
+``life``).
+
+For every group: posterior of shape and scale (NUTS, gated), the derived B1 and B10 lives,
+mean life and R(mission); the one-sided lower bound of R(mission) at confidence C;
+P(R(mission) >= target); and the decision ``meets`` / ``does-not-meet`` / ``undecided``
+by the rule of :func:`qualbayes.questions.decide`, or ``not-converged`` when the gate fails.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import special
+
+from qualbayes.data.life import LifeTable, frame_arrays
+from qualbayes.errors import InputError, OptionError
+from qualbayes.models.weibull import GroupStats, LifePrior, Mode, group_stats, posterior_mode
+from qualbayes.models.weibull_ranks import plotting_positions
+from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
+
+MODEL_TEXT = (
+    "t ~ Weibull(shape beta, scale eta), R(t) = exp(-(t/eta)^beta); failures log f(t), "
+    "suspensions log S(t), interval-censored log(S(a) - S(b)), left-censored log F(b); "
+    "NUTS on (log beta, log eta) after an affine change of variables from the posterior "
+    "mode and its Laplace covariance; each group fitted on its own")
+PRIOR_SHARE_NOTE = 0.5  # posterior sd of log shape above this share of the prior sd: say so
+CURVE_POINTS = 60
+MAX_PLOT_POINTS = 2000  # more plotted failures are thinned evenly (the picture is the same)
+
+
+@dataclass
+class LifeAssessment:
+    """Everything the life question produced; ``groups`` holds one JSON-ready dict each."""
+
+    groups: list[dict]
+    mission: float
+    target: float
+    confidence: float
+    prior: LifePrior
+    units: str
+    seed: int
+    model: str = MODEL_TEXT
+    draws: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def converged(self) -> bool:
+        return all(g["diagnostics"]["passed"] for g in self.groups)
+
+
+def check_question(mission: float, target: float, confidence: float) -> None:
+    if not (isinstance(mission, int | float) and math.isfinite(mission) and mission > 0):
+        raise OptionError(f"--mission {mission!r}: the mission time must be a positive number")
+    if not 0 < target < 1:
+        raise OptionError(f"--target {target!r}: the reliability target must lie strictly "
+                          "between 0 and 1")
+    if not 0 < confidence < 1:
+        raise OptionError(f"--confidence {confidence!r}: must lie strictly between 0 and 1")
+
+
+def group_data(table: LifeTable) -> dict[str, tuple[dict, GroupStats]]:
+    """Each group's arrays and sufficient statistics, in file order."""
+    out = {}
+    for g in table.groups:
+        arrays = frame_arrays(table.frame[table.frame["group"] == g])
+        out[g] = (arrays, group_stats(**arrays))
+    return out
+
+
+def check_prior_use(table: LifeTable, stats: dict[str, GroupStats], prior: LifePrior) -> None:
+    """Refuse the questions the data and prior cannot answer (nothing is fitted)."""
+    for g, st in stats.items():
+        label = "" if len(stats) == 1 else f"group {g!r}: "
+        if st.failures == 0 and not prior.shape_given:
+            raise OptionError(
+                f"{label}no failures among {st.units} units. With zero failures the data say "
+                "nothing about the Weibull shape, so the answer would rest on the default "
+                "shape prior alone; state the shape from engineering knowledge of the failure "
+                "mode, e.g. --shape-prior 1.5,4 (the range holding the shape with 95% "
+                "probability)")
+        if not st.anchored and prior.scale_kind in ("hazard", "flat"):
+            raise InputError(
+                f"{label}every unit is left-censored (found failed at its first inspection); "
+                "the data bound the life only from above. Give a prior on a B-life or on "
+                "R(t) (--blife-prior or --reliability-prior)", file=table.file,
+                sheet=table.sheet)
+
+
+def assess_life(table: LifeTable, mission: float, target: float, confidence: float = 0.9,
+                prior: LifePrior | None = None, seed: int = 20261202,
+                settings=None) -> LifeAssessment:
+    """Answer "is P(R(mission) >= target | data) >= confidence?" for every group."""
+    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.models.life import fit_life  # noqa: PLC0415
+
+    prior = prior or LifePrior()
+    check_question(mission, target, confidence)
+    data = group_data(table)
+    stats = {g: st for g, (_, st) in data.items()}
+    check_prior_use(table, stats, prior)
+    names = list(stats)
+    modes = [posterior_mode(stats[g], prior) for g in names]
+    settings = settings or SamplerSettings(seed=seed)
+    fit = fit_life([stats[g] for g in names], modes, prior, settings, names, mission)
+    groups, draws, notes = [], {}, []
+    for j, g in enumerate(names):
+        gate = fit.gate.select(g)
+        beta = np.exp(fit.draws["log_shape"][:, :, j].reshape(-1))
+        eta = np.exp(fit.draws["log_scale"][:, :, j].reshape(-1))
+        draws[g] = {"shape": beta, "scale": eta}
+        arrays = data[g][0]
+        groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta, gate.to_dict(),
+                                   mission, target, confidence, prior))
+    if not all(r["diagnostics"]["passed"] for r in groups):
+        notes.append("the convergence gate failed for at least one group: it carries "
+                     "'not-converged' and no decision")
+    return LifeAssessment(groups, mission, target, confidence, prior, table.units,
+                          settings.seed, draws=draws, notes=notes)
+
+
+# --------------------------------------------------------------------------- summaries
+
+def weibull_quantities(beta: np.ndarray, eta: np.ndarray, mission: float) -> dict:
+    """Draws of the derived quantities."""
+    return {
+        "shape": beta,
+        "scale": eta,
+        "b1": eta * (-np.log1p(-0.01)) ** (1.0 / beta),
+        "b10": eta * (-np.log1p(-0.10)) ** (1.0 / beta),
+        "mean_life": eta * np.exp(special.gammaln(1.0 + 1.0 / beta)),
+        "reliability_at_mission": np.exp(-np.exp(beta * (math.log(mission) - np.log(eta)))),
+    }
+
+
+def summarise(x: np.ndarray, confidence: float) -> dict:
+    tail = (1.0 - confidence) / 2.0
+    lo, med, hi = np.quantile(x, [tail, 0.5, 1.0 - tail])
+    return {"median": float(med), "interval": [float(lo), float(hi)]}
+
+
+def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
+                 diagnostics: dict, mission: float, target: float, confidence: float,
+                 prior: LifePrior) -> dict:
+    ok = diagnostics["passed"]
+    q = weibull_quantities(beta, eta, mission)
+    r = q["reliability_at_mission"]
+    prob = float(np.mean(r >= target))
+    ess = diagnostics["min_ess_bulk"]
+    mcse = math.sqrt(max(prob * (1 - prob), 1e-300) / max(ess, 1.0))
+    decision = decide(prob, confidence, ok, labels=(MEETS, DOES_NOT_MEET))
+    out = {
+        "group": name,
+        "units": st.units,
+        "failures": st.failures,
+        "exact_failures": st.counts["failure"],
+        "suspensions": st.counts["suspension"],
+        "interval_censored": st.counts["interval"],
+        "left_censored": st.counts["left"],
+        "reference_time": math.exp(st.log_tref),
+        "posterior_mode": {"shape": math.exp(mode.b), "scale": math.exp(mode.s + st.log_tref)},
+    }
+    for key in ("shape", "scale", "b1", "b10", "mean_life"):
+        out[key] = summarise(q[key], confidence) if ok else None
+    rel = summarise(r, confidence) | {"lower_bound": float(np.quantile(r, 1.0 - confidence))}
+    out["reliability_at_mission"] = rel if ok else None
+    out["prob_meets_target"] = prob if ok else None
+    out["prob_meets_target_mc_error"] = mcse if ok else None
+    out["decision"] = decision
+    out["diagnostics"] = diagnostics
+    out["notes"] = _group_notes(st, beta, prior, ok, prob, mcse, confidence)
+    out["plot"] = plot_data(arrays, beta, eta, mission, confidence) if ok else None
+    return out
+
+
+def _group_notes(st: GroupStats, beta, prior: LifePrior, ok: bool, prob: float,
+                 mcse: float, confidence: float) -> list[str]:
+    notes = []
+    if not ok:
+        notes.append("the sampler did not pass the convergence gate: no answer and no "
+                     "decision are given for this group (see diagnostics)")
+        return notes
+    if st.failures == 0:
+        lo, hi = prior.shape_range or (float("nan"), float("nan"))
+        notes.append(f"zero failures: the data bound the life from below only; the answer "
+                     f"rests on the stated shape prior ({lo:g} to {hi:g}) and on the scale "
+                     "prior. A different shape range gives a different answer.")
+    elif prior.shape is not None:
+        share = float(np.std(np.log(beta))) / prior.shape[1]
+        if share > PRIOR_SHARE_NOTE:
+            notes.append(f"with {st.failures} failure(s) the shape is informed mainly by its "
+                         f"prior (posterior spread of log shape is {share:.0%} of the prior's)")
+    if abs(prob - confidence) < 3 * mcse:
+        notes.append(f"P(R >= target) = {prob:.4f} lies within 3 Monte Carlo standard errors "
+                     f"({mcse:.4f}) of the confidence {confidence:g}; the verdict is close")
+    return notes
+
+
+def plot_data(arrays: dict, beta, eta, mission: float, confidence: float) -> dict:
+    """Points (median ranks) and curves (posterior median and central band of F(t)) for the
+    probability plot and the R(t) curve."""
+    pos = plotting_positions(**arrays)
+    shown = np.arange(pos["time"].size)
+    if shown.size > MAX_PLOT_POINTS:
+        shown = np.unique(np.linspace(0, shown.size - 1, MAX_PLOT_POINTS).astype(int))
+    every = np.concatenate([v for v in arrays.values() if np.size(v)])
+    every = every[every > 0]
+    lo = min(every.min(), mission) / 3.0
+    hi = max(every.max(), mission) * 3.0
+    t = np.geomspace(lo, hi, CURVE_POINTS)
+    take = np.linspace(0, beta.size - 1, min(beta.size, 2000)).astype(int)
+    b, e = beta[take, None], eta[take, None]
+    rel = np.exp(-np.exp(b * (np.log(t)[None, :] - np.log(e))))
+    tail = (1.0 - confidence) / 2.0
+    r_lo, r_med, r_hi = np.quantile(rel, [tail, 0.5, 1.0 - tail], axis=0)
+    return {
+        "points": {"time": pos["time"][shown].tolist(),
+                   "adjusted_rank": pos["rank"][shown].tolist(),
+                   "median_rank": pos["median_rank"][shown].tolist(),
+                   "kind": [("exact", "interval midpoint", "left-censored")[k]
+                            for k in pos["kind"][shown]]},
+        "plotted_failures": int(shown.size), "failures_ranked": int(pos["time"].size),
+        "units": int(pos["n"]),
+        "curve": {"time": t.tolist(), "reliability_median": r_med.tolist(),
+                  "reliability_low": r_lo.tolist(), "reliability_high": r_hi.tolist()},
+        "band": f"central {confidence:.0%} credible band",
+    }
+

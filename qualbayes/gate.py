@@ -94,8 +94,9 @@ class GateResult:
 def diagnose(draws: dict, divergences: int, attempts: int = 1,
              settings: dict | None = None) -> GateResult:
     """Diagnostics of draws ``{name: array (chain, draw, *shape)}`` with ArviZ."""
-    import numpy as np  # noqa: PLC0415
     import warnings  # noqa: PLC0415
+
+    import numpy as np  # noqa: PLC0415
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FutureWarning)

@@ -30,7 +30,7 @@ def run(args) -> int:
     from qualbayes.data.lots import read_lots  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
-    from qualbayes.evidence.lots_record import lots_record, lots_sheets, lots_text  # noqa: PLC0415
+    from qualbayes.evidence.lots_record import lots_record, lots_text  # noqa: PLC0415
     from qualbayes.models.priors import parse_lot_prior  # noqa: PLC0415
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415

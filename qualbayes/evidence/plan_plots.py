@@ -3,7 +3,7 @@ here and only when a figure is drawn).
 
 House style: black and greys only, one line style per series (readable printed in grey),
 the goal as a dotted vertical line, a wanted level as a dashed horizontal line, plan points
-as open circles, light grid, no titles inside the plotting area.
+as open markers (circle, square, triangle), light grid, no titles inside the plotting area.
 """
 
 from __future__ import annotations
@@ -12,6 +12,7 @@ import io
 
 _STYLES = [("-", "0.0"), ("--", "0.25"), ("-.", "0.45"), (":", "0.0"), ("-", "0.6"),
            ("--", "0.6")]
+_MARKERS = ("o", "s", "^", "D")
 
 
 def curve_png(curve: dict) -> bytes:
@@ -27,14 +28,17 @@ def curve_png(curve: dict) -> bytes:
         ls, colour = _STYLES[k % len(_STYLES)]
         ax.plot(curve["x"], [float("nan") if v is None else v for v in s["y"]],
                 linestyle=ls, color=colour, linewidth=1.6, label=s["label"])
+    points = 0
     for m in curve["marks"]:
         if m["y"] is None:
             ax.axvline(m["x"], color="0.35", linestyle=":", linewidth=1.2, label=m["label"])
         elif m["x"] is None:
             ax.axhline(m["y"], color="0.35", linestyle="--", linewidth=1.0, label=m["label"])
         else:
-            ax.plot([m["x"]], [m["y"]], marker="o", markersize=6, markerfacecolor="white",
-                    markeredgecolor="0.0", linestyle="none", label=m["label"])
+            ax.plot([m["x"]], [m["y"]], marker=_MARKERS[points % len(_MARKERS)],
+                    markersize=6, markerfacecolor="white", markeredgecolor="0.0",
+                    linestyle="none", label=m["label"])
+            points += 1
     if curve.get("x_log"):
         ax.set_xscale("log")
     ax.set_ylim(-0.02, 1.02)

@@ -15,8 +15,14 @@ from qualbayes.planning.inputs import count, positive, probability
 from qualbayes.planning.mtbf import GammaPrior
 from qualbayes.planning.priors import MIN_COMPONENT_ESS, RatePrior
 from qualbayes.planning.records import (
-    ASSUMPTIONS, BAYES_ASSUMPTION, DESIGN_ASSUMPTION, HISTORY_ASSUMPTION, NOT_CONVERGED, curve,
-    record, table,
+    ASSUMPTIONS,
+    BAYES_ASSUMPTION,
+    DESIGN_ASSUMPTION,
+    HISTORY_ASSUMPTION,
+    NOT_CONVERGED,
+    curve,
+    record,
+    table,
 )
 from qualbayes.planning.weibull import ShapePrior
 
@@ -55,15 +61,17 @@ def _not_converged(kind: str, question: str, inputs: dict, history: HistoryPrior
 # --------------------------------------------------------------------------- attribute
 
 def plan_attribute(reliability: float, confidence: float, failures=0,
-                   analysis: RatePrior | None = None, design: RatePrior | None = None,
-                   assurance: float | None = None, history: HistoryPrior | None = None,
+                   analysis: RatePrior | str | None = None,
+                   design: RatePrior | str | None = None, assurance: float | None = None,
+                   history: HistoryPrior | None = None,
                    max_units: int = asr.DEFAULT_MAX_UNITS) -> dict:
     """How many units must pass, allowing c failures, to show R >= R* at confidence C?
 
-    ``analysis``: prior on p = 1 - R for a Bayesian plan (None: classical). ``history``: a
-    learned prior (its ``prior`` is used as the analysis prior). ``design``: the prior for
-    assurance (default: the analysis prior). ``assurance``: a wanted assurance, for which
-    the smallest plan is searched.
+    ``analysis``: prior on p = 1 - R for a Bayesian plan (None: classical; ``"history"``:
+    the learned prior of ``history``). ``design``: the prior for the assurance (a RatePrior
+    or ``"history"``; default: the analysis prior). ``assurance``: a wanted assurance, for
+    which the smallest plan is searched. If ``history`` failed its convergence gate, no plan
+    is given.
     """
     r = probability(reliability, "reliability")
     conf = probability(confidence, "confidence")
@@ -73,10 +81,12 @@ def plan_attribute(reliability: float, confidence: float, failures=0,
                 f"R >= {r:g} at {conf:.0%} confidence?")
     inputs = {"reliability": r, "confidence": conf, "failures": cs,
               "wanted_assurance": assurance, "max_units": max_units}
-    if history is not None:
-        if not history.passed:
-            return _not_converged("attribute", question, inputs, history)
-        analysis = history.prior
+    if "history" in (analysis, design) and history is None:
+        raise OptionError("a prior 'history' needs the learned history prior")
+    if history is not None and not history.passed:
+        return _not_converged("attribute", question, inputs, history)
+    analysis = history.prior if analysis == "history" else analysis
+    design = history.prior if design == "history" else design
     design = design if design is not None else analysis
     if assurance is not None and design is None:
         raise OptionError("a wanted assurance needs a design prior (or an analysis prior "
@@ -244,8 +254,8 @@ def plan_life(reliability: float, confidence: float, mission: float, units, shap
                   else sorted(set(unit_list)))
     known = not isinstance(shape, ShapePrior)
     shape_text = (f"known shape {shape:g}" if known else
-                  f"shape in {shape.interval()[0]:g} to {shape.interval()[1]:g} "
-                  f"({shape.describe()})")
+                  f"shape between {shape.interval()[0]:g} and {shape.interval()[1]:g}, "
+                  "integrated over")
     question = (f"With {main} units, how long must each be tested to show R({mission:g}) >= "
                 f"{r:g} at {conf:.0%} confidence ({shape_text})?")
     inputs = {"reliability": r, "confidence": conf, "mission_time": mission, "units": unit_list,
@@ -321,7 +331,7 @@ def plan_life(reliability: float, confidence: float, mission: float, units, shap
     if design is not None:
         assumptions.append(DESIGN_ASSUMPTION)
     return record("life", question, inputs, method, summary, tables, curves, assumptions,
-                  priors={"shape": shape_text,
+                  priors={"shape": shape_text if known else shape.describe(),
                           "design": design.label if design is not None else None})
 
 

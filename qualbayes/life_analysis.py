@@ -17,7 +17,14 @@ from scipy import special
 
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
-from qualbayes.models.weibull import GroupStats, LifePrior, Mode, group_stats, posterior_mode
+from qualbayes.models.weibull import (
+    GroupStats,
+    LifePrior,
+    Mode,
+    group_stats,
+    mode_shape_scale,
+    posterior_mode,
+)
 from qualbayes.models.weibull_ranks import plotting_positions
 from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
 
@@ -105,11 +112,18 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     modes = [posterior_mode(stats[g], prior) for g in names]
     settings = settings or SamplerSettings(seed=seed)
     fit = fit_life([stats[g] for g in names], modes, prior, settings, names, mission)
+    fits = {g: (fit, j) for j, g in enumerate(names)}
+    if not fit.gate.passed and len(names) > 1:
+        # divergences belong to the joint sampler: refit each group alone so that one
+        # difficult group does not take the others' answers with it
+        for j, g in enumerate(names):
+            fits[g] = (fit_life([stats[g]], [modes[j]], prior, settings, [g], mission), 0)
     groups, draws, notes = [], {}, []
     for j, g in enumerate(names):
-        gate = fit.gate.select(g)
-        beta = np.exp(fit.draws["log_shape"][:, :, j].reshape(-1))
-        eta = np.exp(fit.draws["log_scale"][:, :, j].reshape(-1))
+        fit_g, k = fits[g]
+        gate = fit_g.gate.select(g)
+        beta = np.exp(fit_g.draws["log_shape"][:, :, k].reshape(-1))
+        eta = np.exp(fit_g.draws["log_scale"][:, :, k].reshape(-1))
         draws[g] = {"shape": beta, "scale": eta}
         arrays = data[g][0]
         groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta, gate.to_dict(),
@@ -160,7 +174,8 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
         "interval_censored": st.counts["interval"],
         "left_censored": st.counts["left"],
         "reference_time": math.exp(st.log_tref),
-        "posterior_mode": {"shape": math.exp(mode.b), "scale": math.exp(mode.s + st.log_tref)},
+        "posterior_mode": dict(zip(("shape", "scale"), mode_shape_scale(mode, st),
+                                   strict=True)),
     }
     for key in ("shape", "scale", "b1", "b10", "mean_life"):
         out[key] = summarise(q[key], confidence) if ok else None

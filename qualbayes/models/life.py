@@ -1,18 +1,18 @@
 r"""Weibull life with censoring, fitted with NUTS (imports jax: the sampler path only).
 
 For every group g independently, with :math:`b_g = \log\beta_g` and
-:math:`s_g = \log\eta_g - \log t_{\mathrm{ref},g}`:
+:math:`u_g = \log H_g(t_{\mathrm{ref},g}) = \beta_g(\log t_{\mathrm{ref},g} - \log\eta_g)`:
 
 .. math::
 
-    p(b_g, s_g \mid \text{data}_g) \propto p(b_g)\, p(s_g \mid b_g)
-        \prod_{\text{units}} \ell_i(b_g, s_g)
+    p(b_g, u_g \mid \text{data}_g) \propto p(b_g)\, p(u_g \mid b_g)
+        \prod_{\text{units}} \ell_i(b_g, u_g)
 
 with the exact likelihood contributions and priors of :mod:`qualbayes.models.weibull`.
 
 Sampling. Each group's posterior mode :math:`m_g` and Laplace covariance
 :math:`\Sigma_g = L_g L_g^\top` are found first (scipy, no jax); NUTS then samples
-:math:`z_g` with :math:`(b_g, s_g) = m_g + L_g z_g`. This affine change of variables has a
+:math:`z_g` with :math:`(b_g, u_g) = m_g + L_g z_g`. This affine change of variables has a
 constant Jacobian, so it leaves the posterior unchanged; it makes the target close to a
 standard normal (short trajectories, short warm-up) and removes the strong correlation of
 shape and scale that censored data produce. All groups share one vectorised model (the unit
@@ -50,10 +50,10 @@ def weibull_life_model(data, log_tref, center, chol, *, prior: LifePrior):
     groups = center.shape[0]
     z = numpyro.sample("z", dist.ImproperUniform(dist.constraints.real, (), (groups, 2)))
     b = center[:, 0] + chol[:, 0, 0] * z[:, 0]
-    s = center[:, 1] + chol[:, 1, 0] * z[:, 0] + chol[:, 1, 1] * z[:, 1]
+    u = center[:, 1] + chol[:, 1, 0] * z[:, 0] + chol[:, 1, 1] * z[:, 1]
     numpyro.deterministic("log_shape", b)
-    numpyro.deterministic("log_scale", s + log_tref)
-    lp = log_prior(b, s, prior, log_tref, jnp) + log_likelihood(b, s, data, jnp)
+    numpyro.deterministic("log_scale", log_tref - u / jnp.exp(b))
+    lp = log_prior(b, u, prior, log_tref, jnp) + log_likelihood(b, u, data, jnp)
     numpyro.factor("log_posterior", jnp.sum(lp))
 
 
@@ -129,7 +129,7 @@ def fit_life(stats: list[GroupStats], modes: list[Mode], prior: LifePrior,
     ``log_shape`` and ``log_scale``; the gate checks log shape, log scale and R(mission)
     of every group (labelled ``name[group]``)."""
     data, log_tref = pad_groups(stats, modes)
-    center = np.array([[m.b, m.s] for m in modes])
+    center = np.array([[m.b, m.u] for m in modes])
     chol = np.stack([m.chol() for m in modes])
     log_t = float(np.log(mission))
 

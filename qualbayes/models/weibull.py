@@ -1,9 +1,13 @@
 r"""Two-parameter Weibull with censoring: log density, priors and posterior mode (no jax).
 
 Parameters, sampled on unconstrained scales: :math:`b = \log\beta` (shape) and
-:math:`s = \log\eta - \log t_{\mathrm{ref}}` (scale relative to a reference time of the
-group's data, for conditioning; reported as :math:`\log\eta`). With the cumulative hazard
-:math:`H(t) = (t/\eta)^\beta = \exp(\beta(\log t - \log t_{\mathrm{ref}} - s))`:
+:math:`u = \log H(t_{\mathrm{ref}}) = \beta(\log t_{\mathrm{ref}} - \log\eta)`, the log
+cumulative hazard at a reference time of the group's data; the scale is reported as
+:math:`\log\eta = \log t_{\mathrm{ref}} - u/\beta`. Sampling :math:`u` rather than
+:math:`\log\eta` removes the funnel that few-failure data give in :math:`(\log\beta,
+\log\eta)` (the spread of :math:`\log\eta` grows as :math:`1/\beta`). With
+:math:`d = \log t - \log t_{\mathrm{ref}}` the cumulative hazard is
+:math:`H(t) = (t/\eta)^\beta = \exp(\beta d + u)`:
 
 .. math::
 
@@ -20,22 +24,24 @@ e^{\beta d_i}` with :math:`d_i = \log t_i - \log t_{\mathrm{ref}} \le 0` (one ve
 pass per evaluation, no overflow since :math:`\beta > 0`). :math:`\log(1 - e^{-x})` is
 evaluated from :math:`\log x` so that tiny and huge :math:`x` both stay finite.
 
-Priors (on :math:`(b, s)`; every density below includes its Jacobian):
+Priors (densities on :math:`(b, u)`, Jacobians included):
 
 * shape: :math:`\log\beta \sim N(m, \sigma)`; the default is :math:`N(0, 1)` (95% of the
   mass on :math:`0.14 < \beta < 7.1`); a range "LO,HI" becomes the lognormal with that central
   95%; ``flat`` is the improper uniform on :math:`\log\beta` (tests only).
 * scale, default (``hazard``): uniform on the cumulative hazard at the reference time,
-  :math:`\lambda = H(t_{\mathrm{ref}}) = e^{-\beta s}`, i.e. :math:`p(s \mid \beta) \propto \beta
-  e^{-\beta s}`. With :math:`t_{\mathrm{ref}}` the largest exact, suspension or interval-start
-  time, the posterior is proper whenever the group has such a unit. Given the shape, exact and
+  :math:`\lambda = H(t_{\mathrm{ref}}) = e^{u}`, i.e. :math:`p(u \mid \beta) \propto e^u`.
+  With :math:`t_{\mathrm{ref}}` the largest exact, suspension or interval-start time, the
+  posterior is proper whenever the group has such a unit. Given the shape, exact and
   right-censored data give :math:`\lambda \mid \text{data} \sim \mathrm{Gamma}(n_f + 1,
   \sum (t_i/t_{\mathrm{ref}})^\beta)`; with zero failures this reproduces the zero-failure
   (success-run / extended-test) demonstration formula, see docs/life.md.
-* scale, ``blife``: :math:`\log B_q = \log\eta + \log(-\log(1-q))/\beta \sim N(m, \sigma)`.
-* scale, ``reliability``: :math:`u = \log H(T) = \beta(\log T - \log\eta) \sim N(m, \sigma)`,
-  a range on :math:`R(T) = e^{-e^u}`; Jacobian :math:`|\partial u/\partial s| = \beta`.
-* scale, ``flat``: improper uniform on :math:`\log\eta` (tests only).
+* scale, ``blife``: :math:`\log B_q = \log\eta + \log(-\log(1-q))/\beta \sim N(m, \sigma)`;
+  Jacobian :math:`|\partial\log\eta/\partial u| = 1/\beta`.
+* scale, ``reliability``: :math:`\log H(T) = \beta(\log T - \log t_{\mathrm{ref}}) + u \sim
+  N(m, \sigma)`, a range on :math:`R(T) = e^{-H(T)}`; Jacobian 1.
+* scale, ``flat``: improper uniform on :math:`\log\eta` (tests only); Jacobian
+  :math:`1/\beta`.
 
 The same functions serve numpy (posterior mode, quadrature, tests) and jax (the sampler):
 the array module is passed as ``xp``.
@@ -325,32 +331,31 @@ def log_expm1(y, xp=np):
     return y + xp.log(-xp.expm1(-y))
 
 
-def log_likelihood(b, s, data: dict, xp=np):
-    r"""Log-likelihood of shape exp(b), relative log scale s.
+def log_likelihood(b, u, data: dict, xp=np):
+    r"""Log-likelihood at shape exp(b) and log cumulative hazard u at t_ref.
 
     ``data`` holds arrays whose last axis runs over (distinct) observations with their
     counts as weights; padding has weight 0 (keys: n_f, sum_log_tf, sum_d_f, d_exp, w_exp,
     d_ia, lr_int, w_int, d_left, w_left). With keys ``bin_c``, ``bin_a`` and ``beta_cap``
     the sum over exact failures and suspensions comes from :func:`binned_moments` instead,
-    and the shape is capped at 2 * beta_cap. ``b`` and ``s`` broadcast against the leading
+    and the shape is capped at 2 * beta_cap. ``b`` and ``u`` broadcast against the leading
     axes.
     """
     beta = xp.exp(b)
-    bb, ss = beta[..., None], s[..., None]
+    bb, uu = beta[..., None], u[..., None]
     # exact failures and suspensions: the sum of H(t) (d <= 0, so no overflow)
     if "bin_c" in data:
         expo = exposure_sum_binned(beta, data["bin_c"], data["bin_a"], xp)
     else:
         expo = xp.sum(data["w_exp"] * xp.exp(bb * data["d_exp"]), axis=-1)
-    sum_h = xp.exp(-beta * s) * expo
-    ll = (data["n_f"] * (b - beta * s) - data["sum_log_tf"] + beta * data["sum_d_f"] - sum_h)
+    ll = data["n_f"] * (b + u) - data["sum_log_tf"] + beta * data["sum_d_f"] - xp.exp(u) * expo
     if data["d_ia"].shape[-1]:
-        lh_a = bb * (data["d_ia"] - ss)
+        lh_a = bb * data["d_ia"] + uu
         lgap = lh_a + log_expm1(bb * data["lr_int"], xp)
         term = -xp.exp(lh_a) + log1mexp_from_log(lgap, xp)
         ll = ll + xp.sum(data["w_int"] * term, axis=-1)
     if data["d_left"].shape[-1]:
-        term = log1mexp_from_log(bb * (data["d_left"] - ss), xp)
+        term = log1mexp_from_log(bb * data["d_left"] + uu, xp)
         ll = ll + xp.sum(data["w_left"] * term, axis=-1)
     if "bin_c" in data:
         ll = xp.where(beta <= 2.0 * data["beta_cap"], ll, -xp.inf)
@@ -362,26 +367,32 @@ def _normal_logpdf(x, m, sd, xp=np):
     return -0.5 * z * z - xp.log(sd) - 0.5 * LOG_2PI
 
 
-def log_prior(b, s, prior: LifePrior, log_tref, xp=np):
-    """Log prior density on (b, s) = (log shape, log scale - log t_ref), Jacobians included."""
+def log_prior(b, u, prior: LifePrior, log_tref, xp=np):
+    """Log prior density on (b, u) = (log shape, log H(t_ref)), Jacobians included."""
     out = 0.0 * b
     if prior.shape is not None:
         out = out + _normal_logpdf(b, prior.shape[0], prior.shape[1], xp)
     beta = xp.exp(b)
     kind = prior.scale_kind
     if kind == "hazard":
-        out = out + b - beta * s
+        out = out + u
     elif kind == "blife":
         q, m, sd = prior.scale_args
-        log_bq = s + log_tref + math.log(-math.log1p(-q)) / beta
-        out = out + _normal_logpdf(log_bq, m, sd, xp)
+        log_bq = log_tref + (math.log(-math.log1p(-q)) - u) / beta
+        out = out + _normal_logpdf(log_bq, m, sd, xp) - b
     elif kind == "reliability":
         t, m, sd = prior.scale_args
-        u = beta * (math.log(t) - log_tref - s)
-        out = out + _normal_logpdf(u, m, sd, xp) + b
-    elif kind != "flat":
+        out = out + _normal_logpdf(beta * (math.log(t) - log_tref) + u, m, sd, xp)
+    elif kind == "flat":
+        out = out - b
+    else:
         raise ValueError(f"unknown scale prior {kind!r}")
     return out
+
+
+def log_scale(b, u, log_tref):
+    """log eta from (b, u)."""
+    return log_tref - u / np.exp(b)
 
 
 def data_arrays(st: GroupStats) -> dict[str, np.ndarray]:
@@ -395,22 +406,23 @@ def data_arrays(st: GroupStats) -> dict[str, np.ndarray]:
     }
 
 
-def log_posterior(b, s, st: GroupStats, prior: LifePrior, data: dict | None = None):
-    """Unnormalised log posterior of one group in numpy (for the mode and quadrature)."""
+def log_posterior(b, u, st: GroupStats, prior: LifePrior, data: dict | None = None):
+    """Unnormalised log posterior density of one group on (b, u), in numpy (for the mode
+    and quadrature)."""
     data = data_arrays(st) if data is None else data
     b = np.asarray(b, float)
-    s = np.asarray(s, float)
-    return log_likelihood(b, s, data) + log_prior(b, s, prior, st.log_tref)
+    u = np.asarray(u, float)
+    return log_likelihood(b, u, data) + log_prior(b, u, prior, st.log_tref)
 
 
 # ----------------------------------------------------------------------------- mode
 
 @dataclass
 class Mode:
-    """Posterior mode in (log shape, relative log scale) and the Laplace covariance there."""
+    """Posterior mode in (log shape, log H(t_ref)) and the Laplace covariance there."""
 
     b: float
-    s: float
+    u: float
     cov: np.ndarray
     converged: bool
 
@@ -430,8 +442,8 @@ def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
         return -float(v) if np.isfinite(v) else 1e300
 
     b0 = prior.shape[0] if prior.shape is not None else 0.0
-    starts = [np.array([b0, _s_start(st, math.exp(b0))])]
-    starts.append(np.array([0.5, _s_start(st, math.exp(0.5))]))
+    starts = [np.array([b0, _u_start(st, math.exp(b0))])]
+    starts.append(np.array([0.5, _u_start(st, math.exp(0.5))]))
     best = None
     for x0 in starts:
         res = optimize.minimize(nlp, x0, method="BFGS", options={"gtol": 1e-9, "maxiter": 500})
@@ -463,14 +475,20 @@ def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
     return Mode(float(x[0]), float(x[1]), cov, converged)
 
 
-def _s_start(st: GroupStats, beta: float) -> float:
-    """Relative log scale maximising the exact/right-censored likelihood at this shape."""
+def mode_shape_scale(mode: Mode, st: GroupStats) -> tuple[float, float]:
+    """(shape, scale) at the posterior mode (of the density on (log shape, log H(t_ref));
+    with flat priors on log shape and log scale this is the maximum-likelihood point)."""
+    return math.exp(mode.b), math.exp(float(log_scale(mode.b, mode.u, st.log_tref)))
+
+
+def _u_start(st: GroupStats, beta: float) -> float:
+    """log H(t_ref) maximising the exact/right-censored likelihood at this shape."""
     expo = float(np.sum(st.w_exposed * np.exp(beta * st.d_exposed)))
     expo += float(np.sum(st.w_int * np.exp(beta * st.d_int_a)))
     events = max(st.failures, 1)
     if expo <= 0:
         return 0.0
-    return float(np.log(expo / events) / beta)
+    return float(np.log(events / expo))
 
 
 def _gradient(f, x, h=1e-5):

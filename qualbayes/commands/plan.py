@@ -322,8 +322,9 @@ def _life(args) -> dict:
         shape = ShapePrior.from_range(lo, hi)
     units = [parse_whole(v, "--units", least=1) for v in str(args.units).split(",")]
     failures = parse_failures(args.failures)
-    if units[0] <= min(failures):
-        raise OptionError(f"--units {units[0]}: need more units than allowed failures")
+    if units[0] <= max(failures):
+        raise OptionError(f"--units {units[0]}: need more units on test than allowed "
+                          f"failures ({max(failures)})")
     target = _probability(args.assurance, "--assurance")
     design = None
     if args.design_prior is not None:

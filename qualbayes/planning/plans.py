@@ -244,9 +244,9 @@ def plan_life(reliability: float, confidence: float, mission: float, units, shap
     if not unit_list:
         raise OptionError("units: give at least one number of units")
     main = unit_list[0]
-    if main <= min(cs):
-        raise OptionError(f"units {main}: need more units on test than allowed failures")
-    cs_main = [c for c in cs if c < main]
+    if main <= max(cs):
+        raise OptionError(f"units {main}: need more units on test than allowed failures "
+                          f"({max(cs)})")
     if assurance is not None and design is None:
         raise OptionError("a wanted assurance needs a design prior on R(mission)")
     success = attribute.success_run_units(r, conf)
@@ -279,7 +279,7 @@ def plan_life(reliability: float, confidence: float, mission: float, units, shap
     if design is not None:
         detail_cols.append("assurance")
     detail, plans = [], []
-    for c in cs_main:
+    for c in cs:
         p = weibull.life_plan(r, conf, mission, main, shape, c)
         plans.append(p)
         row = [c, p["ratio"], p["test_time"], p["total_time"], p["risk_at_goal"]]

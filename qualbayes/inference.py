@@ -31,7 +31,8 @@ def setup_jax() -> None:
         try:
             Path(cache).mkdir(parents=True, exist_ok=True)
             jax.config.update("jax_compilation_cache_dir", cache)
-            jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.2)
+            jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
+            jax.config.update("jax_persistent_cache_min_entry_size_bytes", 0)
         except OSError:
             pass
     _CONFIGURED = True

@@ -28,9 +28,13 @@ average these conditional Betas over the draws (Rao-Blackwellised), and the next
 is :math:`\mathrm{Beta}(\mu_j\kappa_j, (1-\mu_j)\kappa_j)` mixed over the draws.
 
 All parts are sampled in one vectorised model (a plate over parts), so one compilation
-serves them all. Padding: a lot with :math:`n = 0` contributes exactly zero to the
-log-likelihood, so the lots axis is padded to a few fixed sizes and compiled code is reused
-across files with similar numbers of lots.
+serves them all. Sufficient statistics: the likelihood depends on the lots only through the distinct
+(defectives, inspected) pairs and how many lots share each, so lots are collapsed into
+weighted terms :math:`\sum_k w_k \log \mathrm{BB}(x_k \mid n_k, \ldots)` (exact). Inspection
+data repeat themselves (sample sizes come from a few standard values, defect counts are
+small), so 1,000 lots typically become a few dozen terms. Padding: a term with weight 0
+contributes nothing, so the term axis is padded to a few fixed sizes and compiled code is
+reused across files of similar size.
 """
 
 from __future__ import annotations
@@ -48,19 +52,20 @@ import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
 
 
-def lot_history_model(x, n):
-    """Marginalised hierarchical beta-binomial; ``x``, ``n`` have shape (parts, lots)."""
+def lot_history_model(x, n, w):
+    """Marginalised hierarchical beta-binomial. ``x``, ``n``, ``w`` have shape (parts, terms):
+    distinct (defectives, inspected) pairs of each part and the number of lots sharing each."""
     with numpyro.plate("parts", x.shape[0], dim=-2):
         mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
         phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
         kappa = numpyro.deterministic("kappa", 1.0 / phi**2 - 1.0)
-        with numpyro.plate("lots", x.shape[1], dim=-1):
-            numpyro.sample("x", dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa,
-                                                  total_count=n), obs=x)
+    loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
+    numpyro.factor("x", jnp.sum(w * loglik))
 
 
-def lot_history_model_plain(x, n):
-    """The same model with every p sampled (not marginalised): for the benchmark only."""
+def lot_history_model_plain(x, n, w):
+    """The same model with every lot's p sampled (not marginalised, no collapsing of equal
+    lots; ``w`` is ignored and must be 1 for real lots): for the benchmark only."""
     with numpyro.plate("parts", x.shape[0], dim=-2):
         mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
         phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
@@ -75,16 +80,22 @@ def bucket(k: int, least: int = 8) -> int:
     return max(least, 1 << (max(k, 1) - 1).bit_length())
 
 
-def pad(groups: list[tuple[np.ndarray, np.ndarray]]) -> tuple[np.ndarray, np.ndarray]:
-    """Stack each part's (x, n) into (parts, lots) arrays padded with empty lots/parts."""
-    rows = len(groups)
-    cols = bucket(max(len(x) for x, _ in groups))
-    xs = np.zeros((rows, cols))
-    ns = np.zeros((rows, cols))
-    for j, (x, n) in enumerate(groups):
-        xs[j, : len(x)] = x
-        ns[j, : len(n)] = n
-    return xs, ns
+def collapse(x: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Distinct (x, n) pairs and their multiplicities."""
+    pairs, counts = np.unique(np.stack([x, n], axis=1), axis=0, return_counts=True)
+    return pairs[:, 0], pairs[:, 1], counts.astype(float)
+
+
+def pad(groups: list[tuple[np.ndarray, np.ndarray]], distinct: bool = True):
+    """Stack each part's terms into (parts, terms) arrays x, n, w, padded with w = 0 terms.
+
+    ``distinct=False`` keeps one term per lot (w = 1), as the plain model needs."""
+    terms = [collapse(x, n) if distinct else (x, n, np.ones(len(x))) for x, n in groups]
+    cols = bucket(max(len(t[0]) for t in terms))
+    xs, ns, ws = (np.zeros((len(groups), cols)) for _ in range(3))
+    for j, (x, n, w) in enumerate(terms):
+        xs[j, : len(x)], ns[j, : len(n)], ws[j, : len(w)] = x, n, w
+    return xs, ns, ws
 
 
 def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: SamplerSettings,
@@ -96,7 +107,7 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
     """
     k = len(groups)
     names = names or [str(j) for j in range(k)]
-    xs, ns = pad(groups)
+    xs, ns, ws = pad(groups, distinct=model is lot_history_model)
 
     def gate_on(draws: dict) -> dict:
         out = {}
@@ -105,6 +116,7 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
             out[f"log_kappa[{name}]"] = np.log(draws["kappa"][:, :, j, 0])
         return out
 
-    fit = run_nuts(model, (jnp.asarray(xs), jnp.asarray(ns)), settings, gate_on=gate_on)
+    args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
+    fit = run_nuts(model, args, settings, gate_on=gate_on)
     fit.draws = {"mu": fit.draws["mu"][:, :, :k, 0], "kappa": fit.draws["kappa"][:, :, :k, 0]}
     return fit

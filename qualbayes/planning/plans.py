@@ -151,6 +151,12 @@ def plan_attribute(reliability: float, confidence: float, failures=0,
         if assurance is not None:
             smallest = asr.smallest_attribute_plan(r, conf, analysis, design, assurance,
                                                    max_units)
+            if (analysis is not None and analysis.components > 1 and smallest.get("units")
+                    and analysis.component_ess(smallest["units"], smallest["failures"])
+                    < MIN_COMPONENT_ESS):
+                smallest = {**smallest, "units": None, "reached": False,
+                            "reason": "too few of the prior's draws carry weight after "
+                                      "that test to trust it"}
             summary.append(_smallest_line(smallest, "units", lambda v: f"{v} units"))
             tables.append(_smallest_table(smallest, "units n", lambda v: v))
     curves = [_attribute_oc(r, cs, used)]

@@ -85,7 +85,7 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
         kappa = fit.draws["kappa"][:, :, 0].reshape(-1)
         prior = RatePrior.mixture(
             mu * kappa, (1.0 - mu) * kappa,
-            f"next-lot predictive of part {part} from {len(x)} lots: p = 1 - R ~ mixture of "
-            f"{mu.size} Beta(mu*kappa, (1-mu)*kappa) over posterior draws")
+            f"next-lot predictive of part {part} from {len(x)} lots: defect rate p (= 1 - R) "
+            f"~ mixture of {mu.size} Beta(mu*kappa, (1-mu)*kappa) over posterior draws")
     return HistoryPrior(prior, str(path), table.sheet, part, int(len(x)), int(np.sum(n)),
                         int(np.sum(x)), sha256_file(path), gate)

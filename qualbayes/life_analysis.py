@@ -22,8 +22,8 @@ from qualbayes.models.weibull import (
     LifePrior,
     Mode,
     group_stats,
-    mode_shape_scale,
     posterior_mode,
+    reported_mode,
 )
 from qualbayes.models.weibull_ranks import plotting_positions
 from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
@@ -174,7 +174,7 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
         "interval_censored": st.counts["interval"],
         "left_censored": st.counts["left"],
         "reference_time": math.exp(st.log_tref),
-        "posterior_mode": dict(zip(("shape", "scale"), mode_shape_scale(mode, st),
+        "posterior_mode": dict(zip(("shape", "scale"), reported_mode(st, prior, mode),
                                    strict=True)),
     }
     for key in ("shape", "scale", "b1", "b10", "mean_life"):

@@ -431,10 +431,10 @@ class Mode:
 
 
 def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
-    """Maximise the log posterior (scipy BFGS, polished by Newton steps on a
-    finite-difference Hessian); the inverse Hessian is the Laplace covariance."""
-    from scipy import optimize  # noqa: PLC0415
-
+    """Mode of the posterior density on the sampled scale (b, u) and the Laplace
+    covariance there (scipy BFGS, polished by Newton steps on a finite-difference
+    Hessian). This mode preconditions the sampler; see :func:`reported_mode` for the mode
+    that is reported."""
     data = data_arrays(st)
 
     def nlp(x):
@@ -442,8 +442,46 @@ def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
         return -float(v) if np.isfinite(v) else 1e300
 
     b0 = prior.shape[0] if prior.shape is not None else 0.0
-    starts = [np.array([b0, _u_start(st, math.exp(b0))])]
-    starts.append(np.array([0.5, _u_start(st, math.exp(0.5))]))
+    starts = [np.array([b0, _u_start(st, math.exp(b0))]),
+              np.array([0.5, _u_start(st, math.exp(0.5))])]
+    x, h, converged = _maximise(nlp, starts)
+    try:
+        cov = np.linalg.inv(h)
+        np.linalg.cholesky(cov)
+    except np.linalg.LinAlgError:
+        cov = np.diag([0.25, 1.0])
+        converged = False
+    if not np.all(np.isfinite(cov)):
+        cov = np.diag([0.25, 1.0])
+        converged = False
+    return Mode(float(x[0]), float(x[1]), cov, converged)
+
+
+def reported_mode(st: GroupStats, prior: LifePrior, start: Mode | None = None
+                  ) -> tuple[float, float]:
+    """(shape, scale) at the mode of the posterior density on (log shape, log scale).
+
+    A density's mode depends on the coordinates; on (log beta, log eta) the density is the
+    one on (b, u) times the Jacobian beta, so with flat priors on log shape and log scale
+    this mode is the maximum-likelihood point.
+    """
+    data = data_arrays(st)
+
+    def nlp(x):
+        b, log_eta = x
+        u = math.exp(b) * (st.log_tref - log_eta)
+        v = log_posterior(b, u, st, prior, data) + b
+        return -float(v) if np.isfinite(v) else 1e300
+
+    start = start or posterior_mode(st, prior)
+    x0 = np.array([start.b, float(log_scale(start.b, start.u, st.log_tref))])
+    x, _, _ = _maximise(nlp, [x0])
+    return math.exp(x[0]), math.exp(x[1])
+
+
+def _maximise(nlp, starts):
+    from scipy import optimize  # noqa: PLC0415
+
     best = None
     for x0 in starts:
         res = optimize.minimize(nlp, x0, method="BFGS", options={"gtol": 1e-9, "maxiter": 500})
@@ -463,22 +501,7 @@ def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
         if nlp(x - step) <= nlp(x) + 1e-12:
             x = x - step
         h = _hessian(nlp, x)
-    try:
-        cov = np.linalg.inv(h)
-        np.linalg.cholesky(cov)
-    except np.linalg.LinAlgError:
-        cov = np.diag([0.25, 1.0])
-        converged = False
-    if not np.all(np.isfinite(cov)):
-        cov = np.diag([0.25, 1.0])
-        converged = False
-    return Mode(float(x[0]), float(x[1]), cov, converged)
-
-
-def mode_shape_scale(mode: Mode, st: GroupStats) -> tuple[float, float]:
-    """(shape, scale) at the posterior mode (of the density on (log shape, log H(t_ref));
-    with flat priors on log shape and log scale this is the maximum-likelihood point)."""
-    return math.exp(mode.b), math.exp(float(log_scale(mode.b, mode.u, st.log_tref)))
+    return x, h, converged
 
 
 def _u_start(st: GroupStats, beta: float) -> float:

@@ -35,6 +35,9 @@ class LotAssessment:
     diagnostics: dict[str, dict] = field(default_factory=dict)  # part -> gate dict
     next_lot: dict[str, dict] = field(default_factory=dict)  # part -> predictive summary
     notes: list[str] = field(default_factory=list)
+    prior_params: dict | None = None  # {"a": ..., "b": ...} for the conjugate priors
+    draws: dict[str, dict] = field(default_factory=dict)  # part -> {"mu", "kappa"} (chain, draw)
+    sampler: dict = field(default_factory=dict)
 
     @property
     def converged(self) -> bool:
@@ -71,7 +74,7 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
         for d, a, b in zip(frame["decision"], a_post, b_post, strict=True)]
     _add_remaining(frame, a_post, b_post, confidence)
     return LotAssessment(frame[_columns(frame)], spec, confidence, prior.describe(),
-                         MODEL_CONJUGATE, None)
+                         MODEL_CONJUGATE, None, prior_params={"a": prior.a, "b": prior.b})
 
 
 def _extra_conjugate(decision, a, b, spec, confidence):
@@ -117,7 +120,7 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
 
     settings = settings or SamplerSettings(seed=seed)
     results = {c: [None] * len(frame) for c in RESULT_COLUMNS}
-    diagnostics, next_lot = {}, {}
+    diagnostics, next_lot, draws = {}, {}, {}
     x_all = frame["defectives"].to_numpy(float)
     n_all = frame["inspected"].to_numpy(float)
     tail = (1 - confidence) / 2
@@ -130,6 +133,7 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
         ok = gate.passed
         mu = fit.draws["mu"][:, :, j].reshape(-1)
         kappa = fit.draws["kappa"][:, :, j].reshape(-1)
+        draws[part] = {"mu": fit.draws["mu"][:, :, j], "kappa": fit.draws["kappa"][:, :, j]}
         a0, b0 = mu * kappa, (1 - mu) * kappa
         next_lot[part] = _next_lot_summary(a0, b0, spec, confidence, tail) if ok else {
             "decision": NOT_CONVERGED}
@@ -170,7 +174,8 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
                      "'not-converged' and no decision")
     return LotAssessment(frame[_columns(frame)], spec, confidence,
                          "history: hierarchical beta-binomial over the lots of each part",
-                         MODEL_HISTORY, settings.seed, diagnostics, next_lot, notes)
+                         MODEL_HISTORY, settings.seed, diagnostics, next_lot, notes,
+                         draws=draws, sampler=fit.gate.settings)
 
 
 def _next_lot_summary(a0, b0, spec, confidence, tail) -> dict:

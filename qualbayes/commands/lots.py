@@ -22,6 +22,9 @@ def register(sub) -> None:
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
                         "lots of each part number, NUTS)")
     add_output_options(p)
+    p.add_argument("--report", metavar="DIR",
+                   help="write the audit report (HTML, PDF, workbook, run record, figures) "
+                        "into the new folder DIR")
     p.set_defaults(func=run)
 
 
@@ -30,7 +33,11 @@ def run(args) -> int:
     from qualbayes.data.lots import read_lots  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
-    from qualbayes.evidence.lots_record import lots_record, lots_text  # noqa: PLC0415
+    from qualbayes.evidence.lots_record import (  # noqa: PLC0415
+        lots_record,
+        lots_text,
+        without_draws,
+    )
     from qualbayes.models.priors import parse_lot_prior  # noqa: PLC0415
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
@@ -40,18 +47,28 @@ def run(args) -> int:
     prior = parse_lot_prior(args.prior)
     targets = _targets(args)
     check_targets(targets, args.force)
+    if args.report:
+        from qualbayes.evidence.report_folder import check_report_target  # noqa: PLC0415
+
+        check_report_target(args.report, args.force)
     data = read_lots(args.file, sheet=args.sheet, columns=args.columns, max_rows=args.max_rows)
     sha = sha256_file(args.file)
     result = assess_lots(data, spec, confidence, prior, seed=args.seed)
     record = lots_record(result, data, sha, command_line(args.argv), versions())
     if targets:
         _write(record, data, targets, args.force)
+    if args.report:
+        from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
+
+        write_report_folder(args.report, record, force=args.force)
     if args.json:
-        print_text(dumps(record))
+        print_text(dumps(without_draws(record)))
     else:
         print_text(lots_text(record))
         if targets:
             print_text(f"evidence written: {', '.join(str(t) for t in targets)}")
+        if args.report:
+            print_text(f"report written: {args.report}/report.html, report.pdf")
     return 0
 
 
@@ -66,8 +83,8 @@ def _targets(args):
 def _write(record, data, targets, force) -> None:
     from qualbayes.evidence.files import write_text_atomic  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
-    from qualbayes.evidence.lots_record import lots_sheets  # noqa: PLC0415
+    from qualbayes.evidence.lots_record import lots_sheets, without_draws  # noqa: PLC0415
     from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
 
     write_workbook(targets[0], lots_sheets(record, data), force=force)
-    write_text_atomic(targets[1], dumps(record), force=force)
+    write_text_atomic(targets[1], dumps(without_draws(record)), force=force)

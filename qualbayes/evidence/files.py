@@ -13,16 +13,42 @@ import tempfile
 from collections.abc import Callable, Iterable
 from pathlib import Path
 
-from qualbayes.errors import OutputExistsError
+from qualbayes.errors import OptionError, OutputExistsError
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def public_mode(path: Path, directory: bool = False) -> None:
+    """Give a file made by mkstemp/mkdtemp (0600/0700) the usual permissions under umask."""
+    os.chmod(path, (0o777 if directory else 0o666) & ~_umask())
 
 
 def check_targets(paths: Iterable[Path], force: bool) -> None:
     """Refuse before any work is written if a target exists (and force is off)."""
+    paths = [Path(p) for p in paths]
+    for folder in dict.fromkeys(p.parent for p in paths):
+        _check_folder(folder)
     existing = [str(p) for p in paths if p.exists()]
     if existing and not force:
         raise OutputExistsError(
             "refusing to overwrite " + ", ".join(existing) + " (give --force to replace, "
             "or choose another --out folder)")
+
+
+def _check_folder(folder: Path) -> None:
+    """The output folder must be a folder (or creatable) and writable, checked before any
+    work is done so that a typo in --out is not found only after a long fit."""
+    existing = folder
+    while not existing.exists() and existing != existing.parent:
+        existing = existing.parent
+    if not existing.is_dir():
+        raise OptionError(f"--out {folder}: {existing} is a file, not a folder")
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise OptionError(f"--out {folder}: the folder {existing} is not writable")
 
 
 def write_atomic(path: Path, writer: Callable[[Path], None], force: bool = False) -> Path:
@@ -37,6 +63,7 @@ def write_atomic(path: Path, writer: Callable[[Path], None], force: bool = False
         writer(Path(tmp))
         with open(tmp, "rb") as fh:
             os.fsync(fh.fileno())
+        public_mode(Path(tmp))
         os.replace(tmp, path)
     finally:
         with contextlib.suppress(FileNotFoundError):
@@ -46,3 +73,35 @@ def write_atomic(path: Path, writer: Callable[[Path], None], force: bool = False
 
 def write_text_atomic(path: Path, text: str, force: bool = False) -> Path:
     return write_atomic(path, lambda p: p.write_text(text, encoding="utf-8"), force)
+
+
+def write_group(files: list[tuple[Path, Callable[[Path], None]]], force: bool = False
+                ) -> list[Path]:
+    """Write several files that belong together (a workbook and its run record).
+
+    Every file is written completely under a temporary name first; only then are they
+    renamed into place, one after the other. An interrupted run therefore leaves the earlier
+    set untouched unless it was already renaming (a few microseconds), and never a half
+    file. Temporary files are removed on any error or interrupt that Python sees.
+    """
+    targets = [Path(p) for p, _ in files]
+    if not force:
+        check_targets(targets, force)
+    temps: list[str] = []
+    try:
+        for path, writer in zip(targets, (w for _, w in files), strict=True):
+            path.parent.mkdir(parents=True, exist_ok=True)
+            fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+            os.close(fd)
+            temps.append(tmp)
+            writer(Path(tmp))
+            with open(tmp, "rb") as fh:
+                os.fsync(fh.fileno())
+            public_mode(Path(tmp))
+        for tmp, path in zip(temps, targets, strict=True):
+            os.replace(tmp, path)
+    finally:
+        for tmp in temps:
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(tmp)
+    return targets

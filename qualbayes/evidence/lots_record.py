@@ -49,12 +49,20 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
                   "header_row": data.header_row, "rows_read": len(data.frame),
                   "rows_rejected": 0, "columns": data.headers, "notes": data.notes},
         "model": result.model, "prior": result.prior, "seed": result.seed,
+        "prior_params": result.prior_params, "sampler": result.sampler,
+        "posterior_draws": {k: {"mu": v["mu"], "kappa": v["kappa"]}
+                            for k, v in result.draws.items()},
         "diagnostics": result.diagnostics, "next_lot": result.next_lot,
         "lots": lots, "notes": result.notes,
         "decision_counts": result.lots["decision"].value_counts().to_dict(),
         "caution": CAUTION, "standards": list(STANDARDS),
         "command": command, "versions": versions,
     })
+
+
+def without_draws(record: dict) -> dict:
+    """The record for --json: everything but the posterior draws (kept in the run record)."""
+    return {k: v for k, v in record.items() if k != "posterior_draws"}
 
 
 def _pct(v):

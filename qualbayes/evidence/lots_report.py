@@ -1,0 +1,85 @@
+"""The audit report of a lots run, built from its run record."""
+
+from __future__ import annotations
+
+from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.report_common import (
+    caution_section,
+    diagnostics_section,
+    inputs_section,
+    reproduce_sections,
+)
+
+
+def build(record: dict) -> Report:
+    from qualbayes.evidence import lot_plots  # noqa: PLC0415 - matplotlib
+
+    q = record["question"]
+    failed = [p for p, d in record["diagnostics"].items() if not d["passed"]]
+    alert = None
+    if failed:
+        alert = ("CONVERGENCE GATE FAILED for " + ", ".join(failed) + ": the sampler did not "
+                 "converge, so no decision is given for those lots. Do not use any number in "
+                 "this report for them; rerun with more data or seek a statistician's review.")
+    c = q["confidence"]
+    decisions = Table(
+        ["lot", "part", "inspected", "defectives", "P(p <= spec)", "decision",
+         "clean units to accept"],
+        [[r["lot"], r["part"], r["inspected"], r["defectives"], r["prob_within_spec"],
+          r["decision"], r["extra_clean_units_to_accept"]] for r in record["lots"]],
+        caption=f"accept: P(p <= spec) >= {c:g}; reject: P(p > spec) >= {c:g}; otherwise "
+                "undecided; not-converged: no decision (sampler gate failed).",
+        id="decision-summary")
+    counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
+    summary = Section("Decision summary", [Paragraph(f"Decisions: {counts}."), decisions])
+    question = Section("The question asked", [
+        Paragraph(q["asked"]),
+        Table(["item", "value"], [["defect-rate limit (spec)", q["spec"]],
+                                  ["confidence C", c], ["interval", q["interval"]],
+                                  ["bound", q["upper_bound"]]])])
+    model = Section("Model and prior", [
+        Paragraph(record["model"], "mono"), Paragraph(f"Prior: {record['prior']}", "mono"),
+        Paragraph("Finite lots: defectives among the N - n units not inspected ~ "
+                  "BetaBinomial(N - n, posterior Beta parameters), mixed over posterior draws "
+                  "for the history prior.", "mono")])
+    results = Section("Results", [Table(
+        ["lot", "part", "date", "n", "x", "mean", "interval low", "interval high",
+         "upper bound", "P(p<=spec)", "decision", "N - n", "D median", "D upper"],
+        [[r["lot"], r["part"], r["date"], r["inspected"], r["defectives"],
+          r["posterior_mean"], r["interval"][0], r["interval"][1], r["upper_bound"],
+          r["prob_within_spec"], r["decision"], r["remaining_units"],
+          r["remaining_defectives"]["median"], r["remaining_defectives"]["upper_bound"]]
+         for r in record["lots"]],
+        caption="D: defectives among the units not inspected (median and upper bound at C).",
+        id="results")])
+    if record["next_lot"]:
+        rows = [[p, nl.get("mean"), (nl.get("interval") or [None, None])[0],
+                 (nl.get("interval") or [None, None])[1], nl.get("upper_bound"),
+                 nl.get("prob_within_spec")] for p, nl in record["next_lot"].items()]
+        results.blocks.append(Table(["part", "next lot: mean", "interval low",
+                                     "interval high", "upper bound", "P(p<=spec)"], rows,
+                                    caption="Predictive for the next lot of each part."))
+    figures = Section("Figures", [])
+    if any(r["prob_within_spec"] is not None for r in record["lots"]):
+        figures.blocks += [
+            Figure("Posterior density of each lot's defect rate",
+                   lot_plots.densities_figure(record),
+                   "The lots with the least evidence of meeting the limit first (at most "
+                   f"{lot_plots.MAX_PANELS}). Dashed: the limit; hatched: the probability "
+                   "mass beyond it.", "fig-densities"),
+            Figure("Lot-by-lot intervals", lot_plots.intervals_figure(record),
+                   "Lots in date order with their credible intervals and means.",
+                   "fig-intervals"),
+            Figure("Prior and posterior", lot_plots.prior_posterior_figure(record), "",
+                   "fig-prior-posterior")]
+    for k, (part, fig) in enumerate(lot_plots.rank_figures(record)):
+        figures.blocks.append(Figure(f"Rank plots of the chains: {part}", fig,
+                                     "Flat histograms: the chains explore the same "
+                                     "distribution.", f"fig-ranks-{k}"))
+    if not figures.blocks:
+        figures.blocks.append(Paragraph("No figures: no lot has a result."))
+    sections = [summary, question, inputs_section(record), model,
+                diagnostics_section(record), results, figures, caution_section(record),
+                *reproduce_sections(record)]
+    return Report("Lot acceptance evidence",
+                  f"{record['input']['file']} - {q['asked']}", sections, alert)

@@ -1,0 +1,66 @@
+"""Sections every report shares: inputs, sampler and diagnostics, cautions, reproduction."""
+
+from __future__ import annotations
+
+from qualbayes.evidence.document import Paragraph, Section, Table
+from qualbayes.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
+
+
+def inputs_section(record: dict) -> Section:
+    i = record["input"]
+    rows = [["file", i["file"]], ["sheet", i.get("sheet")], ["SHA-256", i["sha256"]],
+            ["header row", i.get("header_row")], ["rows read", i.get("rows_read")],
+            ["rows rejected", i.get("rows_rejected", 0)]]
+    rows += [[f"column for {k}", v] for k, v in (i.get("columns") or {}).items()]
+    blocks = [Table(["item", "value"], rows, id="inputs")]
+    if i.get("rows_rejected"):
+        blocks.append(Paragraph("Rows rejected: " + "; ".join(i.get("rejected_reasons", []))))
+    else:
+        blocks.append(Paragraph("No row was rejected: the tool stops at the first faulty row "
+                                "and names it, so a report exists only for a clean file."))
+    for note in i.get("notes") or []:
+        blocks.append(Paragraph(f"Note: {note}"))
+    return Section("Inputs", blocks)
+
+
+def diagnostics_section(record: dict) -> Section:
+    diags = record.get("diagnostics") or {}
+    if not diags:
+        return Section("Sampler and diagnostics", [Paragraph(
+            "Closed form: no sampler was used, so there is no convergence to check. The "
+            "numbers are exact up to floating-point rounding.")])
+    first = next(iter(diags.values()))
+    settings = first.get("settings", {})
+    blocks = [Table(["setting", "value"], [[k, v] for k, v in settings.items()],
+                    caption="Sampler settings of the final attempt.", id="sampler"),
+              Paragraph(f"Gate: rank-normalised R-hat <= {RHAT_MAX}, bulk and tail ESS >= "
+                        f"{ESS_MIN:.0f}, divergent transitions <= {DIVERGENCES_MAX} "
+                        "(Vehtari et al. 2021). One automatic retry with twice the draws and "
+                        "target acceptance 0.95 follows a failure.")]
+    rows = []
+    for group, d in diags.items():
+        for p in d["parameters"]:
+            rows.append([group, p["name"], p["rhat"], p["ess_bulk"], p["ess_tail"],
+                         d["divergences"], d["attempts"], "pass" if p["passed"] and
+                         d["divergences"] <= DIVERGENCES_MAX else "FAIL"])
+    blocks.append(Table(["group", "parameter", "R-hat", "bulk ESS", "tail ESS", "divergences",
+                         "attempts", "gate"], rows, id="diagnostics"))
+    return Section("Sampler and diagnostics", blocks)
+
+
+def caution_section(record: dict) -> Section:
+    blocks = [Paragraph(record["caution"], "caution"),
+              Paragraph("Standards to defer to (named, not reproduced): "
+                        + "; ".join(record["standards"]) + ".")]
+    blocks += [Paragraph(n) for n in record.get("notes") or []]
+    return Section("Caution", blocks)
+
+
+def reproduce_sections(record: dict) -> list[Section]:
+    versions = Section("Package versions", [Table(
+        ["package", "version"], [[k, v] for k, v in record["versions"].items()])])
+    command = Section("Reproduce this run", [Paragraph(record["command"], "mono"), Paragraph(
+        "Run this command on the same input file (same SHA-256) and seed to obtain the same "
+        "numbers; `qualbayes report RUN.json --out DIR` rebuilds this report from its run "
+        "record.")])
+    return [versions, command]

@@ -250,3 +250,26 @@ def test_life_command_text_on_field_returns(examples, capsys):
     assert code == 0
     assert "convergence gate [(all units)]: passed" in text
     assert "CAUTION" in text and "P(R(5000 h) >= 0.9 | data) >= 0.9?" in text
+
+
+def test_joint_fit_failing_its_gate_is_redone_group_by_group(examples, monkeypatch):
+    # divergences belong to the joint sampler; when the joint fit fails, each group is
+    # refitted alone and judged by its own gate
+    import qualbayes.models.life as life_model
+
+    real = life_model.fit_life
+    calls = []
+
+    def flaky(stats, modes, prior, settings, names, mission):
+        fit = real(stats, modes, prior, settings, names, mission)
+        calls.append(list(names))
+        if len(names) > 1:
+            fit.gate.divergences = 3  # pretend the joint sampler diverged
+        return fit
+
+    monkeypatch.setattr(life_model, "fit_life", flaky)
+    table = read_life(examples / "sv30_rig_test.csv")
+    res = assess_life(table, 5000.0, 0.9, 0.9)
+    assert calls == [["Rev B", "Rev C"], ["Rev B"], ["Rev C"]]
+    assert all(g["diagnostics"]["passed"] and g["diagnostics"]["divergences"] == 0
+               for g in res.groups)

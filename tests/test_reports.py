@@ -244,3 +244,19 @@ def test_failed_gate_report_says_so_at_the_top_and_shows_no_decision(tmp_path):
     decisions = [row[5] for row in summary[1:]]
     assert decisions == ["not-converged"] * 3
     assert "accept" not in " ".join(decisions) and "reject" not in " ".join(decisions)
+
+
+def test_plan_report_rebuilds_identically_and_carries_assumptions(tmp_path, capsys):
+    out = tmp_path / "plan"
+    assert main(["plan", "sampling", "--aql", "1%", "--alpha", "0.05", "--ltpd", "5%",
+                 "--beta", "0.1", "--report", str(out)]) == 0
+    html = (out / "report.html").read_text()
+    page = parse(html)
+    assert "decision-summary" in page.ids
+    assert page.images == len(list((out / "figures").glob("*.png"))) >= 1
+    assert "CAUTION: decision support only" in html and "ISO 2859-1" in html
+    assert "drawn at random from the lot" in html  # a stated assumption
+    rebuilt = tmp_path / "again"
+    assert main(["report", str(out / "run.json"), "--out", str(rebuilt)]) == 0
+    assert parse((rebuilt / "report.html").read_text()).tables == page.tables
+    capsys.readouterr()

@@ -146,8 +146,11 @@ def _output_options(p) -> None:
     p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
     p.add_argument("--out", metavar="DIR",
                    help="write the run record (JSON), workbook and curve PNGs into DIR")
+    p.add_argument("--report", metavar="DIR",
+                   help="write the audit report (HTML, PDF, workbook, run record, figures) "
+                        "into the new folder DIR")
     p.add_argument("--force", action="store_true",
-                   help="allow replacing files of an earlier run in --out")
+                   help="allow replacing files of an earlier run in --out or --report")
 
 
 # --------------------------------------------------------------------------- option parsing
@@ -245,6 +248,10 @@ def run(args) -> int:
     build = _BUILDERS[kind](args)  # parses and checks every option: nothing computed yet
     targets = _targets(args, kind, build["curves"])
     check_targets(targets.values(), args.force)
+    if args.report:
+        from qualbayes.evidence.report_folder import check_report_target  # noqa: PLC0415
+
+        check_report_target(args.report, args.force)
     history = None
     if build.get("history_file"):
         from qualbayes.planning.history import learn_prior  # noqa: PLC0415
@@ -420,6 +427,11 @@ def _finish(record: dict, args, targets: dict[str, Path]) -> None:
     written = []
     if targets:
         written = _write(record, targets, args.force)
+    if args.report:
+        from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
+
+        write_report_folder(args.report, record, force=args.force)
+        written.append(f"{args.report}/report.html, report.pdf")
     if args.json:
         print_text(dumps(record))
     else:

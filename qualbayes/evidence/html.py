@@ -39,6 +39,9 @@ document.body.setAttribute('data-images-loaded',ok+'/'+imgs.length);});
 
 
 def png_bytes(fig) -> bytes:
+    """PNG of a matplotlib figure (a figure given as PNG bytes already is passed through)."""
+    if isinstance(fig, bytes):
+        return fig
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
     return buf.getvalue()

@@ -20,6 +20,7 @@ from qualbayes.evidence.files import public_mode
 #: run-record kind -> (report builder, workbook sheets builder), "module:function"
 KINDS = {
     "lots": ("qualbayes.evidence.lots_report:build", "qualbayes.evidence.lots_record:lots_sheets"),
+    "plan": ("qualbayes.evidence.plan_report:build", "qualbayes.evidence.plan_record:plan_sheets"),
 }
 
 FILES = ("report.html", "report.pdf", "evidence.xlsx", "run.json")
@@ -74,7 +75,8 @@ def _close_figures(report) -> None:
     import matplotlib.pyplot as plt  # noqa: PLC0415
 
     for f in report.figures():
-        plt.close(f.figure)
+        if not isinstance(f.figure, bytes):
+            plt.close(f.figure)
 
 
 def _swap_into_place(tmp: Path, out_dir: Path, force: bool) -> None:

@@ -260,3 +260,25 @@ def test_plan_report_rebuilds_identically_and_carries_assumptions(tmp_path, caps
     assert main(["report", str(out / "run.json"), "--out", str(rebuilt)]) == 0
     assert parse((rebuilt / "report.html").read_text()).tables == page.tables
     capsys.readouterr()
+
+
+def test_life_report_has_summary_figures_and_rebuilds(tmp_path, capsys, examples=None):
+    from conftest import EXAMPLES
+
+    out = tmp_path / "life"
+    assert main(["life", str(EXAMPLES / "sv30_rig_test.csv"), "--mission", "5000", "--target",
+                 "0.9", "--confidence", "0.9", "--units", "h", "--report", str(out)]) == 0
+    html = (out / "report.html").read_text()
+    page = parse(html)
+    assert "decision-summary" in page.ids
+    record = json.loads((out / "run.json").read_text())
+    groups = [g for g in record["groups"] if g["plot"] is not None]
+    assert page.images == 2 * len(groups) >= 2  # probability plot and R(t) per group
+    summary = page.tables[0]
+    assert [row[0] for row in summary[1:]] == [g["group"] for g in record["groups"]]
+    assert [row[-1] for row in summary[1:]] == [g["decision"] for g in record["groups"]]
+    assert "CAUTION: decision support only" in html and "IEC 61649" in html
+    rebuilt = tmp_path / "again"
+    assert main(["report", str(out / "run.json"), "--out", str(rebuilt)]) == 0
+    assert parse((rebuilt / "report.html").read_text()).tables == page.tables
+    capsys.readouterr()

@@ -25,8 +25,28 @@ def add_output_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
     p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
     p.add_argument("--out", metavar="DIR", help="write the evidence workbook into DIR")
+    p.add_argument("--report", metavar="DIR",
+                   help="write the audit report (HTML, PDF, workbook, run record, figures) "
+                        "into the new folder DIR")
     p.add_argument("--force", action="store_true",
-                   help="allow replacing files of an earlier run in --out")
+                   help="allow replacing files of an earlier run in --out or --report")
+
+
+def check_report(args) -> None:
+    """Refuse before any work if the --report folder holds an earlier report."""
+    if getattr(args, "report", None):
+        from qualbayes.evidence.report_folder import check_report_target  # noqa: PLC0415
+
+        check_report_target(args.report, args.force)
+
+
+def write_report(args, record: dict) -> str | None:
+    if not getattr(args, "report", None):
+        return None
+    from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
+
+    write_report_folder(args.report, record, force=args.force)
+    return f"report written: {args.report}/report.html, report.pdf"
 
 
 def print_text(text: str) -> None:

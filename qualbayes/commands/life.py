@@ -5,7 +5,13 @@ from __future__ import annotations
 
 import argparse
 
-from qualbayes.commands.common import add_input_options, add_output_options, print_text
+from qualbayes.commands.common import (
+    add_input_options,
+    add_output_options,
+    check_report,
+    print_text,
+    write_report,
+)
 
 WORKBOOK = "life_results.xlsx"
 RECORD = "life_results.json"
@@ -72,6 +78,7 @@ def run(args) -> int:
     units = parse_units(args.units)
     targets = _targets(args)
     check_targets(targets, args.force)
+    check_report(args)
     data = read_life(args.file, sheet=args.sheet, columns=args.columns,
                      max_rows=args.max_rows, units=units, groups=args.group)
     stats = {g: st for g, (_, st) in group_data(data).items()}
@@ -87,12 +94,15 @@ def run(args) -> int:
     result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
     record = life_record(result, data, sha, command_line(args.argv), versions())
     written = _write(record, data, targets, args.force) if targets else []
+    report_note = write_report(args, record)
     if args.json:
         print_text(dumps(record))
     else:
         print_text(life_text(record))
         if written:
             print_text(f"evidence written: {', '.join(str(t) for t in written)}")
+        if report_note:
+            print_text(report_note)
     return 0
 
 

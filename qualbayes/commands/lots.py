@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import argparse
 
-from qualbayes.commands.common import add_input_options, add_output_options, print_text
+from qualbayes.commands.common import (
+    add_input_options,
+    add_output_options,
+    check_report,
+    print_text,
+    write_report,
+)
 
 WORKBOOK = "lot_decisions.xlsx"
 RECORD = "lot_decisions.json"
@@ -22,9 +28,6 @@ def register(sub) -> None:
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
                         "lots of each part number, NUTS)")
     add_output_options(p)
-    p.add_argument("--report", metavar="DIR",
-                   help="write the audit report (HTML, PDF, workbook, run record, figures) "
-                        "into the new folder DIR")
     p.set_defaults(func=run)
 
 
@@ -47,28 +50,22 @@ def run(args) -> int:
     prior = parse_lot_prior(args.prior)
     targets = _targets(args)
     check_targets(targets, args.force)
-    if args.report:
-        from qualbayes.evidence.report_folder import check_report_target  # noqa: PLC0415
-
-        check_report_target(args.report, args.force)
+    check_report(args)
     data = read_lots(args.file, sheet=args.sheet, columns=args.columns, max_rows=args.max_rows)
     sha = sha256_file(args.file)
     result = assess_lots(data, spec, confidence, prior, seed=args.seed)
     record = lots_record(result, data, sha, command_line(args.argv), versions())
     if targets:
         _write(record, data, targets, args.force)
-    if args.report:
-        from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
-
-        write_report_folder(args.report, record, force=args.force)
+    report_note = write_report(args, record)
     if args.json:
         print_text(dumps(without_draws(record)))
     else:
         print_text(lots_text(record))
         if targets:
             print_text(f"evidence written: {', '.join(str(t) for t in targets)}")
-        if args.report:
-            print_text(f"report written: {args.report}/report.html, report.pdf")
+        if report_note:
+            print_text(report_note)
     return 0
 
 

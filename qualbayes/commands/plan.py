@@ -14,6 +14,7 @@ import argparse
 import re
 from pathlib import Path
 
+from qualbayes.commands.common import check_report, write_report
 from qualbayes.errors import OptionError
 
 RECORD = "plan_{kind}.json"
@@ -248,10 +249,7 @@ def run(args) -> int:
     build = _BUILDERS[kind](args)  # parses and checks every option: nothing computed yet
     targets = _targets(args, kind, build["curves"])
     check_targets(targets.values(), args.force)
-    if args.report:
-        from qualbayes.evidence.report_folder import check_report_target  # noqa: PLC0415
-
-        check_report_target(args.report, args.force)
+    check_report(args)
     history = None
     if build.get("history_file"):
         from qualbayes.planning.history import learn_prior  # noqa: PLC0415
@@ -427,11 +425,9 @@ def _finish(record: dict, args, targets: dict[str, Path]) -> None:
     written = []
     if targets:
         written = _write(record, targets, args.force)
-    if args.report:
-        from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
-
-        write_report_folder(args.report, record, force=args.force)
-        written.append(f"{args.report}/report.html, report.pdf")
+    report_note = write_report(args, record)
+    if report_note:
+        written.append(report_note)
     if args.json:
         print_text(dumps(record))
     else:

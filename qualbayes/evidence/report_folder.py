@@ -20,6 +20,7 @@ from qualbayes.evidence.files import public_mode
 #: run-record kind -> (report builder, workbook sheets builder), "module:function"
 KINDS = {
     "lots": ("qualbayes.evidence.lots_report:build", "qualbayes.evidence.lots_record:lots_sheets"),
+    "life": ("qualbayes.evidence.life_report:build", "qualbayes.evidence.life_record:life_sheets"),
     "plan": ("qualbayes.evidence.plan_report:build", "qualbayes.evidence.plan_record:plan_sheets"),
 }
 

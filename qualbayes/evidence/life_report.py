@@ -1,0 +1,93 @@
+"""The audit report of a life run, built from its run record."""
+
+from __future__ import annotations
+
+import tempfile
+from pathlib import Path
+
+from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.report_common import (
+    caution_section,
+    diagnostics_section,
+    inputs_section,
+    reproduce_sections,
+)
+
+
+def _mi(s: dict | None, key: str = "median"):
+    return None if not s else s.get(key)
+
+
+def _figures(record: dict) -> list[Figure]:
+    from qualbayes.evidence.life_plots import draw_all  # noqa: PLC0415 - matplotlib
+
+    with tempfile.TemporaryDirectory() as tmp:
+        paths = draw_all(record, Path(tmp))
+        names = [g["group"] for g in record["groups"] if g["plot"] is not None]
+        out = []
+        for k, p in enumerate(paths):
+            kind = "Weibull probability plot" if k % 2 == 0 else "Reliability R(t)"
+            out.append(Figure(f"{kind}: {names[k // 2]}", p.read_bytes(),
+                              "Posterior median line with its credible band"
+                              + ("; points: median ranks (adjusted for suspensions, "
+                                 "Bernard's approximation)" if k % 2 == 0 else ""),
+                              f"fig-life-{k}"))
+    return out
+
+
+def build(record: dict) -> Report:
+    q = record["question"]
+    groups = record["groups"]
+    diags = {g["group"]: g["diagnostics"] for g in groups if g.get("diagnostics")}
+    failed = [name for name, d in diags.items() if not d.get("passed")]
+    alert = None
+    if failed:
+        alert = ("CONVERGENCE GATE FAILED for " + ", ".join(failed) + ": the sampler did not "
+                 "converge, so no decision is given for those groups. Do not use their "
+                 "numbers.")
+    c = q["confidence"]
+    rel = [g["reliability_at_mission"] for g in groups]
+    summary = Table(
+        ["group", "units", "failures", "suspensions", f"R(mission) {c:.0%} lower bound",
+         "P(R >= target)", "decision"],
+        [[g["group"], g["units"], g["failures"], g["suspensions"], _mi(r, "lower_bound"),
+          g["prob_meets_target"], g["decision"]] for g, r in zip(groups, rel, strict=True)],
+        caption=f"meets: P(R(mission) >= target) >= {c:g}; does-not-meet: P(R(mission) < "
+                f"target) >= {c:g}; otherwise undecided; not-converged: no decision.",
+        id="decision-summary")
+    counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
+    results = Table(
+        ["group", "shape", "scale", "B1", "B10", "mean life", "R(mission) median",
+         "R interval low", "R interval high"],
+        [[g["group"], _mi(g["shape"]), _mi(g["scale"]), _mi(g["b1"]), _mi(g["b10"]),
+          _mi(g["mean_life"]), _mi(r), *(r["interval"] if r else [None, None])]
+         for g, r in zip(groups, rel, strict=True)],
+        caption=f"Posterior medians; R interval: {q['interval']}.", id="results")
+    intervals = Table(
+        ["group", "quantity", "median", "interval low", "interval high"],
+        [[g["group"], name, s["median"], s["interval"][0], s["interval"][1]]
+         for g in groups for name in ("shape", "scale", "b1", "b10", "mean_life")
+         if (s := g.get(name))])
+    record_d = dict(record, diagnostics=diags)
+    notes = [Paragraph(f"{g['group']}: {n}") for g in groups for n in g.get("notes") or []]
+    sections = [
+        Section("Decision summary", [Paragraph(f"Decisions: {counts}."), summary, *notes]),
+        Section("The question asked", [Paragraph(q["asked"]), Table(
+            ["item", "value"], [["mission time", q["mission"]], ["units", q["units"]],
+                                ["target reliability", q["target"]], ["confidence C", c],
+                                ["interval", q["interval"]], ["bound", q["lower_bound"]]])]),
+        inputs_section(record),
+        Section("Model and priors", [Paragraph(record["model"], "mono"),
+                                     Paragraph("Prior: " + (
+                                         "; ".join(record["prior"])
+                                         if isinstance(record["prior"], list)
+                                         else str(record["prior"])), "mono")]),
+        diagnostics_section(record_d),
+        Section("Results", [results, intervals]),
+        Section("Figures", _figures(record) or [Paragraph("No figures: no group has a "
+                                                          "result.")]),
+        caution_section(record),
+        *reproduce_sections(record),
+    ]
+    return Report("Reliability evidence (Weibull life)", f"{record['input']['file']} - "
+                  f"{q['asked']}", sections, alert)

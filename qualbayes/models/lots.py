@@ -20,6 +20,7 @@ import numpy as np
 from scipy import special
 
 from qualbayes.models.mixtures import betabinom_ppf
+from qualbayes.search import smallest_int
 
 MAX_EXTRA_UNITS = 10**9
 
@@ -58,21 +59,7 @@ def extra_clean_units(a_post: float, b_post: float, spec: float, confidence: flo
     def ok(m: float) -> bool:
         return bool(special.betainc(a_post, b_post + m, spec) >= confidence)
 
-    if ok(0):
-        return 0
-    hi = 1
-    while not ok(hi):
-        hi *= 2
-        if hi > MAX_EXTRA_UNITS:
-            return None
-    lo = hi // 2  # ok(lo) is False (or lo == 0, already checked)
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if ok(mid):
-            hi = mid
-        else:
-            lo = mid
-    return hi
+    return smallest_int(ok, 0, MAX_EXTRA_UNITS)
 
 
 def remaining_defectives(a_post, b_post, remaining, confidence: float) -> dict[str, np.ndarray]:

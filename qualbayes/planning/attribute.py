@@ -28,6 +28,7 @@ from scipy import special
 
 from qualbayes.planning.inputs import count, probability
 from qualbayes.planning.priors import RatePrior
+from qualbayes.search import smallest_int
 
 MAX_UNITS = 10**8
 _REL_TOL = 1e-12  # floating-point slack when comparing a risk with its limit
@@ -122,20 +123,4 @@ def bayes_table(prior: RatePrior, reliability: float, confidence: float,
 
 def _smallest(ok, lo: int) -> int | None:
     """Smallest integer n >= lo with ok(n), for ok monotone (False then True)."""
-    if ok(lo):
-        return lo
-    step = max(1, lo)
-    hi = lo + step
-    while not ok(hi):
-        lo = hi
-        step *= 2
-        hi = lo + step
-        if hi > MAX_UNITS:
-            return None
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if ok(mid):
-            hi = mid
-        else:
-            lo = mid
-    return hi
+    return smallest_int(ok, lo, MAX_UNITS)

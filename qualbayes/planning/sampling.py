@@ -36,6 +36,7 @@ from scipy import special, stats
 from qualbayes.errors import OptionError
 from qualbayes.planning.inputs import count, probability
 from qualbayes.planning.priors import RatePrior
+from qualbayes.search import smallest_int
 
 MAX_ACCEPTANCE_NUMBER = 5000
 
@@ -116,24 +117,7 @@ def _least_n(c: int, ltpd: float, beta: float, lot_size: int | None) -> int | No
     def ok(n: int) -> bool:
         return acceptance_probability(n, c, ltpd, lot_size) <= beta
 
-    hi_cap = lot_size if lot_size is not None else 10**9
-    lo = c + 1
-    if lo > hi_cap:
-        return None
-    if ok(lo):
-        return lo
-    hi = lo
-    while not ok(hi):
-        if hi >= hi_cap:
-            return None
-        lo, hi = hi, min(hi_cap, 2 * hi)
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if ok(mid):
-            hi = mid
-        else:
-            lo = mid
-    return hi
+    return smallest_int(ok, c + 1, lot_size if lot_size is not None else 10**9)
 
 
 def oc_curve(n: int, c: int, rates: np.ndarray, lot_size: int | None = None) -> np.ndarray:

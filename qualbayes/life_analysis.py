@@ -124,7 +124,9 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
         gate = fit_g.gate.select(g)
         beta = np.exp(fit_g.draws["log_shape"][:, :, k].reshape(-1))
         eta = np.exp(fit_g.draws["log_scale"][:, :, k].reshape(-1))
-        draws[g] = {"shape": beta, "scale": eta}
+        draws[g] = {"shape": beta, "scale": eta,
+                    "chains": {"log_shape": fit_g.draws["log_shape"][:, :, k],
+                               "log_scale": fit_g.draws["log_scale"][:, :, k]}}
         arrays = data[g][0]
         groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta, gate.to_dict(),
                                    mission, target, confidence, prior))

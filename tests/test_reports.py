@@ -273,7 +273,8 @@ def test_life_report_has_summary_figures_and_rebuilds(tmp_path, capsys, examples
     assert "decision-summary" in page.ids
     record = json.loads((out / "run.json").read_text())
     groups = [g for g in record["groups"] if g["plot"] is not None]
-    assert page.images == 2 * len(groups) >= 2  # probability plot and R(t) per group
+    # probability plot, R(t) and rank plots per group
+    assert page.images == 3 * len(groups) >= 3
     summary = page.tables[0]
     assert [row[0] for row in summary[1:]] == [g["group"] for g in record["groups"]]
     assert [row[-1] for row in summary[1:]] == [g["decision"] for g in record["groups"]]

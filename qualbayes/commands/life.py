@@ -63,7 +63,7 @@ def _mission(text: str) -> float:
 def run(args) -> int:
     from qualbayes.data.life import parse_units, read_life  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
+    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
     from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
     from qualbayes.evidence.life_record import life_record, life_text  # noqa: PLC0415
     from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
@@ -96,7 +96,7 @@ def run(args) -> int:
     written = _write(record, data, targets, args.force) if targets else []
     report_note = write_report(args, record)
     if args.json:
-        print_text(dumps(record))
+        print_text(dumps(without_draws(record)))
     else:
         print_text(life_text(record))
         if written:
@@ -116,12 +116,12 @@ def _targets(args):
 
 def _write(record, data, targets, force) -> list:
     from qualbayes.evidence.files import write_text_atomic  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
+    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
     from qualbayes.evidence.life_plots import draw_all  # noqa: PLC0415
     from qualbayes.evidence.life_record import life_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
 
     figures = draw_all(record, targets[0].parent, force)
     write_workbook(targets[0], life_sheets(record, data), force=force)
-    write_text_atomic(targets[1], dumps(record), force=force)
+    write_text_atomic(targets[1], dumps(without_draws(record)), force=force)
     return [*targets, *figures]

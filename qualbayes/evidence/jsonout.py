@@ -40,3 +40,9 @@ def plain(value):
 
 def dumps(document: dict) -> str:
     return json.dumps(plain(document), indent=2, ensure_ascii=False, allow_nan=False)
+
+
+def without_draws(record: dict) -> dict:
+    """A run record for --json: everything but the posterior draws (kept in run.json, where
+    the report's figures need them)."""
+    return {k: v for k, v in record.items() if k != "posterior_draws"}

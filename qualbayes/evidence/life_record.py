@@ -38,6 +38,8 @@ def life_record(result: LifeAssessment, data: LifeTable, sha256: str, command: s
         "model": result.model, "prior": result.prior.describe(result.units),
         "seed": result.seed,
         "groups": result.groups, "notes": result.notes,
+        "posterior_draws": {g: d["chains"] for g, d in (result.draws or {}).items()
+                            if "chains" in d},
         "decision_counts": decisions,
         "caution": CAUTION, "standards": list(STANDARDS),
         "command": command, "versions": versions,

@@ -35,6 +35,21 @@ def _figures(record: dict) -> list[Figure]:
     return out
 
 
+def _rank_figures(record: dict) -> list[Figure]:
+    import numpy as np  # noqa: PLC0415
+
+    from qualbayes.evidence.plots import rank_plot  # noqa: PLC0415
+
+    out = []
+    for k, (group, d) in enumerate((record.get("posterior_draws") or {}).items()):
+        fig = rank_plot({name: np.asarray(v, float) for name, v in d.items()},
+                        f"rank plots: {group}")
+        out.append(Figure(f"Rank plots of the chains: {group}", fig,
+                          "Flat histograms: the chains explore the same distribution.",
+                          f"fig-life-ranks-{k}"))
+    return out
+
+
 def build(record: dict) -> Report:
     q = record["question"]
     groups = record["groups"]
@@ -84,8 +99,8 @@ def build(record: dict) -> Report:
                                          else str(record["prior"])), "mono")]),
         diagnostics_section(record_d),
         Section("Results", [results, intervals]),
-        Section("Figures", _figures(record) or [Paragraph("No figures: no group has a "
-                                                          "result.")]),
+        Section("Figures", (_figures(record) + _rank_figures(record)) or [
+            Paragraph("No figures: no group has a result.")]),
         caution_section(record),
         *reproduce_sections(record),
     ]

@@ -11,7 +11,7 @@ import pandas as pd
 from qualbayes.acceptance import LotAssessment
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.lots import LotTable
-from qualbayes.evidence.jsonout import plain
+from qualbayes.evidence.jsonout import plain, without_draws  # noqa: F401 - re-export
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
 
@@ -58,11 +58,6 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
         "caution": CAUTION, "standards": list(STANDARDS),
         "command": command, "versions": versions,
     })
-
-
-def without_draws(record: dict) -> dict:
-    """The record for --json: everything but the posterior draws (kept in the run record)."""
-    return {k: v for k, v in record.items() if k != "posterior_draws"}
 
 
 def _pct(v):

@@ -38,10 +38,15 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _terminated(signum, frame):
+    raise KeyboardInterrupt  # unwind, so temporary output files are removed
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     args.argv = list(sys.argv[1:] if argv is None else argv)
+    previous = _on_sigterm(_terminated)
     try:
         return int(args.func(args) or 0)
     except (InputError, OptionError) as err:
@@ -51,6 +56,24 @@ def main(argv: list[str] | None = None) -> int:
     except OutputExistsError as err:
         print(f"qualbayes: {err}", file=sys.stderr)
         return EXIT_REFUSED
+    except OSError as err:  # writing the output failed (disk full, folder removed, ...)
+        print(f"qualbayes: error: cannot write the output: {err}", file=sys.stderr)
+        print("qualbayes: files are written whole or not at all; no partial file was left.",
+              file=sys.stderr)
+        return EXIT_INPUT
     except KeyboardInterrupt:
-        print("qualbayes: interrupted; no output was written or changed.", file=sys.stderr)
+        print("qualbayes: interrupted; no partial file was left (files are written whole "
+              "or not at all).", file=sys.stderr)
         return 130
+    finally:
+        _on_sigterm(previous)
+
+
+def _on_sigterm(handler):
+    """Install ``handler`` for SIGTERM (main thread only); returns the previous one."""
+    import signal  # noqa: PLC0415
+    import threading  # noqa: PLC0415
+
+    if handler is None or threading.current_thread() is not threading.main_thread():
+        return None
+    return signal.signal(signal.SIGTERM, handler)

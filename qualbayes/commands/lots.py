@@ -78,10 +78,14 @@ def _targets(args):
 
 
 def _write(record, data, targets, force) -> None:
-    from qualbayes.evidence.files import write_text_atomic  # noqa: PLC0415
+    """The workbook and its run record are written as one group: both complete under
+    temporary names, then renamed into place, so a killed run never leaves a new workbook
+    beside an old record."""
+    from qualbayes.evidence.files import write_group  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
     from qualbayes.evidence.lots_record import lots_sheets, without_draws  # noqa: PLC0415
-    from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
+    from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    write_workbook(targets[0], lots_sheets(record, data), force=force)
-    write_text_atomic(targets[1], dumps(without_draws(record)), force=force)
+    text = dumps(without_draws(record))
+    write_group([(targets[0], workbook_writer(lots_sheets(record, data))),
+                 (targets[1], lambda p: p.write_text(text, encoding="utf-8"))], force=force)

@@ -1,13 +1,15 @@
 """Finding the columns of an export by their header spellings.
 
 Headers are compared after normalising: case, spaces, punctuation and a trailing unit in
-brackets are ignored ("Qty. Inspected", "qty inspected" and "QTY_INSPECTED" are the same).
+brackets are ignored ("Qty. Inspected", "qty inspected" and "QTY_INSPECTED" are the same),
+except that a one-letter header keeps its case ("n" units sampled, "N" lot size).
 An explicit mapping (``--columns inspected="Checked Qty"``) overrides the spellings.
 """
 
 from __future__ import annotations
 
 import re
+import unicodedata
 from dataclasses import dataclass
 
 from qualbayes.data.readers import RawTable
@@ -25,9 +27,16 @@ class Column:
 
 
 def normalise(header: object) -> str:
+    """Comparable form of a header: compatibility-normalised (full-width letters become
+    plain), case-folded, without spaces, punctuation or a bracketed unit, in any script.
+    A header of one letter keeps its case: "n" (units sampled) and "N" (lot size) differ."""
     text = "" if header is None else str(header)
+    if len(text) > 200:
+        return ""  # not a header; no spelling is this long
+    text = unicodedata.normalize("NFKC", text)
     text = re.sub(r"\[[^\]]*\]|\([^)]*\)", "", text)  # "Time (h)" -> "Time"
-    return re.sub(r"[^0-9a-z]+", "", text.lower())
+    core = re.sub(r"[\W_]+", "", text)
+    return core if len(core) == 1 else core.casefold()
 
 
 @dataclass
@@ -68,6 +77,7 @@ def locate(table: RawTable, schema: tuple[Column, ...],
         found, missing = _match(row, schema, mapping)
         if not missing:
             _check_duplicate_headers(table, i, row, found)
+            _check_shared_columns(table, i, found, mapping)
             return Located(table.row_numbers[i], found, i + 1)
         if best is None or len(found) > len(best[1]):
             best = (i, found, missing)
@@ -82,16 +92,37 @@ def locate(table: RawTable, schema: tuple[Column, ...],
 def _match(row: list[object], schema: tuple[Column, ...], mapping: dict[str, str]):
     norm = [normalise(h) for h in row]
     found: dict[str, tuple[int, str]] = {}
+    # columns named explicitly are taken first and are not matched again by spelling
+    named = [normalise(mapping[c.key]) for c in schema if c.key in mapping]
+    mapped = {norm.index(t) for t in named if t and t in norm}
     for col in schema:
-        targets = [normalise(mapping[col.key])] if col.key in mapping else [
+        explicit = col.key in mapping
+        targets = [normalise(mapping[col.key])] if explicit else [
             normalise(s) for s in col.spellings]
         for t in targets:
-            if t in norm:
-                j = norm.index(t)
-                found[col.key] = (j, str(row[j]).strip())
+            if not t:
+                continue
+            hits = [j for j, h in enumerate(norm) if h == t and (explicit or j not in mapped)]
+            if hits:
+                found[col.key] = (hits[0], str(row[hits[0]]).strip())
                 break
     missing = [c.key for c in schema if c.required and c.key not in found]
     return found, missing
+
+
+def _check_shared_columns(table: RawTable, i: int, found: dict, mapping: dict) -> None:
+    """One column cannot be two things ("N" is a spelling of both the sample size and the
+    lot size once case is ignored): ask the engineer which it is."""
+    by_column: dict[int, list[str]] = {}
+    for key, (j, _) in found.items():
+        by_column.setdefault(j, []).append(key)
+    for keys in by_column.values():
+        if len(keys) > 1 and not any(k in mapping for k in keys):
+            text = found[keys[0]][1]
+            choices = " or ".join(f"--columns {k}={text!r}" for k in keys)
+            raise InputError(f"column {text!r} could be {' or '.join(keys)}; say which with "
+                             f"{choices}", file=table.file, sheet=table.sheet,
+                             row=table.row_numbers[i], column=text)
 
 
 def _check_duplicate_headers(table: RawTable, i: int, row: list[object], found: dict) -> None:

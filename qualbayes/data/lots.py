@@ -18,7 +18,7 @@ LOT_COLUMNS: tuple[Column, ...] = (
                          "Units Inspected", "Sampled", "Qty Sampled", "Quantity Inspected")),
     Column("defectives", ("Defectives", "Defects", "Nonconforming", "Non-conforming",
                           "Rejects", "Rejected", "Defective", "Failures", "Qty Rejected",
-                          "Fails", "x")),
+                          "Fails", "x", "X")),
     Column("lot_size", ("Lot Size", "Lot Qty", "Lot Quantity", "Qty Received", "Received",
                         "N", "Batch Size"), required=False),
     Column("part", ("Part", "Part No.", "Part Number", "Part ID", "Item", "Material", "PN"),
@@ -65,6 +65,7 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
             return cell(table, loc, i, key)
 
         lot_raw = get("lot")
+        _refuse_totals_row(table, loc, i, lot_raw, fail)
         if is_blank(lot_raw):
             if all(is_blank(get(k)) for k in ("inspected", "defectives")):
                 continue  # a trailing note or a spacer row
@@ -115,6 +116,24 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
                           "defectives", "row"])
     frame["lot_size"] = frame["lot_size"].astype("Int64")
     return LotTable(frame, table.file, table.sheet, loc.header_row, headers, list(table.notes))
+
+
+#: Lot ids that label a summary row rather than a lot (common practice in exports; no source).
+TOTAL_LABELS = frozenset({"total", "totals", "grand total", "subtotal", "sum", "overall"})
+_TOTAL_FORMULAS = ("=SUM(", "=SUBTOTAL(", "=AGGREGATE(")
+
+
+def _refuse_totals_row(table: RawTable, loc, i: int, lot_raw, fail) -> None:
+    """A totals row counted as a lot would double the evidence: refuse it by name."""
+    for key in ("inspected", "defectives"):
+        j = loc.columns[key][0]
+        formula = table.formula_cells.get((i, j), "")
+        if formula.upper().replace(" ", "").startswith(_TOTAL_FORMULAS):
+            raise fail(f"the cell holds {formula!r}, a total over other rows, not a lot's "
+                       "count; delete the totals row", key)
+    if isinstance(lot_raw, str) and lot_raw.strip().casefold() in TOTAL_LABELS:
+        raise fail(f"lot id {lot_raw.strip()!r} looks like a totals row, not a lot; delete "
+                   "the row", "lot")
 
 
 def _optional_text(raw, fail, key: str) -> str | None:

@@ -10,6 +10,16 @@ from __future__ import annotations
 import datetime as dt
 import math
 import re
+import unicodedata
+
+#: No number needs more characters than this; longer text is refused before any pattern is
+#: tried (the patterns below backtrack quadratically on long digit runs).
+MAX_NUMBER_CHARS = 64
+#: Line breaks and tabs inside a label (a wrapped cell) read as one space.
+_LINE_BREAKS = re.compile(r"[\t\n\r\v\f\x85\u2028\u2029]+")
+#: Bidirectional embedding, override and isolate controls: they reorder how text is shown
+#: (so two lot ids could look alike or a label could display in a misleading order).
+_BIDI_CONTROLS = frozenset("\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069")
 
 _THOUSANDS = re.compile(r"^[+-]?\d{1,3}([,\u00a0\u202f' ]\d{3})+$")
 _THOUSANDS_DOT = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+,\d+$")  # 1.234,5
@@ -27,7 +37,12 @@ def is_blank(value: object) -> bool:
 
 def describe(value: object) -> str:
     """Short, safe rendering of a cell for an error message."""
-    text = repr(value) if isinstance(value, str) else str(value)
+    if isinstance(value, str):
+        text = repr(value[:60])
+    elif isinstance(value, int) and not isinstance(value, bool) and abs(value) >= 10**40:
+        text = f"an integer of about {int(value.bit_length() * math.log10(2)) + 1:,} digits"
+    else:
+        text = str(value)
     return text if len(text) <= 40 else text[:37] + "..."
 
 
@@ -36,9 +51,16 @@ def parse_real(value: object, decimal_comma: bool = False) -> float:
     if isinstance(value, bool):
         raise ValueError(f"expected a number, found {describe(value)}")
     if isinstance(value, int | float):
-        x = float(value)
+        try:
+            x = float(value)
+        except OverflowError:  # an integer cell with hundreds of digits
+            raise ValueError(f"the number ({describe(value)}) is too large") from None
     elif isinstance(value, str):
-        x = _parse_real_text(value.strip(), decimal_comma)
+        text = value.strip()
+        if len(text) > MAX_NUMBER_CHARS:
+            raise ValueError(f"expected a number, found {describe(value)} "
+                             f"({len(text):,} characters)")
+        x = _parse_real_text(text, decimal_comma)
     else:
         raise ValueError(f"expected a number, found {describe(value)}")
     if not math.isfinite(x):
@@ -65,12 +87,16 @@ def _parse_real_text(text: str, decimal_comma: bool) -> float:
 
 def parse_count(value: object, decimal_comma: bool = False) -> int:
     """A whole number of units (not checked for sign here)."""
-    x = parse_real(value, decimal_comma=False if not isinstance(value, str) else decimal_comma)
-    if isinstance(value, str) and _THOUSANDS.match(value.strip()):
+    text = value.strip() if isinstance(value, str) else ""
+    if len(text) > MAX_NUMBER_CHARS:
+        x = parse_real(value)  # refuses it, naming the length
+    elif _THOUSANDS.match(text):
         # "1,200" in a count column is a thousands separator, whatever the decimal mark
-        x = float(re.sub(r"[,\u00a0\u202f' ]", "", value.strip()))
-    elif isinstance(value, str) and decimal_comma and _THOUSANDS_DOTS.match(value.strip()):
-        x = float(value.strip().replace(".", ""))
+        x = float(re.sub(r"[,\u00a0\u202f' ]", "", text))
+    elif decimal_comma and _THOUSANDS_DOTS.match(text):
+        x = float(text.replace(".", ""))  # "12.000" or "1.000.000" in a decimal-comma file
+    else:
+        x = parse_real(value, decimal_comma=decimal_comma and isinstance(value, str))
     if x != math.floor(x):
         raise ValueError(f"expected a whole number of units, found {describe(value)}")
     if abs(x) > 2**53:
@@ -79,14 +105,29 @@ def parse_count(value: object, decimal_comma: bool = False) -> int:
 
 
 def parse_text(value: object) -> str:
-    """A label (lot id, part, supplier); numbers like 1234.0 become '1234'."""
-    if isinstance(value, float) and value == math.floor(value) and math.isfinite(value):
-        return str(int(value))
+    """A label (lot id, part, supplier); numbers like 1234.0 become '1234'.
+
+    Text is put in Unicode normal form NFC (so a label typed with a combining accent equals
+    the same label typed precomposed), line breaks and tabs inside it become one space, and
+    other control characters and bidirectional overrides are refused.
+    """
     if isinstance(value, dt.datetime):
         return value.isoformat(sep=" ")
-    text = str(value).strip()
-    if "\x00" in text:
-        raise ValueError("text contains a NUL character")
+    if isinstance(value, int) and not isinstance(value, bool) and abs(value) >= 10**200:
+        raise ValueError("text is longer than 200 characters")
+    if isinstance(value, float) and math.isfinite(value) and value == math.floor(value):
+        text = str(int(value))
+    else:
+        text = str(value)
+    if len(text) > 10_000:  # refuse before normalising megabytes of text
+        raise ValueError("text is longer than 200 characters")
+    text = unicodedata.normalize("NFC", _LINE_BREAKS.sub(" ", text)).strip()
+    for ch in text:
+        if ch == "\x00":
+            raise ValueError("text contains a NUL character")
+        if unicodedata.category(ch) == "Cc" or ch in _BIDI_CONTROLS:
+            raise ValueError(f"text contains an invisible control character "
+                             f"(U+{ord(ch):04X}); retype the cell")
     if len(text) > 200:
         raise ValueError("text is longer than 200 characters")
     return text

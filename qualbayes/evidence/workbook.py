@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from pathlib import Path
 
 import pandas as pd
@@ -29,6 +30,12 @@ def safe_cell(value: object) -> object:
 def write_workbook(path: Path, sheets: dict[str, pd.DataFrame | list[list[object]]],
                    force: bool = False) -> Path:
     """Write ``sheets`` (name -> DataFrame or rows) to ``path`` atomically."""
+    return write_atomic(path, workbook_writer(sheets), force)
+
+
+def workbook_writer(sheets: dict[str, pd.DataFrame | list[list[object]]]
+                    ) -> Callable[[Path], None]:
+    """The function that saves ``sheets`` as an xlsx file at the path it is given."""
     from openpyxl import Workbook  # noqa: PLC0415
     from openpyxl.styles import Font  # noqa: PLC0415
 
@@ -53,7 +60,7 @@ def write_workbook(path: Path, sheets: dict[str, pd.DataFrame | list[list[object
                 ws.column_dimensions[col[0].column_letter].width = min(max(width + 2, 8), 80)
         wb.save(tmp)
 
-    return write_atomic(path, writer, force)
+    return writer
 
 
 def _rows(content) -> list[list[object]]:

@@ -1,0 +1,227 @@
+"""Nothing lost: a run killed while writing leaves the earlier report intact, no half file
+under a final name, and the input unchanged.
+
+The CLI runs in a subprocess started through a small wrapper that slows the writing down
+(each part of the xlsx zip, or the rename into place, waits), so the test can kill it at a
+known moment; a loop of kills at random moments checks the same invariants without any
+slowing. Nothing in qualbayes itself knows about these tests.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import random
+import shutil
+import signal
+import subprocess
+import sys
+import time
+import zipfile
+from pathlib import Path
+
+import pytest
+
+from qualbayes.cli import main
+from qualbayes.evidence.files import write_group
+
+ROOT = Path(__file__).resolve().parent.parent
+FINAL = ("lot_decisions.xlsx", "lot_decisions.json")
+
+WRAPPER = r'''
+import os, sys, time, zipfile
+marker, mode, args = sys.argv[1], sys.argv[2], sys.argv[3:]
+
+def note(tag):
+    with open(marker, "a") as fh:
+        fh.write(tag + "\n")
+
+if mode == "slow-zip":  # every part of the workbook's zip waits after it is written
+    for name in ("writestr", "write"):
+        original = getattr(zipfile.ZipFile, name)
+        def slow(self, *a, _original=original, **k):
+            _original(self, *a, **k)
+            self.fp.flush()
+            note("part")
+            time.sleep(0.4)
+        setattr(zipfile.ZipFile, name, slow)
+elif mode == "slow-rename":  # the complete temporary files wait before the rename
+    original_replace = os.replace
+    def slow_replace(src, dst):
+        note("rename")
+        time.sleep(60)
+        original_replace(src, dst)
+    os.replace = slow_replace
+from qualbayes.cli import main
+sys.exit(main(args))
+'''
+
+
+def digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+@pytest.fixture
+def earlier_run(tmp_path, examples):
+    """An input file and an --out folder holding a finished earlier run (spec 1%)."""
+    src = tmp_path / "incoming.csv"
+    shutil.copy(examples / "incoming_inspection.csv", src)
+    out = tmp_path / "evidence"
+    assert main(["lots", str(src), "--spec", "1%", "--out", str(out)]) == 0
+    wrapper = tmp_path / "wrapper.py"
+    wrapper.write_text(WRAPPER)
+    state = {
+        "src": src, "out": out, "wrapper": wrapper,
+        "input": (digest(src), src.stat().st_mtime_ns),
+        "earlier": {name: (out / name).read_bytes() for name in FINAL},
+    }
+    return state
+
+
+def start(state, mode: str, marker: Path) -> subprocess.Popen:
+    args = ["lots", str(state["src"]), "--spec", "2%", "--out", str(state["out"]), "--force"]
+    env = {**os.environ, "CI": "true", "PYTHONPATH": str(ROOT)}
+    return subprocess.Popen([sys.executable, str(state["wrapper"]), str(marker), mode, *args],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env, cwd=ROOT)
+
+
+def wait_for(marker: Path, lines: int, proc: subprocess.Popen, timeout: float = 120) -> None:
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        if marker.exists() and len(marker.read_text().splitlines()) >= lines:
+            return
+        if proc.poll() is not None:
+            pytest.fail(f"the run ended before the moment to kill it: {proc.stderr.read()}")
+        time.sleep(0.02)
+    proc.kill()
+    pytest.fail("the run never reached the moment to kill it")
+
+
+def is_complete_new_run(out: Path) -> bool:
+    """Both final files are a complete run with spec 2%: a valid xlsx and a JSON record."""
+    record = json.loads((out / FINAL[1]).read_text(encoding="utf-8"))
+    with zipfile.ZipFile(out / FINAL[0]) as zf:
+        assert zf.testzip() is None
+    from openpyxl import load_workbook
+
+    wb = load_workbook(out / FINAL[0], read_only=True)
+    try:
+        assert wb.sheetnames
+    finally:
+        wb.close()
+    return abs(record["question"]["spec"] - 0.02) < 1e-12
+
+
+def check_invariants(state) -> str:
+    """Returns "earlier" or "new": the final files are the earlier run's, untouched, or a
+    complete new run, both files the same run. The input is unchanged either way."""
+    src, out = state["src"], state["out"]
+    assert (digest(src), src.stat().st_mtime_ns) == state["input"]
+    finals = sorted(p.name for p in out.iterdir() if not p.name.startswith("."))
+    assert finals == sorted(FINAL), finals
+    for p in out.iterdir():  # anything else is a temporary name, never a final one
+        if p.name.startswith("."):
+            assert p.name.endswith(".part") and p.name[1:].startswith(FINAL), p.name
+    same = [(out / name).read_bytes() == state["earlier"][name] for name in FINAL]
+    if all(same):
+        return "earlier"
+    assert not any(same), "one file of the earlier run was replaced and the other not"
+    assert is_complete_new_run(out)
+    return "new"
+
+
+def test_killed_in_the_middle_of_the_zip(earlier_run, tmp_path):
+    marker = tmp_path / "marker"
+    proc = start(earlier_run, "slow-zip", marker)
+    wait_for(marker, 3, proc)  # three parts of the new workbook are in its temporary file
+    proc.send_signal(signal.SIGKILL)
+    proc.wait(timeout=60)
+    assert check_invariants(earlier_run) == "earlier"
+    parts = [p for p in earlier_run["out"].iterdir() if p.name.endswith(".part")]
+    assert len(parts) == 1  # SIGKILL cannot be caught: the half file stays, under its
+    with pytest.raises(zipfile.BadZipFile):  # temporary name, and it is indeed half a zip
+        zipfile.ZipFile(parts[0]).testzip()
+
+
+def test_killed_before_the_rename(earlier_run, tmp_path):
+    marker = tmp_path / "marker"
+    proc = start(earlier_run, "slow-rename", marker)
+    wait_for(marker, 1, proc)  # both new files are complete under temporary names
+    parts = sorted(p for p in earlier_run["out"].iterdir() if p.name.endswith(".part"))
+    assert len(parts) == 2
+    proc.send_signal(signal.SIGKILL)
+    proc.wait(timeout=60)
+    assert check_invariants(earlier_run) == "earlier"
+
+
+def test_terminated_run_removes_its_temporary_files(earlier_run, tmp_path):
+    marker = tmp_path / "marker"
+    proc = start(earlier_run, "slow-zip", marker)
+    wait_for(marker, 3, proc)
+    proc.send_signal(signal.SIGTERM)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130
+    assert b"interrupted; no partial file was left" in err and b"Traceback" not in err
+    assert check_invariants(earlier_run) == "earlier"
+    assert not [p for p in earlier_run["out"].iterdir() if p.name.startswith(".")]
+
+
+def test_killed_at_random_moments(earlier_run, tmp_path):
+    """No slowing: kill at random moments across a normal run's length; every outcome is
+    the earlier run or the complete new one."""
+    marker = tmp_path / "marker"
+    t0 = time.monotonic()
+    proc = start(earlier_run, "plain", marker)
+    proc.communicate(timeout=300)
+    length = time.monotonic() - t0
+    assert proc.returncode == 0
+    assert check_invariants(earlier_run) == "new"
+    rng = random.Random(20261202)
+    outcomes = []
+    for _ in range(6):
+        for name in FINAL:  # put the earlier run back
+            (earlier_run["out"] / name).write_bytes(earlier_run["earlier"][name])
+        for p in earlier_run["out"].glob(".*.part"):
+            p.unlink()
+        proc = start(earlier_run, "plain", marker)
+        time.sleep(rng.uniform(0.3, 1.1) * length)
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(timeout=60)
+        outcomes.append(check_invariants(earlier_run))
+    assert set(outcomes) <= {"earlier", "new"}, outcomes
+
+
+def test_failure_writing_the_record_leaves_the_earlier_workbook(tmp_path):
+    """The pair is one group: if the second file cannot be written, the first is not
+    renamed into place either (per-file writes would have replaced the workbook)."""
+    book, record = tmp_path / "a.xlsx", tmp_path / "a.json"
+    book.write_bytes(b"earlier workbook")
+    record.write_text("earlier record")
+
+    def broken(path):
+        path.write_text("half")
+        raise OSError(28, "No space left on device")
+
+    with pytest.raises(OSError, match="No space left"):
+        write_group([(book, lambda p: p.write_bytes(b"new workbook")), (record, broken)],
+                    force=True)
+    assert book.read_bytes() == b"earlier workbook"
+    assert record.read_text() == "earlier record"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.json", "a.xlsx"]
+
+
+def test_output_error_exits_2_without_traceback(tmp_path, capsys, examples, monkeypatch):
+    out = tmp_path / "ev"
+
+    def no_space(*args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    import qualbayes.evidence.workbook as workbook
+
+    monkeypatch.setattr(workbook, "workbook_writer", lambda sheets: no_space)
+    code = main(["lots", str(examples / "incoming_inspection.csv"), "--spec", "1%",
+                 "--out", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2 and "cannot write the output" in err and "No space left" in err
+    assert not out.exists() or not list(out.iterdir())

@@ -72,9 +72,10 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
     frame["extra_clean_units_to_accept"] = [
         _extra_conjugate(d, a, b, spec, confidence)
         for d, a, b in zip(frame["decision"], a_post, b_post, strict=True)]
-    _add_remaining(frame, a_post, b_post, confidence)
+    approximate = _add_remaining(frame, a_post, b_post, confidence)
     return LotAssessment(frame[_columns(frame)], spec, confidence, prior.describe(),
-                         MODEL_CONJUGATE, None, prior_params={"a": prior.a, "b": prior.b})
+                         MODEL_CONJUGATE, None, notes=_approximate_note(approximate),
+                         prior_params={"a": prior.a, "b": prior.b})
 
 
 def _extra_conjugate(decision, a, b, spec, confidence):
@@ -85,7 +86,9 @@ def _extra_conjugate(decision, a, b, spec, confidence):
     return None
 
 
-def _add_remaining(frame: pd.DataFrame, a_post, b_post, confidence: float) -> None:
+def _add_remaining(frame: pd.DataFrame, a_post, b_post, confidence: float) -> list[str]:
+    """Fill the remaining-units columns; returns the lots whose count is approximate."""
+    approximate: list[str] = []
     size = frame["lot_size"]
     remaining = (size - frame["inspected"]).astype("Int64")
     frame["remaining_units"] = remaining
@@ -93,13 +96,25 @@ def _add_remaining(frame: pd.DataFrame, a_post, b_post, confidence: float) -> No
     up = [None] * len(frame)
     has = remaining.notna().to_numpy()
     if has.any():
-        r = remaining[has].astype(int).to_numpy()
+        r = remaining[has].astype("int64").to_numpy()
         res = conj.remaining_defectives(np.asarray(a_post)[has], np.asarray(b_post)[has], r,
                                         confidence)
         for k, i in enumerate(np.flatnonzero(has)):
             med[i], up[i] = int(res["median"][k]), int(res["upper_bound"][k])
+            if not res["exact"][k]:
+                approximate.append(str(frame["lot"].iloc[i]))
     frame["remaining_defectives_median"] = pd.array(med, dtype="Int64")
     frame["remaining_defectives_upper"] = pd.array(up, dtype="Int64")
+    return approximate
+
+
+def _approximate_note(lots: list[str]) -> list[str]:
+    if not lots:
+        return []
+    shown = ", ".join(lots[:5]) + (f" and {len(lots) - 5} more" if len(lots) > 5 else "")
+    return [f"defectives not inspected for lot(s) {shown}: so many units remain that the count "
+            "is the continuous limit (remaining units x quantile of the rate), within a few "
+            "times the square root of the defectives found of the exact beta-binomial value"]
 
 
 def _columns(frame: pd.DataFrame) -> list[str]:
@@ -121,6 +136,7 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
     settings = settings or SamplerSettings(seed=seed)
     results = {c: [None] * len(frame) for c in RESULT_COLUMNS}
     diagnostics, next_lot, draws = {}, {}, {}
+    approximate: list[str] = []
     x_all = frame["defectives"].to_numpy(float)
     n_all = frame["inspected"].to_numpy(float)
     tail = (1 - confidence) / 2
@@ -141,7 +157,7 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
             if not ok:
                 results["decision"][i] = NOT_CONVERGED
                 continue
-            alpha, beta = a0 + x_all[i], b0 + n_all[i] - x_all[i]
+            alpha, beta = a0 + x_all[i], b0 + (n_all[i] - x_all[i])  # (n - x) first: b0 may be tiny
             prob = mixtures.cdf(spec, alpha, beta)
             d = decide(prob, confidence)
             results["posterior_mean"][i] = mixtures.mean(alpha, beta)
@@ -157,10 +173,12 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
             if not pd.isna(size):
                 rem = int(size) - int(n_all[i])
                 results["remaining_units"][i] = rem
-                results["remaining_defectives_median"][i] = mixtures.betabinom_ppf(
-                    0.5, rem, alpha, beta)
-                results["remaining_defectives_upper"][i] = mixtures.betabinom_ppf(
-                    confidence, rem, alpha, beta)
+                med, med_exact = mixtures.betabinom_quantile(0.5, rem, alpha, beta)
+                up, up_exact = mixtures.betabinom_quantile(confidence, rem, alpha, beta)
+                results["remaining_defectives_median"][i] = med
+                results["remaining_defectives_upper"][i] = up
+                if not (med_exact and up_exact):
+                    approximate.append(str(frame["lot"].iloc[i]))
     for c in RESULT_COLUMNS:
         frame[c] = pd.array(results[c], dtype="Int64") if c in (
             "extra_clean_units_to_accept", "remaining_units", "remaining_defectives_median",
@@ -172,6 +190,7 @@ def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
     if any(not d["passed"] for d in diagnostics.values()):
         notes.append("the convergence gate failed for at least one part: those lots carry "
                      "'not-converged' and no decision")
+    notes += _approximate_note(approximate)
     return LotAssessment(frame[_columns(frame)], spec, confidence,
                          "history: hierarchical beta-binomial over the lots of each part",
                          MODEL_HISTORY, settings.seed, diagnostics, next_lot, notes,

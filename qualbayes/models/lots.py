@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from qualbayes.models.mixtures import betabinom_ppf
+from qualbayes.models.mixtures import betabinom_quantile
 from qualbayes.search import smallest_int
 
 MAX_EXTRA_UNITS = 10**9
@@ -29,7 +29,7 @@ def posterior(x, n, a: float, b: float) -> tuple[np.ndarray, np.ndarray]:
     """Posterior Beta parameters (a + x, b + n - x)."""
     x = np.asarray(x, dtype=float)
     n = np.asarray(n, dtype=float)
-    return a + x, b + n - x
+    return a + x, b + (n - x)  # (n - x) first, so a tiny b is not lost when x = n
 
 
 def summarise(a_post, b_post, spec: float, confidence: float) -> dict[str, np.ndarray]:
@@ -64,12 +64,18 @@ def extra_clean_units(a_post: float, b_post: float, spec: float, confidence: flo
 
 def remaining_defectives(a_post, b_post, remaining, confidence: float) -> dict[str, np.ndarray]:
     """Median and one-sided upper bound at ``confidence`` of the defectives among the
-    ``remaining`` = N - n units not inspected (beta-binomial predictive)."""
+    ``remaining`` = N - n units not inspected (beta-binomial predictive); ``exact`` is False
+    where the lot is so large that the continuous limit was used
+    (:func:`qualbayes.models.mixtures.betabinom_quantile`)."""
     a = np.atleast_1d(np.asarray(a_post, dtype=float))
     b = np.atleast_1d(np.asarray(b_post, dtype=float))
-    r = np.atleast_1d(np.asarray(remaining, dtype=int))
-    med = [betabinom_ppf(0.5, int(ri), ai[None], bi[None]) for ai, bi, ri in zip(a, b, r,
-                                                                                strict=True)]
-    up = [betabinom_ppf(confidence, int(ri), ai[None], bi[None])
-          for ai, bi, ri in zip(a, b, r, strict=True)]
-    return {"median": np.array(med), "upper_bound": np.array(up)}
+    r = np.atleast_1d(np.asarray(remaining, dtype=np.int64))
+    med, up, exact = [], [], []
+    for ai, bi, ri in zip(a, b, r, strict=True):
+        m, m_exact = betabinom_quantile(0.5, int(ri), ai[None], bi[None])
+        u, u_exact = betabinom_quantile(confidence, int(ri), ai[None], bi[None])
+        med.append(m)
+        up.append(u)
+        exact.append(m_exact and u_exact)
+    return {"median": np.array(med, dtype=np.int64), "upper_bound": np.array(up, dtype=np.int64),
+            "exact": np.array(exact, dtype=bool)}

@@ -1,0 +1,105 @@
+"""Simulation-based calibration (Talts et al., 2018, arXiv:1804.06788; CHECKS.md) of the
+hierarchical lot model and the censored Weibull model, NUTS included.
+
+Replications draw parameters from the prior and data from the model; the rank of the true
+value among 99 thinned posterior draws must then be uniform on 0..99, and central 50% and
+90% intervals must cover the truth in 50% and 90% of replications. Tests, with tolerances
+from the sampling distributions (not chosen to pass):
+
+* uniformity: chi-square on ranks binned into 10 bins, p-value above 0.001;
+* coverage: the number of intervals covering the truth is Binomial(R, level); the observed
+  fraction must lie in that binomial's central 99.9% band.
+
+The CI version (60 replications, one fit per study with every replication a "part" or
+"group" of the vectorised model) is run with deliberately wrong likelihoods as well and
+must detect them (p-value below 0.001): the lot model with the lot-to-lot variation dropped,
+the Weibull model with the suspension terms dropped. The large version is marked slow
+(pytest -m slow); bench/calibration.py prints the table of docs/calibration.md.
+"""
+
+from __future__ import annotations
+
+import pytest
+import sbc
+
+from qualbayes.inference import SamplerSettings
+
+CI_SETTINGS = SamplerSettings(num_chains=4, num_warmup=500, num_samples=500, seed=11,
+                              retry=False)
+P_MIN = 0.001
+
+
+def assert_calibrated(cal: sbc.Calibration) -> None:
+    for key in cal.ranks:
+        stat, p = cal.chi_square(key)
+        assert p > P_MIN, (cal.name, key, stat, p, sbc.markdown_rows(cal))
+        for level in (0.5, 0.9):
+            lo, hi = sbc.coverage_band(cal.replications, level)
+            assert lo <= cal.coverage(key, level) <= hi, (cal.name, key, level,
+                                                            cal.coverage(key, level))
+
+
+def assert_detected(cal: sbc.Calibration) -> None:
+    worst = min(cal.chi_square(key)[1] for key in cal.ranks)
+    assert worst < P_MIN, (cal.name, sbc.markdown_rows(cal))
+    lo, _ = sbc.coverage_band(cal.replications, 0.9)
+    assert min(cal.coverage(key, 0.9) for key in cal.ranks) < lo
+
+
+@pytest.fixture(scope="module")
+def lot_sim():
+    return sbc.simulate(60, 5, seed=2018)
+
+
+@pytest.fixture(scope="module")
+def life_sim():
+    return sbc.simulate_life(60, 10, seed=1804)
+
+
+def test_sbc_lot_history(lot_sim):
+    cal = sbc.run(lot_sim, CI_SETTINGS, name="lot history")
+    assert cal.replications == 60
+    assert_calibrated(cal)
+
+
+def test_sbc_catches_a_dropped_lot_to_lot_term(lot_sim):
+    assert_detected(sbc.run(lot_sim, CI_SETTINGS, model=sbc.pooled_binomial_model,
+                            name="lot history, variation dropped (wrong)"))
+
+
+def test_sbc_weibull_right_censored(life_sim):
+    assert sum(len(u["failures"]) == 0 for u in life_sim.units) > 0  # all-suspended cases
+    assert_calibrated(sbc.run_life(life_sim, CI_SETTINGS, name="Weibull, right-censored"))
+
+
+def test_sbc_catches_a_dropped_censoring_term(life_sim):
+    assert_detected(sbc.run_life(life_sim, CI_SETTINGS, drop_suspensions=True,
+                                 name="Weibull, suspensions dropped (wrong)"))
+
+
+def test_sbc_weibull_inspection_data():
+    # units checked every 500 h: left-censored, interval-censored and suspended units
+    sim = sbc.simulate_life(60, 10, seed=1805, inspections=(500.0, 1000.0, 1500.0, 2000.0))
+    kinds = {k for u in sim.units for k in ("left", "interval_lower", "suspensions")
+             if len(u[k])}
+    assert kinds == {"left", "interval_lower", "suspensions"}
+    assert_calibrated(sbc.run_life(sim, CI_SETTINGS, name="Weibull, inspections"))
+
+
+SLOW_SETTINGS = SamplerSettings(num_chains=4, num_warmup=1000, num_samples=1000, seed=13,
+                                retry=False)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("lots", [1, 5, 20])
+def test_sbc_lot_history_large(lots):
+    assert_calibrated(sbc.run(sbc.simulate(400, lots, seed=100 + lots), SLOW_SETTINGS))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("units,inspections", [(3, ()), (10, ()), (30, ()),
+                                               (10, (500.0, 1000.0, 1500.0, 2000.0))])
+def test_sbc_weibull_large(units, inspections):
+    sim = sbc.simulate_life(400, units, seed=200 + units + len(inspections),
+                            inspections=inspections)
+    assert_calibrated(sbc.run_life(sim, SLOW_SETTINGS))

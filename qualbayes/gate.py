@@ -8,6 +8,7 @@ divergent transitions. The older "R-hat < 1.1, ESS >= 100" rule is not used (see
 
 from __future__ import annotations
 
+import math
 from dataclasses import asdict, dataclass, field
 
 RHAT_MAX = 1.01
@@ -23,7 +24,7 @@ class ParamDiagnostics:
     ess_tail: float
 
     @property
-    def passed(self) -> bool:
+    def passed(self) -> bool:  # NaN compares False: an undefined diagnostic never passes
         return self.rhat <= RHAT_MAX and self.ess_bulk >= ESS_MIN and self.ess_tail >= ESS_MIN
 
 
@@ -40,21 +41,27 @@ class GateResult:
 
     @property
     def max_rhat(self) -> float:
-        return max(p.rhat for p in self.params)
+        return _worst([p.rhat for p in self.params], max)
 
     @property
     def min_ess_bulk(self) -> float:
-        return min(p.ess_bulk for p in self.params)
+        return _worst([p.ess_bulk for p in self.params], min)
 
     @property
     def min_ess_tail(self) -> float:
-        return min(p.ess_tail for p in self.params)
+        return _worst([p.ess_tail for p in self.params], min)
 
     def reasons(self) -> list[str]:
         out = []
         if self.divergences > DIVERGENCES_MAX:
             out.append(f"{self.divergences} divergent transitions (allowed {DIVERGENCES_MAX})")
         for p in self.params:
+            if not all(math.isfinite(v) for v in (p.rhat, p.ess_bulk, p.ess_tail)):
+                # e.g. every draw equal (a quantity pinned at 0 or 1, or chains that never
+                # moved): convergence cannot be judged, so the gate does not pass
+                out.append(f"R-hat and ESS of {p.name} cannot be computed (every draw within "
+                           "a chain is the same, or not a number); convergence is not shown")
+                continue
             if p.rhat > RHAT_MAX:
                 out.append(f"R-hat of {p.name} is {p.rhat:.3f} (> {RHAT_MAX})")
             if p.ess_bulk < ESS_MIN:
@@ -91,6 +98,11 @@ class GateResult:
         }
 
 
+def _worst(values: list[float], pick) -> float:
+    """max/min that lets an undefined (NaN) diagnostic show instead of hiding it."""
+    return float("nan") if any(math.isnan(v) for v in values) else pick(values)
+
+
 def diagnose(draws: dict, divergences: int, attempts: int = 1,
              settings: dict | None = None) -> GateResult:
     """Diagnostics of draws ``{name: array (chain, draw, *shape)}`` with ArviZ."""
@@ -109,10 +121,12 @@ def diagnose(draws: dict, divergences: int, attempts: int = 1,
         for k in range(flat.shape[2]):
             x = flat[:, :, k]
             label = name if flat.shape[2] == 1 else f"{name}[{k}]"
-            params.append(ParamDiagnostics(
-                label,
-                float(az.rhat(x, method="rank")),
-                float(az.ess(x, method="bulk")),
-                float(az.ess(x, method="tail")),
-            ))
+            with warnings.catch_warnings():  # constant draws: NaN, reported by reasons()
+                warnings.simplefilter("ignore", RuntimeWarning)
+                params.append(ParamDiagnostics(
+                    label,
+                    float(az.rhat(x, method="rank")),
+                    float(az.ess(x, method="bulk")),
+                    float(az.ess(x, method="tail")),
+                ))
     return GateResult(params, int(divergences), attempts, dict(settings or {}))

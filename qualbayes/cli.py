@@ -47,6 +47,9 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     args.argv = list(sys.argv[1:] if argv is None else argv)
     previous = _on_sigterm(_terminated)
+    from qualbayes.evidence.files import protect_inputs, release_inputs  # noqa: PLC0415
+
+    protect_inputs(getattr(args, "file", None))
     try:
         return int(args.func(args) or 0)
     except (InputError, OptionError) as err:
@@ -67,6 +70,7 @@ def main(argv: list[str] | None = None) -> int:
         return 130
     finally:
         _on_sigterm(previous)
+        release_inputs()
 
 
 def _on_sigterm(handler):

@@ -225,3 +225,24 @@ def test_output_error_exits_2_without_traceback(tmp_path, capsys, examples, monk
     err = capsys.readouterr().err
     assert code == 2 and "cannot write the output" in err and "No space left" in err
     assert not out.exists() or not list(out.iterdir())
+
+
+@pytest.mark.parametrize("how", ["same name", "hard link", "symlink"])
+def test_the_input_is_never_written_over(tmp_path, examples, capsys, how):
+    """An input that is (or links to) an output path is refused, whatever --force says."""
+    out = tmp_path / "ev"
+    out.mkdir()
+    original = examples / "incoming_inspection.xlsx"
+    if how == "same name":
+        src = out / FINAL[0]
+        shutil.copy(original, src)
+    else:
+        src = tmp_path / "incoming.xlsx"
+        shutil.copy(original, src)
+        (os.link if how == "hard link" else os.symlink)(src, out / FINAL[0])
+    before = (digest(src), src.stat().st_mtime_ns)
+    code = main(["lots", str(src), "--spec", "1%", "--out", str(out), "--force"])
+    err = capsys.readouterr().err
+    assert code == 2 and "is an input file of this run; it is never overwritten" in err
+    assert (digest(src), src.stat().st_mtime_ns) == before
+    assert not (out / FINAL[1]).exists()

@@ -27,11 +27,41 @@ def public_mode(path: Path, directory: bool = False) -> None:
     os.chmod(path, (0o777 if directory else 0o666) & ~_umask())
 
 
+#: (device, inode) of this run's input files: no output is ever written over them, whatever
+#: --out and --force say (``qualbayes lots lot_decisions.xlsx --out . --force``).
+_INPUTS: set[tuple[int, int]] = set()
+
+
+def protect_inputs(*paths) -> None:
+    """Mark input files as never to be replaced (symlinks and hard links included)."""
+    for p in paths:
+        if p is not None:
+            with contextlib.suppress(OSError):
+                st = os.stat(p)
+                _INPUTS.add((st.st_dev, st.st_ino))
+
+
+def release_inputs() -> None:
+    _INPUTS.clear()
+
+
+def _refuse_input(path: Path) -> None:
+    try:
+        st = os.stat(path)
+    except OSError:
+        return
+    if (st.st_dev, st.st_ino) in _INPUTS:
+        raise OptionError(f"--out: {path} is an input file of this run; it is never "
+                          "overwritten. Choose another --out folder")
+
+
 def check_targets(paths: Iterable[Path], force: bool) -> None:
     """Refuse before any work is written if a target exists (and force is off)."""
     paths = [Path(p) for p in paths]
     for folder in dict.fromkeys(p.parent for p in paths):
         _check_folder(folder)
+    for p in paths:
+        _refuse_input(p)
     existing = [str(p) for p in paths if p.exists()]
     if existing and not force:
         raise OutputExistsError(
@@ -54,6 +84,7 @@ def _check_folder(folder: Path) -> None:
 def write_atomic(path: Path, writer: Callable[[Path], None], force: bool = False) -> Path:
     """Call ``writer(tmp_path)`` then rename the temporary file onto ``path``."""
     path = Path(path)
+    _refuse_input(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     if path.exists() and not force:
         raise OutputExistsError(f"refusing to overwrite {path} (give --force to replace)")
@@ -85,6 +116,8 @@ def write_group(files: list[tuple[Path, Callable[[Path], None]]], force: bool = 
     file. Temporary files are removed on any error or interrupt that Python sees.
     """
     targets = [Path(p) for p, _ in files]
+    for path in targets:
+        _refuse_input(path)
     if not force:
         check_targets(targets, force)
     temps: list[str] = []

@@ -543,7 +543,7 @@ def test_no_traceback_from_the_command_line(tmp_path):
 
 FAST = settings(max_examples=300, deadline=None, database=None,
                 suppress_health_check=[HealthCheck.too_slow])
-SLOWER = settings(max_examples=60, deadline=None, database=None,
+SLOWER = settings(max_examples=100, deadline=None, database=None,
                   suppress_health_check=[HealthCheck.too_slow])
 
 ODD_TEXT = st.sampled_from([
@@ -752,7 +752,7 @@ def _good_xlsx_bytes() -> bytes:
     return _GOOD_XLSX[0]
 
 
-@SLOWER
+@FAST
 @given(st.lists(st.tuples(st.floats(0, 1, exclude_max=True), st.integers(1, 255)),
                 min_size=1, max_size=6), st.floats(0.02, 1.0))
 def test_property_damaged_xlsx_reads_or_fails_cleanly(flips, keep):
@@ -774,7 +774,7 @@ def test_property_damaged_xlsx_reads_or_fails_cleanly(flips, keep):
     assert (f["defectives"] <= f["inspected"]).all() and (f["inspected"] >= 1).all()
 
 
-@SLOWER
+@settings(SLOWER, max_examples=150)
 @given(st.lists(st.lists(CELL.map(lambda v: "" if v is None else str(v)), min_size=3,
                          max_size=3), max_size=6))
 def test_property_cli_exits_0_or_2(rows):

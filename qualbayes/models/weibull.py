@@ -42,6 +42,14 @@ Priors (densities on :math:`(b, u)`, Jacobians included):
   N(m, \sigma)`, a range on :math:`R(T) = e^{-H(T)}`; Jacobian 1.
 * scale, ``flat``: improper uniform on :math:`\log\eta` (tests only); Jacobian
   :math:`1/\beta`.
+* scale, ``jeffreys`` (with a flat shape): uniform on :math:`(b, u)`, i.e. density
+  :math:`\propto 1/\eta` on :math:`(\beta, \eta)`, the Jeffreys rule prior of the complete-sample
+  Weibull model (the Fisher information has determinant :math:`\pi^2/(6\eta^2)`).
+* earlier data (power prior, Ibrahim & Chen 2000, Statistical Science 15:46): each term
+  ``(w, stats, label)`` of ``LifePrior.earlier`` multiplies the prior by the earlier data's
+  likelihood to the power :math:`w \in [0, 1]`; its log-likelihood is evaluated at the same
+  :math:`(\beta, \eta)`, i.e. at
+  :math:`u_0 = u + \beta(\log t_{\mathrm{ref},0} - \log t_{\mathrm{ref}})`.
 
 The same functions serve numpy (posterior mode, quadrature, tests) and jax (the sampler):
 the array module is passed as ``xp``.
@@ -79,6 +87,8 @@ class LifePrior:
     scale_kind: str = "hazard"
     scale_args: tuple[float, float, float] = (0.0, 0.0, 1.0)
     scale_text: str = ""
+    #: power-prior terms (weight, GroupStats of earlier data, label); see the module notes
+    earlier: tuple = field(default=(), compare=False, repr=False)
 
     def describe(self, units: str = "") -> list[str]:
         u = f" {units}" if units else ""
@@ -99,9 +109,15 @@ class LifePrior:
             scale = "scale: flat (improper) on log(scale)"
         elif self.scale_kind == "blife":
             scale = f"scale: stated on a B-life, {self.scale_text}{u}"
+        elif self.scale_kind == "jeffreys":
+            scale = ("scale: Jeffreys rule prior, density proportional to 1/scale (with the "
+                     "flat shape: uniform on log shape and log cumulative hazard; improper)")
         else:
             scale = f"scale: stated on reliability, {self.scale_text}"
-        return [shape, scale]
+        earlier = [f"earlier data (power prior): {label}, weight {w:g} - the prior is "
+                   f"multiplied by their likelihood to the power {w:g}"
+                   for w, _, label in self.earlier]
+        return [shape, scale, *earlier]
 
 
 def lognormal_from_range(lo: float, hi: float) -> tuple[float, float]:
@@ -386,9 +402,20 @@ def log_prior(b, u, prior: LifePrior, log_tref, xp=np):
         out = out + _normal_logpdf(beta * (math.log(t) - log_tref) + u, m, sd, xp)
     elif kind == "flat":
         out = out - b
+    elif kind == "jeffreys":
+        pass  # uniform on (b, u)
     else:
         raise ValueError(f"unknown scale prior {kind!r}")
+    for weight, earlier, _ in prior.earlier:
+        out = out + weight * earlier_log_likelihood(b, u, log_tref, earlier, xp)
     return out
+
+
+def earlier_log_likelihood(b, u, log_tref, earlier: GroupStats, xp=np):
+    """Log-likelihood of earlier data at the current (b, u) = (log shape, log H(t_ref)):
+    the earlier data's own reference time gives u0 = u + beta (log t_ref0 - log t_ref)."""
+    u0 = u + xp.exp(b) * (earlier.log_tref - log_tref)
+    return log_likelihood(b, u0, data_arrays(earlier), xp)
 
 
 def log_scale(b, u, log_tref):

@@ -171,7 +171,9 @@ def mtbf_assurance(time: float, goal: float, confidence: float, analysis: GammaP
 def _nb_cdf(r: int, time: float, design: GammaPrior) -> float:
     if r < 0:
         return 0.0
-    return float(special.nbdtr(r, design.a, design.b / (design.b + time)))
+    # P(X <= r) = I_q(a, r + 1), q = b / (b + T): valid for a real shape a (special.nbdtr
+    # would truncate a to an integer)
+    return float(special.betainc(design.a, r + 1, design.b / (design.b + time)))
 
 
 def smallest_mtbf_plan(goal: float, confidence: float, analysis: GammaPrior | None,

@@ -12,9 +12,11 @@ from qualbayes.commands.common import (
     print_text,
     write_report,
 )
+from qualbayes.commands.prior_options import add_prior_options
 
 WORKBOOK = "life_results.xlsx"
 RECORD = "life_results.json"
+FIGURE = "life_prior.png"  # only with --believe, --earlier or --sensitivity
 
 
 def register(sub) -> None:
@@ -42,6 +44,7 @@ def register(sub) -> None:
     p.add_argument("--units", default="", help="time units for display: h, cycles, km, ...")
     p.add_argument("--group", action="append", metavar="NAME",
                    help="analyse only this group (repeat for several)")
+    add_prior_options(p, "life", "life")
     add_output_options(p)
     p.set_defaults(func=run)
 
@@ -61,6 +64,7 @@ def _mission(text: str) -> float:
 
 
 def run(args) -> int:
+    from qualbayes.commands.prior_options import life_prior, life_prior_evidence  # noqa: PLC0415
     from qualbayes.data.life import parse_units, read_life  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
@@ -76,6 +80,7 @@ def run(args) -> int:
     confidence = parse_probability(args.confidence, "--confidence")
     prior = make_prior(args.shape_prior, args.blife_prior, args.reliability_prior)
     units = parse_units(args.units)
+    prior, setup = life_prior(args, prior)  # --believe, --earlier (file read here)
     targets = _targets(args)
     check_targets(targets, args.force)
     check_report(args)
@@ -93,6 +98,7 @@ def run(args) -> int:
     sha = sha256_file(args.file)
     result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
     record = life_record(result, data, sha, command_line(args.argv), versions())
+    record.update(life_prior_evidence(args, result, data, prior, setup))
     written = _write(record, data, targets, args.force) if targets else []
     report_note = write_report(args, record)
     if args.json:
@@ -109,9 +115,12 @@ def run(args) -> int:
 def _targets(args):
     from pathlib import Path  # noqa: PLC0415
 
+    from qualbayes.commands.prior_options import used  # noqa: PLC0415
+
     if not args.out:
         return []
-    return [Path(args.out) / WORKBOOK, Path(args.out) / RECORD]
+    figure = [Path(args.out) / FIGURE] if used(args) else []
+    return [Path(args.out) / WORKBOOK, Path(args.out) / RECORD, *figure]
 
 
 def _write(record, data, targets, force) -> list:
@@ -122,6 +131,11 @@ def _write(record, data, targets, force) -> list:
     from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
 
     figures = draw_all(record, targets[0].parent, force)
+    if len(targets) > 2:  # the prior figure
+        from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
+        from qualbayes.evidence.files import write_atomic  # noqa: PLC0415
+
+        write_atomic(targets[2], figure_file(record), force)
     write_workbook(targets[0], life_sheets(record, data), force=force)
     write_text_atomic(targets[1], dumps(without_draws(record)), force=force)
     return [*targets, *figures]

@@ -11,9 +11,11 @@ from qualbayes.commands.common import (
     print_text,
     write_report,
 )
+from qualbayes.commands.prior_options import add_prior_options
 
 WORKBOOK = "lot_decisions.xlsx"
 RECORD = "lot_decisions.json"
+FIGURE = "lot_prior.png"  # only with --believe, --earlier or --sensitivity
 
 
 def register(sub) -> None:
@@ -24,15 +26,17 @@ def register(sub) -> None:
         formatter_class=argparse.ArgumentDefaultsHelpFormatter)
     add_input_options(p)
     p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
-    p.add_argument("--prior", default="uniform",
+    p.add_argument("--prior", default=None,
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
-                        "lots of each part number, NUTS)")
+                        "lots of each part number, NUTS); default uniform")
+    add_prior_options(p, "p", "lots")
     add_output_options(p)
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
     from qualbayes.acceptance import assess_lots  # noqa: PLC0415
+    from qualbayes.commands.prior_options import lot_prior, lot_prior_evidence  # noqa: PLC0415
     from qualbayes.data.lots import read_lots  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
@@ -41,13 +45,12 @@ def run(args) -> int:
         lots_text,
         without_draws,
     )
-    from qualbayes.models.priors import parse_lot_prior  # noqa: PLC0415
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
 
     spec = parse_rate(args.spec)
     confidence = parse_probability(args.confidence, "--confidence")
-    prior = parse_lot_prior(args.prior)
+    prior, setup = lot_prior(args)
     targets = _targets(args)
     check_targets(targets, args.force)
     check_report(args)
@@ -55,6 +58,7 @@ def run(args) -> int:
     sha = sha256_file(args.file)
     result = assess_lots(data, spec, confidence, prior, seed=args.seed)
     record = lots_record(result, data, sha, command_line(args.argv), versions())
+    record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
     if targets:
         _write(record, data, targets, args.force)
     report_note = write_report(args, record)
@@ -72,9 +76,12 @@ def run(args) -> int:
 def _targets(args):
     from pathlib import Path  # noqa: PLC0415
 
+    from qualbayes.commands.prior_options import used  # noqa: PLC0415
+
     if not args.out:
         return []
-    return [Path(args.out) / WORKBOOK, Path(args.out) / RECORD]
+    figure = [Path(args.out) / FIGURE] if used(args) else []
+    return [Path(args.out) / WORKBOOK, Path(args.out) / RECORD, *figure]
 
 
 def _write(record, data, targets, force) -> None:
@@ -87,5 +94,11 @@ def _write(record, data, targets, force) -> None:
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
     text = dumps(without_draws(record))
+    figure = []
+    if len(targets) > 2:
+        from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
+
+        figure = [(targets[2], figure_file(record))]
     write_group([(targets[0], workbook_writer(lots_sheets(record, data))),
-                 (targets[1], lambda p: p.write_text(text, encoding="utf-8"))], force=force)
+                 (targets[1], lambda p: p.write_text(text, encoding="utf-8")), *figure],
+                force=force)

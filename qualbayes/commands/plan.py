@@ -15,6 +15,7 @@ import re
 from pathlib import Path
 
 from qualbayes.commands.common import check_report, write_report
+from qualbayes.commands.prior_options import add_prior_options
 from qualbayes.errors import OptionError
 
 RECORD = "plan_{kind}.json"
@@ -49,6 +50,7 @@ def register(sub) -> None:
     _assurance_option(a)
     a.add_argument("--max-units", default="100000",
                    help="largest test the assurance search considers")
+    add_prior_options(a, "R", "attribute")
     _output_options(a)
     a.set_defaults(func=run)
 
@@ -90,6 +92,7 @@ def register(sub) -> None:
                    help="design prior on the failure rate for the assurance: gamma:A,B or "
                         "same (the analysis prior; the default when there is one)")
     _assurance_option(m)
+    add_prior_options(m, "rate", "mtbf")
     _output_options(m)
     m.set_defaults(func=run)
 
@@ -257,6 +260,12 @@ def run(args) -> int:
         history = learn_prior(build["history_file"], part=args.part, sheet=args.sheet,
                               columns=args.columns, seed=args.seed)
     record = build["make"](history)
+    if "prior_setup" in build:
+        from qualbayes.commands.prior_options import plan_prior_evidence  # noqa: PLC0415
+
+        analysis = build["analysis"]
+        analysis = history.prior if analysis == "history" and history else analysis
+        record.update(plan_prior_evidence(args, kind, record, build["prior_setup"], analysis))
     _finish(record, args, targets)
     return 0
 
@@ -287,6 +296,10 @@ def _attribute(args) -> dict:
     target = _probability(args.assurance, "--assurance")
     max_units = parse_whole(args.max_units, "--max-units", least=1)
     analysis = _history_use(args, args.reliability_prior, "--reliability-prior")
+    from qualbayes.commands.prior_options import attribute_prior  # noqa: PLC0415
+
+    setup = attribute_prior(args, analysis)  # --believe / --earlier
+    analysis = setup.prior if setup is not None else analysis
     design = "same" if args.design_prior is None else parse_reliability_prior(
         args.design_prior, "--design-prior")
     if design == "none":
@@ -305,7 +318,8 @@ def _attribute(args) -> dict:
 
     has_design = d is not None or a is not None
     return {"make": make, "history_file": args.history,
-            "curves": ["oc"] + (["assurance"] if has_design else [])}
+            "curves": ["oc"] + (["assurance"] if has_design else []),
+            "prior_setup": setup, "analysis": a}
 
 
 def _life(args) -> dict:
@@ -354,6 +368,10 @@ def _mtbf(args) -> dict:
                                                                 "--rate-prior")
     if analysis == "same":
         raise OptionError("--rate-prior same: 'same' only applies to --design-prior")
+    from qualbayes.commands.prior_options import mtbf_prior  # noqa: PLC0415
+
+    setup = mtbf_prior(args, analysis)  # --believe / --earlier
+    analysis = setup.prior if setup is not None else analysis
     design = None if args.design_prior is None else parse_gamma(args.design_prior,
                                                                 "--design-prior")
     if design == "same":
@@ -365,7 +383,8 @@ def _mtbf(args) -> dict:
                           "(or a --rate-prior to use as one)")
     has_design = design is not None or analysis is not None
     return {"make": lambda _h: plan_mtbf(goal, c, failures, analysis, design, target),
-            "curves": ["oc"] + (["assurance"] if has_design else [])}
+            "curves": ["oc"] + (["assurance"] if has_design else []),
+            "prior_setup": setup, "analysis": analysis}
 
 
 def _sampling(args) -> dict:
@@ -411,6 +430,10 @@ def _targets(args, kind: str, curves: list[str]) -> dict[str, Path]:
     t = {"record": out / RECORD.format(kind=kind), "workbook": out / WORKBOOK.format(kind=kind)}
     for c in curves:
         t[c] = out / FIGURE.format(kind=kind, curve=c)
+    from qualbayes.commands.prior_options import used  # noqa: PLC0415
+
+    if used(args):
+        t["prior"] = out / FIGURE.format(kind=kind, curve="prior")
     return t
 
 
@@ -451,6 +474,10 @@ def _write(record: dict, targets: dict[str, Path], force: bool) -> list[Path]:
         path = targets[name]
         write_atomic(path, lambda p, png=png: p.write_bytes(png), force)
         written.append(path)
+    if "prior" in targets:
+        from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
+
+        written.append(write_atomic(targets["prior"], figure_file(record), force))
     written.append(write_workbook(targets["workbook"], sheets, force=force))
     written.append(write_text_atomic(targets["record"], text, force=force))
     return written

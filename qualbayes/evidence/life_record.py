@@ -11,6 +11,7 @@ import pandas as pd
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.life import LifeTable
 from qualbayes.evidence.jsonout import plain
+from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
 from qualbayes.life_analysis import LifeAssessment
@@ -103,6 +104,8 @@ def life_text(record: dict) -> str:
             detail.append(f"[{g['group']}] {n}")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
     tail = [f"decisions: {counts}", *record["notes"], CAUTION]
+    head += prior_lines(record)
+    detail += sensitivity_lines(record)
     return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrl"), "", *detail, "",
                       *tail])
 
@@ -183,5 +186,5 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
     prov += [[f"column {k}", v] for k, v in record["input"]["columns"].items()]
     prov += [[f"version {k}", v] for k, v in record["versions"].items()]
     sheets.update({"Model and prior": model, "Diagnostics": diag, "Cautions": cautions,
-                   "Provenance": prov})
+                   "Provenance": prov, **prior_sheets(record)})
     return sheets

@@ -6,6 +6,7 @@ import tempfile
 from pathlib import Path
 
 from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.prior_record import prior_sections
 from qualbayes.evidence.report_common import (
     caution_section,
     diagnostics_section,
@@ -97,6 +98,7 @@ def build(record: dict) -> Report:
                                          "; ".join(record["prior"])
                                          if isinstance(record["prior"], list)
                                          else str(record["prior"])), "mono")]),
+        *prior_sections(record),
         diagnostics_section(record_d),
         Section("Results", [results, intervals]),
         Section("Figures", (_figures(record) + _rank_figures(record)) or [

@@ -12,6 +12,7 @@ from qualbayes.acceptance import LotAssessment
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.lots import LotTable
 from qualbayes.evidence.jsonout import plain, without_draws  # noqa: F401 - re-export
+from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
 
@@ -102,7 +103,9 @@ def lots_text(record: dict) -> str:
                         f"P(p<=spec) {nl['prob_within_spec']:.4f}")
     tail += record["notes"]
     tail.append(CAUTION)
-    return "\n".join([*head, "", text_table(headers, rows, "llrrrrrrll"), "", *tail])
+    head += prior_lines(record)
+    table = [text_table(headers, rows, "llrrrrrrll"), *sensitivity_lines(record)]
+    return "\n".join([*head, "", *table, "", *tail])
 
 
 def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
@@ -149,4 +152,5 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
     prov += [[f"column {k}", v] for k, v in record["input"]["columns"].items()]
     prov += [[f"version {k}", v] for k, v in record["versions"].items()]
     return {"Decisions": decisions, "Inputs as read": inputs, "Model and prior": model,
-            "Diagnostics": diag, "Cautions": cautions, "Provenance": prov}
+            "Diagnostics": diag, "Cautions": cautions, "Provenance": prov,
+            **prior_sheets(record)}

@@ -78,7 +78,9 @@ def build(record: dict) -> Report:
                                      "distribution.", f"fig-ranks-{k}"))
     if not figures.blocks:
         figures.blocks.append(Paragraph("No figures: no lot has a result."))
-    sections = [summary, question, inputs_section(record), model,
+    from qualbayes.evidence.prior_record import prior_sections  # noqa: PLC0415
+
+    sections = [summary, question, inputs_section(record), model, *prior_sections(record),
                 diagnostics_section(record), results, figures, caution_section(record),
                 *reproduce_sections(record)]
     return Report("Lot acceptance evidence",

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 
 
@@ -20,6 +21,7 @@ def plan_text(record: dict) -> str:
                      f"{gate.get('divergences')})")
     for t in record["tables"]:
         lines += ["", t["title"] + ":", text_table(t["columns"], t["rows"])]
+    lines += prior_lines(record) + sensitivity_lines(record)
     lines += ["", "assumptions:"] + [f"  - {a}" for a in record["assumptions"]]
     if record["notes"]:
         lines += ["notes:"] + [f"  - {n}" for n in record["notes"]]
@@ -68,4 +70,6 @@ def plan_sheets(record: dict) -> dict:
                  ["SHA-256", history.get("sha256")], ["part", history.get("part")]]
     prov += [[f"version {k}", v] for k, v in record.get("versions", {}).items()]
     sheets[_sheet_name("Provenance", used)] = prov
+    for name, sheet in prior_sheets(record).items():
+        sheets[_sheet_name(name, used)] = sheet
     return sheets

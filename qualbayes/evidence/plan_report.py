@@ -46,6 +46,9 @@ def build(record: dict) -> Report:
             "No data file: the plan rests on the stated goal, confidence and priors above.")]))
     sections.append(Section("Model and priors", [Paragraph(record["method"], "mono")] + (
         [Table(["prior", "value"], _kv(record["priors"]))] if record["priors"] else [])))
+    from qualbayes.evidence.prior_record import prior_sections  # noqa: PLC0415
+
+    sections += prior_sections(record)
     sections.append(_diagnostics(record))
     sections.append(Section("Results", tables[1:] if len(tables) > 1 else [
         Paragraph("The summary table above holds the whole result.")]))

@@ -67,28 +67,40 @@ def _elicited_panel(ax, e: dict) -> None:
     ax.legend(loc="upper right")
 
 
-def _compared_panel(ax, sens: dict) -> bool:
+def _compared_panel(ax, sens: dict, limit: float | None = None) -> bool:
+    """The proper Beta or gamma priors of the set on a log axis, as densities of ln X
+    (x f(x)), so that a flat and a sharp prior can be compared on one plot."""
     drawable = [p for p in sens["priors"] if p["family"] in ("beta", "gamma")
                 and all(v > 0 for v in p["params"].values())]
     if not drawable:
         return False
     family = drawable[0]["family"]
     drawable = [p for p in drawable if p["family"] == family]
-    grid = _grid(family, [p["params"] for p in drawable], [])
+    lo = min(float(quantile(family, p["params"], 0.001)) for p in drawable)
+    hi = max(float(quantile(family, p["params"], 0.999)) for p in drawable)
+    lo = max(lo, hi * 1e-8, 1e-300)
+    grid = np.geomspace(lo, min(hi, 1 - 1e-9) if family == "beta" else hi, 800)
     k, label = _scale("p" if family == "beta" else "failure rate")
     top = 0.0
     for j, p in enumerate(drawable):
-        y = density(family, p["params"], grid)
-        top = max(top, float(np.nanmax(np.where(np.isfinite(y), y, np.nan))))
-        ax.plot(grid * k, y, color=INK if j % 2 == 0 else MID,
+        # each prior over its central 99% (densities of ln X are unbounded at the ends for
+        # shapes below 1)
+        a, b = (float(quantile(family, p["params"], q)) for q in (0.005, 0.995))
+        x = grid[(grid >= a) & (grid <= b)]
+        y = x * density(family, p["params"], x)
+        top = max(top, float(np.max(y))) if y.size else top
+        ax.plot(x * k, y, color=INK if j % 2 == 0 else MID,
                 linestyle=_STYLES[j % len(_STYLES)], label=p["label"])
+    if limit is not None:
+        ax.axvline(limit * k, color=INK, linewidth=0.9, label="limit")
     skipped = [p["label"] for p in sens["priors"] if p not in drawable]
-    ax.set_ylim(0, 1.1 * top if top > 0 else 1)
-    ax.set_xlabel(label)
+    ax.set_xscale("log")
+    ax.set_ylim(0, 1.1 * top if top > 0 else 1.0)
+    ax.set_xlabel(label + ", log scale")
     ax.set_yticks([])
-    ax.set_title("priors of the sensitivity set" + (f" (not drawn: {', '.join(skipped)})"
-                                                    if skipped else ""))
-    ax.legend(loc="upper right", fontsize=6)
+    ax.set_title("priors of the sensitivity set, as densities of log " + label.split(" ")[0]
+                 + (f" (not drawn: {', '.join(skipped)})" if skipped else ""))
+    ax.legend(loc="upper left", fontsize=6)
     return True
 
 
@@ -108,7 +120,9 @@ def prior_figure(record: dict):
         _elicited_panel(ax, e)
     drawn = bool(elicited)
     if sens:
-        drawn = _compared_panel(axes[len(elicited)], sens) or drawn
+        limit = (record.get("question") or {}).get("spec") if record.get("kind") == "lots" \
+            else None
+        drawn = _compared_panel(axes[len(elicited)], sens, limit) or drawn
         if not drawn or len(axes) > len(elicited):
             if not axes[len(elicited)].lines:
                 axes[len(elicited)].axis("off")

@@ -13,6 +13,7 @@ import numpy as np
 from qualbayes.gate import GateResult, diagnose
 
 _CONFIGURED = False
+HOST_DEVICES = 4  # the default number of chains
 
 
 def setup_jax() -> None:
@@ -21,6 +22,14 @@ def setup_jax() -> None:
     global _CONFIGURED
     if _CONFIGURED:
         return
+    if "jax" not in sys.modules:
+        # one CPU "device" per chain: chains then run as a pmap, which jax traces once,
+        # instead of a vmap of NUTS's while loops, whose batching costs seconds of tracing
+        # per run (measured: 1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap)
+        flags = os.environ.get("XLA_FLAGS", "")
+        if "xla_force_host_platform_device_count" not in flags:
+            os.environ["XLA_FLAGS"] = (
+                f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}").strip()
     import jax  # noqa: PLC0415
 
     jax.config.update("jax_enable_x64", True)
@@ -86,11 +95,19 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
         attempt_settings = attempt_settings.harder()
 
 
+def chain_method(num_chains: int) -> str:
+    """``parallel`` (pmap over CPU devices) when there is a device per chain, else
+    ``vectorized``; both give the same draws for the same seed."""
+    import jax  # noqa: PLC0415
+
+    return "parallel" if jax.local_device_count() >= num_chains else "vectorized"
+
+
 def _settings_dict(s: SamplerSettings) -> dict:
     return {"sampler": "NUTS (numpyro)", "chains": s.num_chains, "warmup": s.num_warmup,
             "draws_per_chain": s.num_samples, "target_accept": s.target_accept,
             "max_tree_depth": s.max_tree_depth, "seed": s.seed,
-            "chain_method": "vectorized"}
+            "chain_method": chain_method(s.num_chains)}
 
 
 def _sample(model, model_args, s: SamplerSettings, init_params):
@@ -99,7 +116,7 @@ def _sample(model, model_args, s: SamplerSettings, init_params):
 
     kernel = NUTS(model, target_accept_prob=s.target_accept, max_tree_depth=s.max_tree_depth)
     mcmc = MCMC(kernel, num_warmup=s.num_warmup, num_samples=s.num_samples,
-                num_chains=s.num_chains, chain_method="vectorized",
+                num_chains=s.num_chains, chain_method=chain_method(s.num_chains),
                 progress_bar=show_progress(), jit_model_args=True)
     mcmc.run(jax.random.PRNGKey(s.seed), *model_args, init_params=init_params,
              extra_fields=("diverging",))

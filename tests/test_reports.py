@@ -283,3 +283,13 @@ def test_life_report_has_summary_figures_and_rebuilds(tmp_path, capsys, examples
     assert main(["report", str(out / "run.json"), "--out", str(rebuilt)]) == 0
     assert parse((rebuilt / "report.html").read_text()).tables == page.tables
     capsys.readouterr()
+
+
+def test_rebuild_never_replaces_the_folder_holding_its_own_record(tmp_path, capsys):
+    src = write_csv(tmp_path / "in.csv", ["Lot", "Inspected", "Defects"], [["A", 125, 0]])
+    out = tmp_path / "rep"
+    assert main(["lots", str(src), "--spec", "2%", "--report", str(out)]) == 0
+    before = (out / "run.json").read_bytes()
+    assert main(["report", str(out / "run.json"), "--out", str(out), "--force"]) == 2
+    assert "holds the run record" in capsys.readouterr().err
+    assert (out / "run.json").read_bytes() == before

@@ -29,6 +29,13 @@ def run(args) -> int:
         raise InputError(f"not a run record (invalid JSON: {err})", file=args.record) from None
     if not isinstance(record, dict) or record.get("kind") not in KINDS:
         raise InputError("not a qualbayes run record (no known 'kind')", file=args.record)
+    from pathlib import Path  # noqa: PLC0415
+
+    source = Path(args.record).resolve()
+    if source.parent == Path(args.out).resolve() or Path(args.out).resolve() in source.parents:
+        raise InputError("the report folder holds the run record being rebuilt; choose "
+                         "another --out folder (the record is never replaced)",
+                         file=args.record)
     info = write_report_folder(args.out, record, force=args.force)
     print_text(f"report rebuilt in {info['folder']} ({info['pages']} PDF pages, "
                f"{info['figures']} figures)")

@@ -67,7 +67,7 @@ class RatePrior:
         """Normalised posterior component weights after x failures in n units."""
         if self.components == 1:
             return np.ones(1)
-        logw = special.betaln(self.a + x, self.b + n - x) - special.betaln(self.a, self.b)
+        logw = special.betaln(self.a + x, self.b + (n - x)) - special.betaln(self.a, self.b)
         w = np.exp(logw - logw.max())
         return w / w.sum()
 
@@ -78,12 +78,12 @@ class RatePrior:
 
     def prob_at_most(self, p_star: float, n: int = 0, x: int = 0) -> float:
         """P(p <= p_star | x failures among n units)."""
-        cdf = special.betainc(self.a + x, self.b + n - x, p_star)
+        cdf = special.betainc(self.a + x, self.b + (n - x), p_star)
         return float(np.dot(self.weights(n, x), cdf))
 
     def quantile(self, q: float, n: int = 0, x: int = 0) -> float:
         """The q-quantile of p after x failures among n units."""
-        a, b, w = self.a + x, self.b + n - x, self.weights(n, x)
+        a, b, w = self.a + x, self.b + (n - x), self.weights(n, x)
         if self.components == 1:
             return float(special.betaincinv(a[0], b[0], q))
         q_each = special.betaincinv(a, b, q)
@@ -95,7 +95,7 @@ class RatePrior:
             xtol=1e-14, rtol=1e-12))
 
     def mean(self, n: int = 0, x: int = 0) -> float:
-        a, b = self.a + x, self.b + n - x
+        a, b = self.a + x, self.b + (n - x)
         return float(np.dot(self.weights(n, x), a / (a + b)))
 
     # ------------------------------------------------------------------ simulation

@@ -138,7 +138,7 @@ def accepted_lot_quality(n: int, c: int, prior: RatePrior, spec: float,
     x = np.arange(c + 1)[:, None]
     a, b = prior.a[None, :], prior.b[None, :]
     pmf = np.exp(_bb_logpmf(x, n, a, b))  # (c+1, D)
-    within = special.betainc(a + x, b + n - x, spec)  # P(p <= s | x), per component
+    within = special.betainc(a + x, b + (n - x), spec)  # P(p <= s | x), per component
     p_acc = float(pmf.sum(axis=0).mean())
     prior_within = float(special.betainc(prior.a, prior.b, spec).mean())
     joint = float((pmf * within).sum(axis=0).mean())

@@ -59,3 +59,19 @@ def caution_line() -> str:
 
 def out_path(args, filename: str) -> Path | None:
     return Path(args.out) / filename if getattr(args, "out", None) else None
+
+
+def emit(args, record: dict, text: str, written: list) -> None:
+    """Finish a run: write the report if asked, then print the JSON document (without the
+    posterior draws) or the text with the files written."""
+    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
+
+    report_note = write_report(args, record)
+    if args.json:
+        print_text(dumps(without_draws(record)))
+        return
+    print_text(text)
+    if written:
+        print_text(f"evidence written: {', '.join(str(t) for t in written)}")
+    if report_note:
+        print_text(report_note)

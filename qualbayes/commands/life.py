@@ -9,8 +9,7 @@ from qualbayes.commands.common import (
     add_input_options,
     add_output_options,
     check_report,
-    print_text,
-    write_report,
+    emit,
 )
 from qualbayes.commands.prior_options import add_prior_options
 
@@ -67,7 +66,6 @@ def run(args) -> int:
     from qualbayes.commands.prior_options import life_prior, life_prior_evidence  # noqa: PLC0415
     from qualbayes.data.life import parse_units, read_life  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
     from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
     from qualbayes.evidence.life_record import life_record, life_text  # noqa: PLC0415
     from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
@@ -100,15 +98,7 @@ def run(args) -> int:
     record = life_record(result, data, sha, command_line(args.argv), versions())
     record.update(life_prior_evidence(args, result, data, prior, setup))
     written = _write(record, data, targets, args.force) if targets else []
-    report_note = write_report(args, record)
-    if args.json:
-        print_text(dumps(without_draws(record)))
-    else:
-        print_text(life_text(record))
-        if written:
-            print_text(f"evidence written: {', '.join(str(t) for t in written)}")
-        if report_note:
-            print_text(report_note)
+    emit(args, record, "" if args.json else life_text(record), written)
     return 0
 
 

@@ -8,8 +8,7 @@ from qualbayes.commands.common import (
     add_input_options,
     add_output_options,
     check_report,
-    print_text,
-    write_report,
+    emit,
 )
 from qualbayes.commands.prior_options import add_prior_options
 
@@ -39,11 +38,9 @@ def run(args) -> int:
     from qualbayes.commands.prior_options import lot_prior, lot_prior_evidence  # noqa: PLC0415
     from qualbayes.data.lots import read_lots  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
     from qualbayes.evidence.lots_record import (  # noqa: PLC0415
         lots_record,
         lots_text,
-        without_draws,
     )
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
@@ -61,15 +58,7 @@ def run(args) -> int:
     record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
     if targets:
         _write(record, data, targets, args.force)
-    report_note = write_report(args, record)
-    if args.json:
-        print_text(dumps(without_draws(record)))
-    else:
-        print_text(lots_text(record))
-        if targets:
-            print_text(f"evidence written: {', '.join(str(t) for t in targets)}")
-        if report_note:
-            print_text(report_note)
+    emit(args, record, "" if args.json else lots_text(record), targets)
     return 0
 
 

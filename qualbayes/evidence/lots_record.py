@@ -62,7 +62,10 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
 
 
 def _pct(v):
-    return None if v is None else f"{100 * v:.3g}%"
+    """A rate as a percentage for people; below 1 ppm it is shown as '<0.0001%'."""
+    if v is None:
+        return None
+    return "<0.0001%" if v < 1e-6 else f"{100 * v:.3g}%"
 
 
 def lots_text(record: dict) -> str:

@@ -92,7 +92,7 @@ def lots_text(record: dict) -> str:
         lo, hi = lot["interval"]
         rows.append([lot["lot"], lot["part"], lot["inspected"], lot["defectives"],
                      _pct(lot["posterior_mean"]),
-                     None if lo is None else f"{100 * lo:.3g}% - {100 * hi:.3g}%",
+                     None if lo is None else f"{_pct(lo)} - {_pct(hi)}",
                      _pct(lot["upper_bound"]),
                      None if lot["prob_within_spec"] is None else
                      f"{lot['prob_within_spec']:.4f}",

@@ -75,3 +75,16 @@ def emit(args, record: dict, text: str, written: list) -> None:
         print_text(f"evidence written: {', '.join(str(t) for t in written)}")
     if report_note:
         print_text(report_note)
+
+
+def out_targets(args, workbook: str, record: str, prior_figure: str) -> list:
+    """Files ``--out DIR`` will hold: the workbook, the run record, and the prior figure
+    when a prior option was used."""
+    from pathlib import Path  # noqa: PLC0415
+
+    from qualbayes.commands.prior_options import used  # noqa: PLC0415
+
+    if not args.out:
+        return []
+    figure = [Path(args.out) / prior_figure] if used(args) else []
+    return [Path(args.out) / workbook, Path(args.out) / record, *figure]

@@ -9,6 +9,7 @@ from qualbayes.commands.common import (
     add_output_options,
     check_report,
     emit,
+    out_targets,
 )
 from qualbayes.commands.prior_options import add_prior_options
 
@@ -63,14 +64,7 @@ def run(args) -> int:
 
 
 def _targets(args):
-    from pathlib import Path  # noqa: PLC0415
-
-    from qualbayes.commands.prior_options import used  # noqa: PLC0415
-
-    if not args.out:
-        return []
-    figure = [Path(args.out) / FIGURE] if used(args) else []
-    return [Path(args.out) / WORKBOOK, Path(args.out) / RECORD, *figure]
+    return out_targets(args, WORKBOOK, RECORD, FIGURE)
 
 
 def _write(record, data, targets, force) -> None:

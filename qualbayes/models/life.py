@@ -123,31 +123,43 @@ def pad_groups(stats: list[GroupStats], modes: list[Mode] | None = None) -> tupl
     return data, np.array([st.log_tref for st in stats])
 
 
-def fit_life(stats: list[GroupStats], modes: list[Mode], prior: LifePrior,
-             settings: SamplerSettings, names: list[str], mission: float) -> Fit:
-    """Sample every group at once. Draws come back as (chain, draw, group) arrays of
-    ``log_shape`` and ``log_scale``; the gate checks log shape, log scale and R(mission)
-    of every group (labelled ``name[group]``)."""
-    data, log_tref = pad_groups(stats, modes)
-    center = np.array([[m.b, m.u] for m in modes])
-    chol = np.stack([m.chol() for m in modes])
+def life_gate(names: list[str], mission: float):
+    """The gate's quantities for groups ``names``: log shape, log scale and R(mission) of
+    each group, labelled ``name[group]``."""
     log_t = float(np.log(mission))
 
     def gate_on(draws: dict) -> dict:
         out = {}
         for j, name in enumerate(names):
-            b = draws["log_shape"][:, :, j]
-            log_eta = draws["log_scale"][:, :, j]
+            b, log_eta = draws["log_shape"][:, :, j], draws["log_scale"][:, :, j]
             out[f"log_shape[{name}]"] = b
             out[f"log_scale[{name}]"] = log_eta
             out[f"R_mission[{name}]"] = np.exp(-np.exp(np.exp(b) * (log_t - log_eta)))
         return out
 
+    return gate_on
+
+
+def sampler_inputs(stats: list[GroupStats], modes: list[Mode], settings: SamplerSettings):
+    """Padded data, reference times, the whitening (mode centre and Laplace Cholesky factor)
+    and the chains' starting points, as jax arrays: (args, init_params)."""
+    data, log_tref = pad_groups(stats, modes)
+    center = np.array([[m.b, m.u] for m in modes])
+    chol = np.stack([m.chol() for m in modes])
     rng = np.random.default_rng(settings.seed)
-    init = {"z": rng.uniform(-1.0, 1.0, size=(settings.num_chains, len(stats), 2))}
+    init = {"z": jnp.asarray(rng.uniform(-1.0, 1.0, size=(settings.num_chains, len(stats), 2)))}
     args = ({k: jnp.asarray(v) for k, v in data.items()}, jnp.asarray(log_tref),
             jnp.asarray(center), jnp.asarray(chol))
-    fit = run_nuts(partial(weibull_life_model, prior=prior), args, settings, gate_on=gate_on,
-                   init_params={"z": jnp.asarray(init["z"])})
+    return args, init
+
+
+def fit_life(stats: list[GroupStats], modes: list[Mode], prior: LifePrior,
+             settings: SamplerSettings, names: list[str], mission: float) -> Fit:
+    """Sample every group at once. Draws come back as (chain, draw, group) arrays of
+    ``log_shape`` and ``log_scale``; the gate checks log shape, log scale and R(mission)
+    of every group (labelled ``name[group]``)."""
+    args, init = sampler_inputs(stats, modes, settings)
+    fit = run_nuts(partial(weibull_life_model, prior=prior), args, settings,
+                   gate_on=life_gate(names, mission), init_params=init)
     fit.draws = {"log_shape": fit.draws["log_shape"], "log_scale": fit.draws["log_scale"]}
     return fit

@@ -251,32 +251,18 @@ def numpy_prior(row: LifeRow, extra: dict) -> LifePrior:
 def run_row(row: LifeRow, stats: list, names: list[str], mission: float, extra: dict,
             settings: SamplerSettings, structure) -> dict:
     """One NUTS run of the given groups under one prior: name -> (R(mission) draws, gate)."""
-    from qualbayes.models.life import pad_groups  # noqa: PLC0415
+    from qualbayes.models.life import life_gate, sampler_inputs  # noqa: PLC0415
 
     prior_np = numpy_prior(row, extra)
     modes = [posterior_mode(st, prior_np) for st in stats]
-    data, log_tref = pad_groups(stats, modes)
-    center = np.array([[m.b, m.u] for m in modes])
-    chol = np.stack([m.chol() for m in modes])
+    base_args, init = sampler_inputs(stats, modes, settings)
     log_t = float(np.log(mission))
-
-    def gate_on(draws: dict) -> dict:
-        out = {}
-        for j, name in enumerate(names):
-            b, log_eta = draws["log_shape"][:, :, j], draws["log_scale"][:, :, j]
-            out[f"log_shape[{name}]"] = b
-            out[f"log_scale[{name}]"] = log_eta
-            out[f"R_mission[{name}]"] = np.exp(-np.exp(np.exp(b) * (log_t - log_eta)))
-        return out
-
     extra_args = {"w": jnp.asarray([row.w_earlier, row.w_sceptic]), "data": extra["data"],
                   "log_tref": extra["log_tref"]}
     hyper = {k: jnp.asarray(v) for k, v in hyper_of(row.prior, structure).items()}
-    rng = np.random.default_rng(settings.seed)
-    init = {"z": jnp.asarray(rng.uniform(-1.0, 1.0, size=(settings.num_chains, len(stats), 2)))}
-    args = ({k: jnp.asarray(v) for k, v in data.items()}, jnp.asarray(log_tref),
-            jnp.asarray(center), jnp.asarray(chol), hyper, extra_args)
-    fit = run_nuts(_model(structure), args, settings, gate_on=gate_on, init_params=init)
+    args = (*base_args, hyper, extra_args)
+    fit = run_nuts(_model(structure), args, settings, gate_on=life_gate(names, mission),
+                   init_params=init)
     out = {}
     for j, name in enumerate(names):
         b = fit.draws["log_shape"][:, :, j].reshape(-1)

@@ -218,3 +218,37 @@ def test_life_bad_statements_exit_2_before_sampling(capsys):
     assert main(argv) == 2 and "not both" in capsys.readouterr().err
     argv[-4:] = ["--believe", "p<1%@90%"]
     assert main(argv) == 2 and "does not apply" in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------------- sampling plans
+
+SAMPLING = ["plan", "sampling", "--aql", "0.5%", "--ltpd", "3%"]
+
+
+def test_plan_sampling_with_statements_earlier_lots_and_sensitivity(tmp_path, capsys):
+    rec = _json([*SAMPLING, "--believe", "p<1%@90%", "--earlier", "3/800", "--earlier-weight",
+                 "0.5", "--spec", "2%", "--confidence", "0.95", "--sensitivity"], capsys)
+    assert rec["earlier_data"]["weight"] == 0.5
+    assert rec["inputs"]["level"] == 0.95 and rec["inputs"]["limit"] == 0.02
+    acc = next(t for t in rec["tables"] if t["name"] == "Accepted lots")["rows"][0]
+    first = rec["sensitivity"]["items"][0]["results"][0]
+    assert first["prob"] == pytest.approx(acc[3], rel=1e-12) and first["decision"] == acc[-1]
+    assert "0.95" in rec["sensitivity"]["question"]
+    out = tmp_path / "ev"
+    assert main([*SAMPLING, "--sensitivity", "--out", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "Prior sensitivity" in text and "protected under" in text
+    assert (out / "plan_sampling_prior.png").exists()
+    assert "Prior sensitivity" in load_workbook(out / "plan_sampling.xlsx",
+                                                read_only=True).sheetnames
+
+
+@pytest.mark.parametrize("argv,words", [
+    ([*SAMPLING, "--believe", "p<1%@90%", "--lot-quality-prior", "beta:1,100"], "not both"),
+    ([*SAMPLING, "--believe", "R>0.9@90%"], "does not apply"),
+    ([*SAMPLING, "--confidence", "0.9"], "Bayesian view"),
+    ([*SAMPLING, "--earlier", "3/800"], "--earlier-weight"),
+])
+def test_plan_sampling_bad_prior_options_exit_2(capsys, argv, words):
+    assert main(argv) == 2
+    assert words in capsys.readouterr().err

@@ -298,3 +298,81 @@ def test_a_life_alternative_that_fails_its_gate_says_so(tmp_path):
     res = sec["items"][0]["results"][1]
     assert res["decision"] == "not-converged" and res["prob"] is None
     assert "convergence gate failed" in res["reason"]
+
+
+# --------------------------------------------------------------------------- sampling plans
+
+def _accepted_within_reference(n, c, a, b, s):
+    """P(p <= s | X <= c) by scipy.stats directly: X ~ betabinom(n, a, b) and, given x,
+    p ~ beta(a + x, b + n - x) (Bayes' rule written out; scipy.stats as the reference)."""
+    x = np.arange(c + 1)
+    pmf = stats.betabinom.pmf(x, n, a, b)
+    return float((pmf * stats.beta.cdf(s, a + x, b + n - x)).sum() / pmf.sum())
+
+
+def test_sampling_rows_equal_separate_runs_and_scipy():
+    from qualbayes.planning.plans import plan_sampling
+    from qualbayes.planning.priors import RatePrior
+    from qualbayes.priors.sensitivity import sampling_sensitivity
+
+    stated = elicit(parse_statements(["p<1%@90%"], ("p",)))
+    classical = PriorRow("as-run", "as run (plan alone)", "classical", {}, "none", "",
+                         "the plan alone")
+    rows = beta_rows(classical, stated, (1.0, 1.0, "uniform"), EarlierCounts(3, 800, "t"))
+    for lot_size, spec in ((None, 0.02), (None, None), (500, 0.02)):
+        base = plan_sampling(0.005, 0.05, 0.03, 0.10, lot_size, spec=spec)
+        inp = base["inputs"]
+        n, c, limit, level = inp["n"], inp["c"], inp["limit"], inp["level"]
+        assert limit == (spec or 0.03) and level == pytest.approx(0.9)
+        sec = sampling_sensitivity(n, c, lot_size, limit, level, rows)
+        res = sec["items"][0]["results"]
+        assert res[0]["decision"] == "not usable" and res[0]["prob"] is None
+        for k, row in enumerate(rows[1:], start=1):  # each Beta row: a separate run
+            alone = plan_sampling(0.005, 0.05, 0.03, 0.10, lot_size, spec=spec,
+                                  prior=RatePrior.beta(row.params["a"], row.params["b"]))
+            acc = next(t for t in alone["tables"] if t["name"] == "Accepted lots")
+            first = acc["rows"][0]
+            assert first[0] == limit
+            key = first[-2] if lot_size is not None else first[3]
+            assert res[k]["prob"] == key, row.label
+            assert res[k]["decision"] == first[-1], row.label
+            assert res[k]["prob_accept"] == first[2]
+            if lot_size is None:
+                ref = _accepted_within_reference(n, c, row.params["a"], row.params["b"], limit)
+                assert res[k]["prob"] == pytest.approx(ref, rel=1e-10), row.label
+
+
+def test_sampling_zero_acceptance_number_closed_form():
+    """c = 0 and a uniform prior: accepted means x = 0, so p | accepted ~ Beta(1, n + 1) and
+    P(p <= s | accepted) = 1 - (1 - s)^(n + 1) (conjugate closed form)."""
+    from qualbayes.priors.sensitivity import sampling_sensitivity
+
+    rows = beta_rows(None)
+    sec = sampling_sensitivity(77, 0, None, 0.03, 0.9, rows)
+    uni = sec["items"][0]["results"][0]
+    assert rows[0].key == "uniform"
+    assert uni["prob"] == pytest.approx(1 - 0.97**78, rel=1e-12)
+    assert uni["prob_accept"] == pytest.approx(1 / 78, rel=1e-12)  # P(X = 0) = 1/(n + 1)
+    assert uni["decision"] == "protected"  # 1 - 0.97^78 = 0.907 >= 0.9
+    scep = next(r for r, row in zip(sec["items"][0]["results"], rows, strict=True)
+                if row.key == "sceptical")  # Beta(2, 1): p | x = 0 ~ Beta(2, 78)
+    assert scep["prob"] == pytest.approx(stats.beta.cdf(0.03, 2, 78), rel=1e-12)
+    assert scep["decision"] == "not protected"
+
+
+def test_sampling_history_mixture_row_is_the_mixture():
+    from qualbayes.planning import sampling
+    from qualbayes.planning.priors import RatePrior
+    from qualbayes.priors.sensitivity import sampling_sensitivity
+
+    mix = RatePrior.mixture(np.array([1.0, 3.0]), np.array([200.0, 150.0]), "history")
+    first = PriorRow("as-run", "as run (history)", "history", {}, "history", "", "history")
+    sec = sampling_sensitivity(132, 3, None, 0.03, 0.95, beta_rows(first), mix)
+    got = sec["items"][0]["results"][0]["prob"]
+    # an equal-weight mixture: Bayes' rule over the two components by scipy.stats
+    x = np.arange(4)
+    pm = [stats.betabinom.pmf(x, 132, a, b) for a, b in ((1, 200), (3, 150))]
+    joint = sum((p * stats.beta.cdf(0.03, a + x, b + 132 - x)).sum()
+                for p, (a, b) in zip(pm, ((1, 200), (3, 150)), strict=True))
+    assert got == pytest.approx(joint / sum(p.sum() for p in pm), rel=1e-10)
+    assert got == sampling.accepted_within(132, 3, mix, 0.03)

@@ -113,8 +113,13 @@ def register(sub) -> None:
                         "uniform, jeffreys or history (default: history when --history is "
                         "given)")
     s.add_argument("--spec", help="defect-rate limit for 'accepted lot within spec' "
-                                  "(shown with the AQL and LTPD)")
+                                  "(shown with the AQL and LTPD; default limit: the LTPD)")
+    s.add_argument("--confidence", metavar="C",
+                   help="with a lot-quality prior: the plan protects the consumer when an "
+                        "accepted lot is within --spec (else the LTPD) with probability >= C "
+                        "(default: 1 - beta)")
     _history_options(s)
+    add_prior_options(s, "p", "lots")
     _output_options(s)
     s.set_defaults(func=run)
 
@@ -411,13 +416,23 @@ def _sampling(args) -> dict:
         raise OptionError("--lot-quality-prior history: give the lot history with --history")
     if args.history and prior != "history":
         raise OptionError("--history is given but --lot-quality-prior does not use it")
+    level = _probability(args.confidence, "--confidence")
+    from qualbayes.commands.prior_options import sampling_prior  # noqa: PLC0415
+
+    setup = sampling_prior(args, prior)  # --believe / --earlier
+    prior = setup.prior if setup is not None else prior
+    if level is not None and prior is None and not args.sensitivity:
+        raise OptionError("--confidence applies to the Bayesian view: give a "
+                          "--lot-quality-prior (or --believe / --earlier, or --sensitivity)")
 
     def make(history):
         if prior == "history":
-            return plan_sampling(aql, alpha, ltpd, beta, lot, spec=spec, history=history)
-        return plan_sampling(aql, alpha, ltpd, beta, lot, prior=prior, spec=spec)
+            return plan_sampling(aql, alpha, ltpd, beta, lot, spec=spec, history=history,
+                                 level=level)
+        return plan_sampling(aql, alpha, ltpd, beta, lot, prior=prior, spec=spec, level=level)
 
-    return {"make": make, "history_file": args.history, "curves": ["oc"]}
+    return {"make": make, "history_file": args.history, "curves": ["oc"],
+            "prior_setup": setup, "analysis": prior}
 
 
 _BUILDERS = {"attribute": _attribute, "life": _life, "mtbf": _mtbf, "sampling": _sampling}

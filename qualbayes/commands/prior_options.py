@@ -242,6 +242,32 @@ def attribute_prior(args, analysis):
     return setup
 
 
+def sampling_prior(args, prior):
+    """--believe / --earlier of ``plan sampling``: a Beta prior on the defect rate of the lots
+    offered (None if neither is given)."""
+    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.priors.statements import parse_statements  # noqa: PLC0415
+
+    statements = parse_statements(args.believe, ("p",))
+    weight = earlier_weight(args)
+    if not statements and args.earlier is None:
+        return None
+    if prior == "history":
+        raise OptionError("--believe and --earlier build a Beta prior; they cannot be combined "
+                          "with the history prior")
+    if statements and args.lot_quality_prior is not None:
+        raise OptionError("give the lot-quality prior either as --lot-quality-prior or as "
+                          "--believe statements, not both")
+    base = None
+    if prior is not None:
+        base = (float(prior.a[0]), float(prior.b[0]), prior.label)
+    setup = beta_setup(statements, base, args.earlier, weight, "p", args.earlier_sheet,
+                       args.earlier_columns)
+    setup.prior = RatePrior.beta(setup.a, setup.b, f"{setup.name}: p ~ Beta({setup.a:.6g}, "
+                                                   f"{setup.b:.6g})")
+    return setup
+
+
 def _rate_prior(setup):
     from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
 
@@ -359,6 +385,8 @@ def plan_prior_evidence(args, kind: str, record: dict, setup, analysis) -> dict:
             extras["sensitivity"] = sens.attribute_sensitivity(
                 record["inputs"]["reliability"], record["inputs"]["confidence"], plans, rows,
                 analysis if analysis is not None and analysis.components > 1 else None)
+    elif kind == "sampling":
+        extras.update(_sampling_evidence(args, record, setup, analysis))
     else:  # mtbf
         rows_in = _plan_rows(record)
         bayes = analysis is not None
@@ -385,6 +413,46 @@ def plan_prior_evidence(args, kind: str, record: dict, setup, analysis) -> dict:
                                                           record["inputs"]["confidence"],
                                                           plans, rows)
     return plain(extras)
+
+
+def _sampling_evidence(args, record: dict, setup, prior) -> dict:
+    """Predictive and sensitivity keys of a sampling plan; ``prior``: the lot-quality prior
+    as run (a RatePrior, or None for the plan alone)."""
+    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+    from qualbayes.priors.predictive import plan_predictive  # noqa: PLC0415
+
+    inp = record["inputs"]
+    n, c = inp["n"], inp["c"]
+    out: dict = {}
+    if prior is not None and prior.components == 1:
+        a, b = float(prior.a[0]), float(prior.b[0])
+        pred = plan_predictive(a, b, n, c, noun="defectives")
+        out["prior_predictive"] = pred
+        out["prior_words"] = [*(setup.words if setup else []),
+                              f"What the lot-quality prior expects: it {pred['words']}."]
+    if not args.sensitivity:
+        return out
+    if prior is None:
+        first = sens.PriorRow("as-run", "as run (plan alone)", "classical", {},
+                              "none: the plan's producer's and consumer's risks only",
+                              "The plan as run, without a prior on lot quality.",
+                              "the plan alone")
+    elif prior.components == 1:
+        a, b = float(prior.a[0]), float(prior.b[0])
+        first = sens.PriorRow("as-run", "as run", "beta", {"a": a, "b": b},
+                              f"p ~ Beta({a:.6g}, {b:.6g})",
+                              f"The lot-quality prior as run ({prior.label}).",
+                              "the prior as run")
+    else:
+        first = sens.PriorRow("as-run", "as run (history)", "history", {}, prior.label,
+                              "The prior learned from the lot history.",
+                              "the history prior as run")
+    rows = sens.beta_rows(first, setup.stated if setup else None,
+                          setup.base if setup else None, setup.earlier if setup else None)
+    out["sensitivity"] = sens.sampling_sensitivity(
+        n, c, inp["lot_size"], inp["limit"], inp["level"], rows,
+        prior if prior is not None and prior.components > 1 else None)
+    return out
 
 
 # --------------------------------------------------------------------------- life

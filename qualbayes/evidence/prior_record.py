@@ -9,7 +9,8 @@ from qualbayes.evidence.terminal import table as text_table
 
 CODES = {"accept": "A", "reject": "R", "undecided": "U", "not-converged": "NC",
          "meets": "M", "does-not-meet": "DNM", "demonstrated": "D",
-         "not demonstrated": "ND", "not usable": "-"}
+         "not demonstrated": "ND", "protected": "P", "not protected": "NP",
+         "not usable": "-"}
 
 
 def has_prior_evidence(record: dict) -> bool:

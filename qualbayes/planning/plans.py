@@ -430,15 +430,20 @@ def plan_mtbf(goal: float, confidence: float, failures=0, analysis: GammaPrior |
 
 def plan_sampling(aql: float, alpha: float, ltpd: float, beta: float,
                   lot_size: int | None = None, prior: RatePrior | None = None,
-                  spec: float | None = None, history: HistoryPrior | None = None) -> dict:
+                  spec: float | None = None, history: HistoryPrior | None = None,
+                  level: float | None = None) -> dict:
     """Which single sampling plan (n, c) protects both the producer (AQL, alpha) and the
-    consumer (LTPD, beta)? With a prior on lot quality: how good are accepted lots?"""
+    consumer (LTPD, beta)? With a prior on lot quality: how good are accepted lots, and is an
+    accepted lot within the limit (``spec``, else the LTPD) with probability >= ``level``
+    (default 1 - beta)?"""
     plan = sampling.find_plan(aql, alpha, ltpd, beta, lot_size)
+    level = 1.0 - beta if level is None else probability(level, "level")
+    limit = spec if spec is not None else ltpd
     question = (f"Which single sampling plan accepts lots at AQL {_pct(aql)} with probability "
                 f">= {1 - alpha:.4g} and lots at LTPD {_pct(ltpd)} with probability <= "
                 f"{beta:.4g}?")
     inputs = {"aql": aql, "alpha": alpha, "ltpd": ltpd, "beta": beta, "lot_size": lot_size,
-              "spec": spec}
+              "spec": spec, "n": plan.n, "c": plan.c, "limit": limit, "level": level}
     if history is not None:
         if not history.passed:
             return _not_converged("sampling", question, inputs, history)
@@ -482,25 +487,34 @@ def plan_sampling(aql: float, alpha: float, ltpd: float, beta: float,
             assumptions.append(HISTORY_ASSUMPTION)
         assumptions.append("Bayesian view: the quality of the lots offered varies as the "
                            "prior says")
-        specs = ([spec] if spec is not None else []) + [aql, ltpd]
         brow, cols = [], ["spec s", "P(p <= s) before", "P(accept)", "P(p <= s | accepted)",
                           "P(p <= s | rejected)", "mean p of accepted lots"]
         if lot_size is not None:
             cols.append("P(lot holds <= sN defectives | accepted)")
-        for s in dict.fromkeys(specs):
+        cols.append(f"accepted lots within s with P >= {level:.4g}?")
+        for s in dict.fromkeys([limit, aql, ltpd]):  # the decision's limit first
             q = sampling.accepted_lot_quality(plan.n, plan.c, prior, s, lot_size)
             line = [s, q["prob_within_spec_prior"], q["prob_accept"],
                     q["prob_within_spec_if_accepted"], q["prob_within_spec_if_rejected"],
                     q["mean_rate_if_accepted"]]
             if lot_size is not None:
                 line.append(q["lot_within_spec_if_accepted"])
+            key = line[-1] if lot_size is not None else line[3]
+            line.append(sampling.protection(key, level) or "no lot is accepted")
             brow.append(line)
         tables.append(table("Accepted lots", f"Quality of lots under the prior {prior.label}",
                             cols, brow))
         first = brow[0]
-        summary.append(f"with prior {prior.label}: P(accept) = {first[2]:.4f}; an accepted "
-                       f"lot has p <= {_pct(first[0])} with probability {first[3]:.4f} "
-                       f"(before inspection {first[1]:.4f})")
+        what = (f"the accepted lot of {lot_size} holds at most {_pct(limit)} defectives"
+                if lot_size is not None else f"an accepted lot has p <= {_pct(limit)}")
+        key = first[-2] if lot_size is not None else first[3]
+        summary.append(f"with prior {prior.label}: P(accept) = {first[2]:.4f}; " + (
+            "no lot is accepted under this prior" if key is None else
+            f"{what} with probability {key:.4f} (before inspection {first[1]:.4f}): "
+            f"{first[-1]} at level {level:.4g}"))
+        assumptions.append(f"Bayesian view's decision: the plan protects the consumer when "
+                           f"an accepted lot is within s = {_pct(limit)} with probability at "
+                           f"least {level:.4g} (default 1 - beta)")
     return record("sampling", question, inputs,
                   "exact " + plan.method + ": smallest n meeting P_a(LTPD) <= beta for the "
                   "first c whose n also meets P_a(AQL) >= 1 - alpha", summary, tables, curves,

@@ -24,6 +24,13 @@ of the lots offered. Marginally :math:`X \sim \mathrm{BetaBinomial}(n, a, b)`, s
 For a lot of N units the defectives left among the N - n not inspected are, given x,
 :math:`\mathrm{BetaBinomial}(N - n, a + x, b + n - x)`, which gives the probability that the
 accepted lot itself holds at most :math:`sN` defectives.
+
+Decision of the Bayesian view (our choice; a sampling plan has no confidence C of its own):
+the plan *protects* the consumer at level :math:`\ell` (default :math:`1 - \beta`, the
+plan's own consumer's risk read after the fact) when an accepted lot is within the limit s
+(the spec, else the LTPD) with probability at least :math:`\ell`:
+:math:`\Pr(p \le s \mid \text{accept}) \ge \ell`, or for a lot of N units
+:math:`\Pr(D \le sN \mid \text{accept}) \ge \ell`.
 """
 
 from __future__ import annotations
@@ -171,3 +178,22 @@ def _lot_within(n, c, prior, spec, lot_size, pmf, p_acc) -> float | None:
                stats.betabinom.cdf(k, rest, prior.a + x, prior.b + n - x))
         total += float((pmf[x] * cdf).mean())
     return total / p_acc if p_acc > 0 else None
+
+
+PROTECTED, NOT_PROTECTED = "protected", "not protected"
+
+
+def accepted_within(n: int, c: int, prior: RatePrior, limit: float,
+                    lot_size: int | None = None) -> float | None:
+    """The key probability of the Bayesian view: P(p <= s | accepted), or for a lot of N
+    units P(D <= sN | accepted). None when the prior gives acceptance no chance."""
+    q = accepted_lot_quality(n, c, prior, limit, lot_size)
+    return q["lot_within_spec_if_accepted" if lot_size is not None
+             else "prob_within_spec_if_accepted"]
+
+
+def protection(prob: float | None, level: float) -> str | None:
+    """'protected' when an accepted lot is within the limit with probability >= level."""
+    if prob is None:
+        return None
+    return PROTECTED if prob >= level * (1.0 - 1e-12) else NOT_PROTECTED

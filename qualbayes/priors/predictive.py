@@ -84,13 +84,14 @@ def lots_predictive(a: float, b: float, lots: list[tuple[str, int, int]],
 
 
 def plan_predictive(a: float, b: float, units: int, allowed: int,
-                    level: float = LEVEL) -> dict:
-    """Failures among the ``units`` of a planned test under Beta(a, b) on p, and the
-    probability of at most ``allowed`` (the chance of passing under that prior)."""
+                    level: float = LEVEL, noun: str = "failures") -> dict:
+    """Failures (or defectives) among the ``units`` of a planned test or sample under
+    Beta(a, b) on p, and the probability of at most ``allowed`` (the chance of passing, or
+    of accepting, under that prior)."""
     out = beta_expectations(a, b, units, level)
     out["prob_pass"] = betabinom_cdf(allowed, units, a, b)
     lo, hi = out["range"]
-    out["words"] = (f"expects {lo} to {hi} failures among {units} units ({level:.0%}); "
+    out["words"] = (f"expects {lo} to {hi} {noun} among {units} units ({level:.0%}); "
                     f"P(at most {allowed}) = {out['prob_pass']:.3g}")
     return out
 

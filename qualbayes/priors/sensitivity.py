@@ -14,6 +14,11 @@ The set, for every question (rows that coincide are shown once, their names join
    Gamma(2, 0); for the Weibull, one failure at the mission time. It asks "would one more
    bad unit change the decision?".
 
+For a sampling plan (n, c), which has no confidence of its own, the question is the Bayesian
+view's: is an accepted lot within the limit s with probability at least the stated level
+(:func:`qualbayes.planning.sampling.accepted_within`)? The priors there are on the defect
+rate of the lots offered.
+
 Closed forms throughout (conjugate Beta and gamma posteriors): rerunning costs microseconds.
 Each row reports the key probability and the decision, exactly as a separate run with that
 prior would (the tests check this), and each item (lot, plan row) a sentence saying whether
@@ -322,3 +327,44 @@ def mtbf_sensitivity(goal: float, confidence: float, plans: list[tuple[int, floa
                   zip(predictive, rows, strict=True)]
     return _section(f"P(MTBF >= {goal:g} | at most r failures in T) >= {confidence:g}?",
                     confidence, rows, items, "plan", predictive)
+
+
+# --------------------------------------------------------------------------- sampling plans
+
+def sampling_sensitivity(n: int, c: int, lot_size: int | None, limit: float, level: float,
+                         rows: list[PriorRow], as_run_prior=None) -> dict:
+    """For the plan (inspect n, accept at most c defectives): under each prior on the defect
+    rate of the lots offered, P(accept) and whether an accepted lot is within ``limit``
+    with probability >= ``level`` (for a lot of N units: the lot's own defectives
+    D <= limit N). ``as_run_prior``: the RatePrior of a non-Beta first row (the history
+    mixture); a 'classical' first row (no lot-quality prior) makes no such statement."""
+    from qualbayes.planning import sampling  # noqa: PLC0415
+    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.priors.predictive import plan_predictive  # noqa: PLC0415
+
+    results = []
+    for row in rows:
+        if row.family == "classical":
+            results.append({"prior": row.key, "prob": None, "decision": NOT_USABLE,
+                            "prob_accept": None, "reason": "the classical plan makes no "
+                            "statement about the quality of accepted lots"})
+            continue
+        prior = (RatePrior.beta(row.params["a"], row.params["b"], row.prior)
+                 if row.family == "beta" else as_run_prior)
+        prob = sampling.accepted_within(n, c, prior, limit, lot_size)
+        accept = sampling.accepted_lot_quality(n, c, prior, limit, lot_size)["prob_accept"]
+        decision = sampling.protection(prob, level)
+        results.append({"prior": row.key, "prob": prob, "prob_accept": accept,
+                        "decision": decision or NOT_USABLE}
+                       | ({} if decision else {"reason": "no lot is accepted under it"}))
+    text, depends = item_summary(results, rows)
+    within = (f"the accepted lot of {lot_size} holds at most {limit:.4g} N defectives"
+              if lot_size is not None else f"an accepted lot has p <= {limit:.4g}")
+    items = [{"name": f"n = {n}, c = {c}", "units": n, "failures": c, "results": results,
+              "summary": f"{within} with probability >= {level:.4g}: {text}",
+              "depends": depends}]
+    predictive = [plan_predictive(r.params["a"], r.params["b"], n, c, noun="defectives")
+                  if r.family == "beta" else None for r in rows]
+    what = "D <= s N" if lot_size is not None else "p <= s"
+    return _section(f"P({what} | accepted), s = {limit:g}, >= {level:g}?", level, rows,
+                    items, "plan", predictive)

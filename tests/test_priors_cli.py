@@ -252,3 +252,49 @@ def test_plan_sampling_with_statements_earlier_lots_and_sensitivity(tmp_path, ca
 def test_plan_sampling_bad_prior_options_exit_2(capsys, argv, words):
     assert main(argv) == 2
     assert words in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------------- life plans
+
+LIFE_PLAN = ["plan", "life", "--reliability", "0.9", "--confidence", "0.9", "--mission",
+             "1000", "--shape", "2", "--units", "10", "--failures", "1"]
+
+
+def test_plan_life_with_a_prior_statements_earlier_test_and_sensitivity(tmp_path, capsys):
+    rec = _json([*LIFE_PLAN, "--believe", "R>0.8@95%;R=0.9", "--earlier", "1/20",
+                 "--earlier-weight", "0.5", "--sensitivity"], capsys)
+    assert rec["earlier_data"]["weight"] == 0.5
+    assert "weight 0.5" in rec["priors"]["analysis"]
+    table = next(t for t in rec["tables"] if t["name"] == "Plans")
+    cols = table["columns"]
+    for item, row in zip(rec["sensitivity"]["items"], table["rows"], strict=True):
+        first = item["results"][0]  # the as-run row is the plan itself
+        assert first["time"] == pytest.approx(row[cols.index("time per unit")], rel=1e-12)
+        assert first["prob"] == pytest.approx(row[cols.index("P(R >= goal | c of n)")],
+                                              rel=1e-9)
+        assert first["decision"] == "demonstrated"
+    out = tmp_path / "ev"
+    assert main([*LIFE_PLAN, "--reliability-prior", "beta:18,1", "--sensitivity", "--out",
+                 str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "Prior sensitivity" in text and "classical:" in text
+    assert (out / "plan_life_prior.png").exists() and (out / "plan_life_assurance.png").exists()
+    assert "Prior sensitivity" in load_workbook(out / "plan_life.xlsx",
+                                                read_only=True).sheetnames
+
+
+def test_plan_life_classical_sensitivity_uses_the_classical_rule_first(capsys):
+    rec = _json([*LIFE_PLAN, "--sensitivity"], capsys)
+    assert rec["sensitivity"]["priors"][0]["family"] == "classical"
+    assert rec["priors"]["analysis"] == "none (classical)"
+
+
+@pytest.mark.parametrize("argv,words", [
+    ([*LIFE_PLAN, "--believe", "R>0.9@90%", "--reliability-prior", "beta:20,1"], "not both"),
+    ([*LIFE_PLAN, "--reliability-prior", "history"], "beta:A,B"),
+    ([*LIFE_PLAN, "--believe", "mtbf>500@90%"], "does not apply"),
+    ([*LIFE_PLAN, "--assurance", "0.8"], "--design-prior"),
+])
+def test_plan_life_bad_prior_options_exit_2(capsys, argv, words):
+    assert main(argv) == 2
+    assert words in capsys.readouterr().err

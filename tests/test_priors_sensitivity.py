@@ -376,3 +376,38 @@ def test_sampling_history_mixture_row_is_the_mixture():
                 for p, (a, b) in zip(pm, ((1, 200), (3, 150)), strict=True))
     assert got == pytest.approx(joint / sum(p.sum() for p in pm), rel=1e-10)
     assert got == sampling.accepted_within(132, 3, mix, 0.03)
+
+
+# --------------------------------------------------------------------------- Weibull life plans
+
+def test_life_plan_rows_equal_separate_plans_and_closed_forms():
+    from qualbayes.planning import weibull
+    from qualbayes.planning.plans import plan_life
+    from qualbayes.planning.priors import RatePrior
+    from qualbayes.priors.sensitivity import life_plan_sensitivity
+
+    stated = elicit(parse_statements(["R>0.85@95%", "R=0.95"], ("R",)))
+    classical = PriorRow("as-run", "as run (classical)", "classical", {}, "none", "", "classical")
+    rows = beta_rows(classical, stated, (1.0, 1.0, "uniform"), EarlierCounts(1, 40, "test"))
+    mission, n, beta = 1000.0, 10, 2.0
+    plans = [(c, weibull.time_ratio(0.9, 0.9, n, beta, c)) for c in (0, 1)]
+    sec = life_plan_sensitivity(0.9, 0.9, mission, n, beta, plans, rows)
+    c0 = sec["items"][0]["results"]
+    assert c0[0]["decision"] == DEMONSTRATED and c0[0]["time"] == pytest.approx(
+        plans[0][1] * mission, rel=1e-12)
+    uni = next(r for r, row in zip(c0, rows, strict=True) if row.key == "uniform")
+    # uniform prior, no failure in n units at L: p | data ~ Beta(1, 1 + n L^beta)
+    assert uni["prob"] == pytest.approx(stats.beta.cdf(0.1, 1, 1 + n * plans[0][1] ** beta),
+                                        rel=1e-12)
+    for k, row in enumerate(rows[1:], start=1):  # every Beta row: a separate Bayesian plan
+        prior = RatePrior.beta(row.params["a"], row.params["b"])
+        rec = plan_life(0.9, 0.9, mission, n, beta, [0, 1], analysis=prior)
+        cols = rec["tables"][0]["columns"]
+        times = [r[cols.index("time per unit")] for r in rec["tables"][0]["rows"]]
+        assert [i["results"][k]["time"] for i in sec["items"]] == pytest.approx(
+            times, rel=1e-12), row.label
+        # and the decision at the planned (classical) test matches that prior's own rule:
+        # demonstrated exactly when the planned time is at least the time the prior needs
+        for item, t in zip(sec["items"], times, strict=True):
+            res = item["results"][k]
+            assert (res["decision"] == DEMONSTRATED) == (item["time"] >= t * (1 - 1e-9))

@@ -71,9 +71,14 @@ def register(sub) -> None:
     life.add_argument("--units", required=True, metavar="N[,N2,...]",
                       help="units available for test; several give the trade-off rows")
     _failures_option(life)
+    life.add_argument("--reliability-prior", metavar="PRIOR",
+                      help="analysis prior on R(mission): beta:A,B (R ~ Beta(A, B)), uniform, "
+                           "jeffreys, or none for the classical plan (default: none)")
     life.add_argument("--design-prior", metavar="beta:A,B",
-                      help="design prior on R(mission) for the assurance")
+                      help="design prior on R(mission) for the assurance (default: the "
+                           "analysis prior, if any)")
     _assurance_option(life)
+    add_prior_options(life, "R", "life-plan")
     _output_options(life)
     life.set_defaults(func=run)
 
@@ -350,16 +355,31 @@ def _life(args) -> dict:
         raise OptionError(f"--units {units[0]}: need more units on test than allowed "
                           f"failures ({max(failures)})")
     target = _probability(args.assurance, "--assurance")
+    analysis = None
+    if args.reliability_prior is not None:
+        analysis = parse_reliability_prior(args.reliability_prior, "--reliability-prior")
+        if analysis in ("history", "same"):
+            raise OptionError(f"--reliability-prior {args.reliability_prior}: give beta:A,B, "
+                              "uniform, jeffreys or none")
+        analysis = None if analysis == "none" else analysis
+    from qualbayes.commands.prior_options import attribute_prior  # noqa: PLC0415
+
+    setup = attribute_prior(args, analysis)  # --believe / --earlier (X/N at the mission time)
+    analysis = setup.prior if setup is not None else analysis
     design = None
     if args.design_prior is not None:
         design = parse_reliability_prior(args.design_prior, "--design-prior")
         if isinstance(design, str):
             raise OptionError(f"--design-prior {args.design_prior!r}: give beta:A,B on "
                               "R(mission)")
-    if target is not None and design is None:
-        raise OptionError("--assurance needs --design-prior beta:A,B on R(mission)")
-    return {"make": lambda _h: plan_life(r, c, mission, units, shape, failures, design, target),
-            "curves": ["oc"] + (["assurance"] if design is not None else [])}
+    if target is not None and design is None and analysis is None:
+        raise OptionError("--assurance needs --design-prior beta:A,B on R(mission) (or a "
+                          "--reliability-prior to use as one)")
+    has_design = design is not None or analysis is not None
+    return {"make": lambda _h: plan_life(r, c, mission, units, shape, failures, design, target,
+                                         analysis),
+            "curves": ["oc"] + (["assurance"] if has_design else []),
+            "prior_setup": setup, "analysis": analysis}
 
 
 def _mtbf(args) -> dict:

@@ -32,6 +32,8 @@ EARLIER_HELP = {
             "T)",
     "life": "an earlier generation's life data to borrow from (a life file; its groups are "
             "pooled)",
+    "life-plan": "an earlier pass/fail test to borrow from, each unit run to the mission "
+                 "time: X/N (X failures in N units), or a lots file of such counts",
 }
 
 
@@ -387,6 +389,8 @@ def plan_prior_evidence(args, kind: str, record: dict, setup, analysis) -> dict:
                 analysis if analysis is not None and analysis.components > 1 else None)
     elif kind == "sampling":
         extras.update(_sampling_evidence(args, record, setup, analysis))
+    elif kind == "life":
+        extras.update(_life_plan_evidence(args, record, setup, analysis))
     else:  # mtbf
         rows_in = _plan_rows(record)
         bayes = analysis is not None
@@ -452,6 +456,51 @@ def _sampling_evidence(args, record: dict, setup, prior) -> dict:
     out["sensitivity"] = sens.sampling_sensitivity(
         n, c, inp["lot_size"], inp["limit"], inp["level"], rows,
         prior if prior is not None and prior.components > 1 else None)
+    return out
+
+
+def _first_row(prior, what: str):
+    """The as-run row of a plan's sensitivity set: classical, the Beta prior, or history."""
+    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+
+    if prior is None:
+        return None
+    if prior.components == 1:
+        a, b = float(prior.a[0]), float(prior.b[0])
+        return sens.PriorRow("as-run", "as run", "beta", {"a": a, "b": b},
+                             f"p ~ Beta({a:.6g}, {b:.6g})", f"The {what} ({prior.label}).",
+                             "the prior as run")
+    return sens.PriorRow("as-run", "as run (history)", "history", {}, prior.label,
+                         "The prior learned from the lot history.", "the history prior as run")
+
+
+def _life_plan_evidence(args, record: dict, setup, prior) -> dict:
+    """Predictive and sensitivity keys of a Weibull life plan; ``prior``: the analysis prior
+    on p = 1 - R(mission) as run (a RatePrior, or None for the classical plan)."""
+    from qualbayes.planning.weibull import ShapePrior  # noqa: PLC0415
+    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+
+    inp = record["inputs"]
+    shape = inp["shape"]
+    if isinstance(shape, dict):
+        shape = ShapePrior(shape["log_median"], shape["log_sd"])
+    plans = [(int(r[0]), r[1]) for r in _plan_rows(record)]
+    units, mission = inp["units"][0], inp["mission_time"]
+    first = _first_row(prior, "analysis prior") or sens.PriorRow(
+        "as-run", "as run (classical)", "classical", {}, "none: the classical Weibull-extended "
+        "binomial rule", "The plan as run.", "the classical rule as run")
+    out: dict = {}
+    if prior is not None:
+        c0, l0 = next(((c, r) for c, r in plans if r), (None, None))
+        pred = sens._life_plan_predictive(first, units, l0, c0, shape, mission)
+        out["prior_predictive"] = pred
+        out["prior_words"] = [*(setup.words if setup else []),
+                              f"What the analysis prior expects: it {pred['words']}."]
+    if args.sensitivity:
+        rows = sens.beta_rows(first, setup.stated if setup else None,
+                              setup.base if setup else None, setup.earlier if setup else None)
+        out["sensitivity"] = sens.life_plan_sensitivity(
+            inp["reliability"], inp["confidence"], mission, units, shape, plans, rows)
     return out
 
 

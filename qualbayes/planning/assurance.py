@@ -238,25 +238,40 @@ def life_assurance(units: int, ratio: float, failures: int, shape: weibull.Shape
     return min(1.0, total / design.components)
 
 
+def life_threshold(reliability: float, confidence: float, units: int, shape: weibull.Shape,
+                   analysis: RatePrior | None) -> Callable[[int], float | None]:
+    """c -> the least L whose pass rule allows c failures among n units."""
+    from qualbayes.planning import life_bayes  # noqa: PLC0415
+
+    if analysis is None:
+        return lambda c: (weibull.time_ratio(reliability, confidence, units, shape, c)
+                          if c < units else None)
+    return lambda c: life_bayes.time_ratio(analysis, reliability, confidence, units, shape, c)
+
+
 def smallest_life_plan(reliability: float, confidence: float, units: int,
                        shape: weibull.Shape, design: RatePrior, target: float,
-                       max_failures: int = 200) -> dict:
+                       max_failures: int = 200, analysis: RatePrior | None = None) -> dict:
     """For n units: the shortest test time per unit (as L mission times, with its allowed
-    failures) whose assurance reaches ``target``."""
+    failures) whose assurance reaches ``target``; the pass rule is classical, or the
+    posterior under ``analysis``."""
     r = probability(reliability, "reliability")
     conf = probability(confidence, "confidence")
     n = count(units, "units", least=1)
     target = probability(target, "wanted assurance")
     limit = design.prob_at_most(1.0 - r)  # design P(R(t) >= R*)
     out = {"target": target, "design_prob_goal_met": limit}
-    if target > classical_ceiling(limit, conf):
+    if analysis is None and target > classical_ceiling(limit, conf):
         return out | {"reached": False, "ratio": None, "failures": None, "assurance": None,
                       "reason": "unreachable: above the ceiling "
                                 f"{classical_ceiling(limit, conf):.4g} of any classical plan"}
     found = _first_reaching(
-        lambda c: weibull.time_ratio(r, conf, n, shape, c) if c < n else None,
-        lambda L, c: life_assurance(n, L, c, shape, design), target, math.inf,
-        min(max_failures, n - 1))
+        life_threshold(r, conf, n, shape, analysis),
+        lambda L, c: 1.0 if L == 0 else life_assurance(n, L, c, shape, design), target,
+        math.inf, min(max_failures, n - 1))
+    if found is None:
+        return out | {"reached": False, "ratio": None, "failures": None, "assurance": None,
+                      "reason": "no test time within the searched range"}
     res = out | {"ratio": found["size"], "failures": found["failures"],
                  "assurance": found["assurance"], "reached": found["reached"]}
     if not found["reached"]:
@@ -267,11 +282,12 @@ def smallest_life_plan(reliability: float, confidence: float, units: int,
 
 def life_assurance_curve(reliability: float, confidence: float, units: int,
                          shape: weibull.Shape, design: RatePrior, max_ratio: float,
-                         points: int = 120) -> dict:
+                         points: int = 120, analysis: RatePrior | None = None) -> dict:
+    threshold = life_threshold(reliability, confidence, units, shape, analysis)
     cuts = []
     for c in range(min(units - 1, MAX_ALLOWED_FAILURES) + 1):
-        t = weibull.time_ratio(reliability, confidence, units, shape, c)
-        if t > max_ratio:
+        t = threshold(c)
+        if t is None or t > max_ratio:
             break
         cuts.append(t)
     ratios = np.linspace(max_ratio / points, max_ratio, points)

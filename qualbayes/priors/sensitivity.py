@@ -368,3 +368,72 @@ def sampling_sensitivity(n: int, c: int, lot_size: int | None, limit: float, lev
     what = "D <= s N" if lot_size is not None else "p <= s"
     return _section(f"P({what} | accepted), s = {limit:g}, >= {level:g}?", level, rows,
                     items, "plan", predictive)
+
+
+# --------------------------------------------------------------------------- Weibull life plans
+
+def life_plan_sensitivity(reliability: float, confidence: float, mission: float, units: int,
+                          shape, plans: list[tuple[int, float | None]], rows: list[PriorRow]
+                          ) -> dict:
+    """For each plan (c allowed failures, L = test time per unit / mission time, as planned
+    for n units): the time per unit each prior would need, and whether passing the planned
+    test demonstrates P(R(mission) >= R* | data) >= C under each prior (the priors are on
+    p = 1 - R(mission); :mod:`qualbayes.planning.life_bayes`)."""
+    from qualbayes.planning import life_bayes  # noqa: PLC0415
+    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+
+    items = []
+    for c, ratio in plans:
+        results = []
+        for row in rows:
+            if row.family == "classical":
+                results.append({"prior": row.key, "prob": None, "decision": DEMONSTRATED,
+                                "time": None if ratio is None else ratio * mission})
+                continue
+            prior = RatePrior.beta(row.params["a"], row.params["b"], row.prior)
+            need = life_bayes.time_ratio(prior, reliability, confidence, units, shape, c)
+            time = None if need is None else need * mission
+            if ratio is None:
+                results.append({"prior": row.key, "prob": None, "decision": NOT_USABLE,
+                                "time": time, "reason": "no planned test to judge"})
+                continue
+            prob = (prior.prob_at_most(1.0 - reliability) if ratio == 0 else  # no test
+                    life_bayes.prob_demonstrated(prior, reliability, units, ratio, c, shape))
+            results.append({"prior": row.key, "prob": prob,
+                            "decision": DEMONSTRATED if prob >= confidence * (1 - 1e-12)
+                            else NOT_DEMONSTRATED, "time": time})
+        text, depends = item_summary(results, rows)
+        shown = ("no plan" if ratio is None else "no test" if ratio == 0
+                 else f"{ratio * mission:.4g} per unit")
+        test = ("with no test (the prior alone)" if ratio == 0 else
+                f"passing the test ({units} units for {shown}, at most {c} failing)")
+        items.append({"name": f"c = {c}, {shown}", "failures": c,
+                      "time": None if ratio is None else ratio * mission, "results": results,
+                      "summary": f"{test}: R({mission:g}) >= {reliability:g} {text}",
+                      "depends": depends})
+    c0, l0 = next(((c, r) for c, r in plans if r), (None, None))
+    predictive = [_life_plan_predictive(r, units, l0, c0, shape, mission)
+                  if r.family == "beta" else None for r in rows]
+    return _section(f"P(R({mission:g}) >= {reliability:g} | at most c of {units} failed) >= "
+                    f"{confidence:g}?", confidence, rows, items, "plan", predictive)
+
+
+def _life_plan_predictive(row: PriorRow, units: int, ratio: float | None, allowed: int | None,
+                          shape, mission: float) -> dict:
+    """Failures among n units run to the mission time (beta-binomial) and, for the planned
+    test, the chance it passes under the prior (its assurance)."""
+    from qualbayes.planning.assurance import life_assurance  # noqa: PLC0415
+    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.priors.predictive import beta_expectations  # noqa: PLC0415
+
+    a, b = row.params["a"], row.params["b"]
+    out = beta_expectations(a, b, units)
+    lo, hi = out["range"]
+    words = (f"expects {lo} to {hi} failures among {units} units run to the mission time "
+             f"{mission:g} ({out['level']:.0%})")
+    if ratio:
+        out["prob_pass"] = life_assurance(units, ratio, allowed, shape, RatePrior.beta(a, b))
+        words += (f"; P(the planned test, {ratio * mission:.4g} per unit, passes) = "
+                  f"{out['prob_pass']:.3g}")
+    out["words"] = words
+    return out

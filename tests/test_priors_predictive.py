@@ -92,3 +92,20 @@ def test_life_prior_simulation_matches_the_exact_lognormal_quantiles():
     assert abs(np.mean(rel <= exact_lo) - 0.05) <= tol and abs(lo - exact_lo) < 0.01
     assert abs(np.mean(rel <= exact_hi) - 0.95) <= tol and abs(hi - exact_hi) < 0.01
     assert out["range"][0] >= 0 and out["range"][1] <= 20
+
+
+def test_mixture_plan_predictive_against_scipy_betabinom():
+    """The history prior's predictive: an equal-weight mixture of scipy.stats.betabinom."""
+    from qualbayes.priors.predictive import mixture_plan_predictive
+
+    a, b = np.array([0.8, 2.0, 5.0]), np.array([150.0, 90.0, 400.0])
+    got = mixture_plan_predictive(a, b, 200, 3, noun="defectives")
+    k = np.arange(201)
+    pmf = np.mean([stats.betabinom.pmf(k, 200, ai, bi) for ai, bi in zip(a, b, strict=True)],
+                  axis=0)
+    cdf = np.cumsum(pmf)
+    assert got["prob_pass"] == pytest.approx(cdf[3], rel=1e-10)
+    assert got["prob_none"] == pytest.approx(pmf[0], rel=1e-10)
+    assert got["range"] == [int(np.argmax(cdf >= 0.05 - 1e-12)),
+                            int(np.argmax(cdf >= 0.95 - 1e-12))]
+    assert "defectives among 200 units" in got["words"]

@@ -96,6 +96,24 @@ def plan_predictive(a: float, b: float, units: int, allowed: int,
     return out
 
 
+def mixture_plan_predictive(a: np.ndarray, b: np.ndarray, units: int, allowed: int,
+                            level: float = LEVEL, noun: str = "failures") -> dict:
+    """:func:`plan_predictive` for an equal-weight mixture of Beta(a_d, b_d) (the history
+    prior): the mixture beta-binomial's central range and P(at most ``allowed``)."""
+    from qualbayes.models.mixtures import betabinom_pmf_matrix, betabinom_ppf  # noqa: PLC0415
+
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    tail = (1.0 - level) / 2.0
+    lo, hi = (betabinom_ppf(q, int(units), a, b) for q in (tail, 1.0 - tail))
+    pmf = betabinom_pmf_matrix(min(allowed, units), int(units), a, b).mean(axis=0)
+    out = {"units": int(units), "level": level, "range": [int(lo), int(hi)],
+           "prob_none": float(pmf[0]), "mean": float(units * np.mean(a / (a + b))),
+           "prob_pass": float(min(1.0, pmf.sum()))}
+    out["words"] = (f"expects {lo} to {hi} {noun} among {units} units ({level:.0%}); "
+                    f"P(at most {allowed}) = {out['prob_pass']:.3g}")
+    return out
+
+
 def gamma_expectations(a: float, b: float, time: float, allowed: int,
                        level: float = LEVEL) -> dict | None:
     """Failures in total time T under Gamma(a, b) on the rate (negative binomial); None

@@ -277,9 +277,14 @@ def attribute_sensitivity(reliability: float, confidence: float, plans: list[tup
         items.append({"name": f"c = {c}, n = {n}", "failures": c, "units": n,
                       "results": results, "summary": f"passing the test ({n} units, at most "
                       f"{c} failing) leaves R >= {reliability:g} {text}", "depends": depends})
+    from qualbayes.priors.predictive import mixture_plan_predictive  # noqa: PLC0415
+
     c0, n0 = next(((c, n) for c, n in plans if n), (None, None))
-    predictive = [plan_predictive(r.params["a"], r.params["b"], n0, c0)
-                  if r.family == "beta" and n0 else None for r in rows]
+    predictive = [None if not n0 else
+                  plan_predictive(r.params["a"], r.params["b"], n0, c0) if r.family == "beta"
+                  else mixture_plan_predictive(as_run_prior.a, as_run_prior.b, n0, c0)
+                  if r.family == "history" and as_run_prior is not None else None
+                  for r in rows]
     return _section(f"P(R >= {reliability:g} | at most c failures in n) >= {confidence:g}?",
                     confidence, rows, items, "plan", predictive)
 
@@ -363,8 +368,14 @@ def sampling_sensitivity(n: int, c: int, lot_size: int | None, limit: float, lev
     items = [{"name": f"n = {n}, c = {c}", "units": n, "failures": c, "results": results,
               "summary": f"{within} with probability >= {level:.4g}: {text}",
               "depends": depends}]
+    from qualbayes.priors.predictive import mixture_plan_predictive  # noqa: PLC0415
+
     predictive = [plan_predictive(r.params["a"], r.params["b"], n, c, noun="defectives")
-                  if r.family == "beta" else None for r in rows]
+                  if r.family == "beta" else
+                  mixture_plan_predictive(as_run_prior.a, as_run_prior.b, n, c,
+                                          noun="defectives")
+                  if r.family == "history" and as_run_prior is not None else None
+                  for r in rows]
     what = "D <= s N" if lot_size is not None else "p <= s"
     return _section(f"P({what} | accepted), s = {limit:g}, >= {level:g}?", level, rows,
                     items, "plan", predictive)

@@ -221,60 +221,43 @@ def figure_file(record: dict):
 # --------------------------------------------------------------------------- plans
 
 def attribute_prior(args, analysis):
-    """--believe / --earlier of ``plan attribute``: the BetaSetup (None if neither is
-    given), after checking they do not clash with --reliability-prior or --history."""
-    from qualbayes.priors.statements import parse_statements  # noqa: PLC0415
-
-    statements = parse_statements(args.believe, ("R", "p"))
-    weight = earlier_weight(args)
-    if not statements and args.earlier is None:
-        return None
-    if analysis == "history":
-        raise OptionError("--believe and --earlier build a Beta prior; they cannot be combined "
-                          "with the history prior")
-    if statements and args.reliability_prior is not None:
-        raise OptionError("give the analysis prior either as --reliability-prior or as "
-                          "--believe statements, not both")
-    base = None
-    if analysis not in ("none", None):
-        base = (float(analysis.a[0]), float(analysis.b[0]), f"{analysis.label} (on p = 1 - R)")
-    setup = beta_setup(statements, base, args.earlier, weight, "R", args.earlier_sheet,
-                       args.earlier_columns, noun="failures")
-    setup.prior = _rate_prior(setup)
-    return setup
+    """--believe / --earlier of ``plan attribute`` and ``plan life``: the BetaSetup on
+    p = 1 - R (None if neither is given), after checking they do not clash with
+    --reliability-prior or --history."""
+    return _plan_beta_prior(args, analysis, "R", "--reliability-prior", args.reliability_prior)
 
 
 def sampling_prior(args, prior):
     """--believe / --earlier of ``plan sampling``: a Beta prior on the defect rate of the lots
     offered (None if neither is given)."""
+    return _plan_beta_prior(args, prior, "p", "--lot-quality-prior", args.lot_quality_prior)
+
+
+def _plan_beta_prior(args, prior, quantity: str, option: str, given):
     from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
     from qualbayes.priors.statements import parse_statements  # noqa: PLC0415
 
-    statements = parse_statements(args.believe, ("p",))
+    statements = parse_statements(args.believe, ("R", "p") if quantity == "R" else ("p",))
     weight = earlier_weight(args)
     if not statements and args.earlier is None:
         return None
     if prior == "history":
         raise OptionError("--believe and --earlier build a Beta prior; they cannot be combined "
                           "with the history prior")
-    if statements and args.lot_quality_prior is not None:
-        raise OptionError("give the lot-quality prior either as --lot-quality-prior or as "
-                          "--believe statements, not both")
+    if statements and given is not None:
+        raise OptionError(f"give the prior either as {option} or as --believe statements, "
+                          "not both")
+    on = " (on p = 1 - R)" if quantity == "R" else ""
     base = None
-    if prior is not None:
-        base = (float(prior.a[0]), float(prior.b[0]), prior.label)
-    setup = beta_setup(statements, base, args.earlier, weight, "p", args.earlier_sheet,
-                       args.earlier_columns)
-    setup.prior = RatePrior.beta(setup.a, setup.b, f"{setup.name}: p ~ Beta({setup.a:.6g}, "
-                                                   f"{setup.b:.6g})")
+    if prior not in ("none", None):
+        base = (float(prior.a[0]), float(prior.b[0]), prior.label + on)
+    setup = beta_setup(statements, base, args.earlier, weight, quantity, args.earlier_sheet,
+                       args.earlier_columns,
+                       noun="failures" if quantity == "R" else "defectives")
+    what = "p = 1 - R" if quantity == "R" else "p"
+    setup.prior = RatePrior.beta(setup.a, setup.b,
+                                 f"{setup.name}: {what} ~ Beta({setup.a:.6g}, {setup.b:.6g})")
     return setup
-
-
-def _rate_prior(setup):
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
-
-    return RatePrior.beta(setup.a, setup.b, f"{setup.name}: p = 1 - R ~ Beta({setup.a:.6g}, "
-                                            f"{setup.b:.6g})")
 
 
 @dataclass
@@ -360,19 +343,7 @@ def plan_prior_evidence(args, kind: str, record: dict, setup, analysis) -> dict:
     if kind == "attribute":
         plans = [(int(r[0]), r[1]) for r in _plan_rows(record)]
         c0, n0 = next(((c, n) for c, n in plans if n), (None, None))
-        if analysis is None:
-            first = sens.PriorRow("as-run", "as run (classical)", "classical", {},
-                                  "none: the classical binomial rule", "The plan as run.",
-                                  "the classical rule as run")
-        elif analysis.components == 1:
-            a, b = float(analysis.a[0]), float(analysis.b[0])
-            first = sens.PriorRow("as-run", "as run", "beta", {"a": a, "b": b},
-                                  f"p ~ Beta({a:.6g}, {b:.6g})",
-                                  f"The analysis prior ({analysis.label}).", "the prior as run")
-        else:
-            first = sens.PriorRow("as-run", "as run (history)", "history", {}, analysis.label,
-                                  "The prior learned from the lot history.",
-                                  "the history prior as run")
+        first = _first_row(analysis, "analysis prior", "the classical binomial rule")
         if analysis is not None and analysis.components == 1 and n0:
             from qualbayes.priors.predictive import plan_predictive  # noqa: PLC0415
 
@@ -436,21 +407,8 @@ def _sampling_evidence(args, record: dict, setup, prior) -> dict:
                               f"What the lot-quality prior expects: it {pred['words']}."]
     if not args.sensitivity:
         return out
-    if prior is None:
-        first = sens.PriorRow("as-run", "as run (plan alone)", "classical", {},
-                              "none: the plan's producer's and consumer's risks only",
-                              "The plan as run, without a prior on lot quality.",
-                              "the plan alone")
-    elif prior.components == 1:
-        a, b = float(prior.a[0]), float(prior.b[0])
-        first = sens.PriorRow("as-run", "as run", "beta", {"a": a, "b": b},
-                              f"p ~ Beta({a:.6g}, {b:.6g})",
-                              f"The lot-quality prior as run ({prior.label}).",
-                              "the prior as run")
-    else:
-        first = sens.PriorRow("as-run", "as run (history)", "history", {}, prior.label,
-                              "The prior learned from the lot history.",
-                              "the history prior as run")
+    first = _first_row(prior, "lot-quality prior", "the plan's producer's and consumer's "
+                       "risks only, no prior on lot quality")
     rows = sens.beta_rows(first, setup.stated if setup else None,
                           setup.base if setup else None, setup.earlier if setup else None)
     out["sensitivity"] = sens.sampling_sensitivity(
@@ -459,12 +417,15 @@ def _sampling_evidence(args, record: dict, setup, prior) -> dict:
     return out
 
 
-def _first_row(prior, what: str):
-    """The as-run row of a plan's sensitivity set: classical, the Beta prior, or history."""
+def _first_row(prior, what: str, classical: str):
+    """The as-run row of a plan's sensitivity set: the classical rule (no prior), the Beta
+    prior, or the history mixture."""
     from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
 
     if prior is None:
-        return None
+        return sens.PriorRow("as-run", "as run (classical)", "classical", {},
+                             f"none: {classical}", "The plan as run.",
+                             "the classical rule as run")
     if prior.components == 1:
         a, b = float(prior.a[0]), float(prior.b[0])
         return sens.PriorRow("as-run", "as run", "beta", {"a": a, "b": b},
@@ -486,9 +447,7 @@ def _life_plan_evidence(args, record: dict, setup, prior) -> dict:
         shape = ShapePrior(shape["log_median"], shape["log_sd"])
     plans = [(int(r[0]), r[1]) for r in _plan_rows(record)]
     units, mission = inp["units"][0], inp["mission_time"]
-    first = _first_row(prior, "analysis prior") or sens.PriorRow(
-        "as-run", "as run (classical)", "classical", {}, "none: the classical Weibull-extended "
-        "binomial rule", "The plan as run.", "the classical rule as run")
+    first = _first_row(prior, "analysis prior", "the classical Weibull-extended binomial rule")
     out: dict = {}
     if prior is not None:
         c0, l0 = next(((c, r) for c, r in plans if r), (None, None))

@@ -466,7 +466,8 @@ def posterior_mode(st: GroupStats, prior: LifePrior) -> Mode:
     data = data_arrays(st)
 
     def nlp(x):
-        v = log_posterior(x[0], x[1], st, prior, data)
+        with np.errstate(over="ignore", invalid="ignore"):  # probes far out: inf is handled
+            v = log_posterior(x[0], x[1], st, prior, data)
         return -float(v) if np.isfinite(v) else 1e300
 
     b0 = prior.shape[0] if prior.shape is not None else 0.0
@@ -497,8 +498,9 @@ def reported_mode(st: GroupStats, prior: LifePrior, start: Mode | None = None
 
     def nlp(x):
         b, log_eta = x
-        u = math.exp(b) * (st.log_tref - log_eta)
-        v = log_posterior(b, u, st, prior, data) + b
+        with np.errstate(over="ignore", invalid="ignore"):  # probes far out: inf is handled
+            u = math.exp(b) * (st.log_tref - log_eta) if b < 700 else math.inf
+            v = log_posterior(b, u, st, prior, data) + b
         return -float(v) if np.isfinite(v) else 1e300
 
     start = start or posterior_mode(st, prior)

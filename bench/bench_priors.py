@@ -5,7 +5,9 @@
 2. Lots sensitivity: the fixed prior set over 10,000 simulated lots, closed forms
    (target < 1 s), and the lots CLI with --believe, --earlier and --sensitivity against the
    plain CLI on the example file (jax stays out of both).
-3. With --life: the life sensitivity on the SV-30 rig test (2 groups, default sampler
+3. Plan sensitivity: `plan sampling` and `plan life` (known shape and a shape range) with
+   --believe, --earlier and --sensitivity, CLI end to end (jax stays out of all plans).
+4. With --life: the life sensitivity on the SV-30 rig test (2 groups, default sampler
    settings): wall time of the analysis and of the whole set, and time per prior; the
    prior's numbers are model arguments, so the set compiles once.
 """
@@ -64,6 +66,28 @@ def cli(extra: list[str]) -> float:
     return timed(lambda: subprocess.run(cmd, check=True, capture_output=True), repeat=3)
 
 
+def plan_cli(question: list[str]) -> float:
+    cmd = [sys.executable, "-m", "qualbayes", "plan", *question]
+    return timed(lambda: subprocess.run(cmd, check=True, capture_output=True), repeat=3)
+
+
+PLAN_LIFE = ["life", "--reliability", "0.9", "--confidence", "0.9", "--mission", "1000",
+             "--units", "10", "--failures", "2", "--believe", "R>0.8@95%;R=0.95",
+             "--earlier", "1/20", "--earlier-weight", "0.5", "--sensitivity"]
+
+
+def plans() -> list[tuple[str, float]]:
+    return [
+        ("plan sampling CLI, --believe --earlier --sensitivity",
+         plan_cli(["sampling", "--aql", "0.5%", "--ltpd", "3%", "--believe", "p<1%@90%",
+                   "--earlier", "3/800", "--earlier-weight", "0.5", "--sensitivity"])),
+        ("plan life CLI, known shape, c = 0..2, same options",
+         plan_cli([*PLAN_LIFE, "--shape", "2"])),
+        ("plan life CLI, shape range 1.5-3, c = 0..2, same options",
+         plan_cli([*PLAN_LIFE, "--shape-range", "1.5,3"])),
+    ]
+
+
 def life() -> list[tuple[str, float]]:
     from qualbayes.data.life import read_life
     from qualbayes.life_analysis import assess_life, group_data
@@ -90,6 +114,7 @@ def main() -> None:
     lines.append(("lots CLI, --believe --earlier --sensitivity",
                   cli(["--believe", "p=0.2%;p<0.8%@90%", "--earlier", "2/1500",
                        "--earlier-weight", "0.5", "--sensitivity"])))
+    lines += plans()
     if "--life" in sys.argv:
         lines += life()
     width = max(len(n) for n, _ in lines)

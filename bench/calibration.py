@@ -3,8 +3,9 @@
 Runs the studies of tests/test_calibration.py with the same seeds and settings (the CI
 version, the deliberately wrong likelihoods, and the large version marked slow) and prints
 the markdown table of docs/calibration.md: per study and parameter the chi-square of the
-ranks in 10 bins, its p-value, the 50% and 90% interval coverage with the binomial 99.9%
-band, how many replications passed the convergence gate, and the divergences. Also printed:
+ranks in 10 bins, its p-value, the 50% and 90% interval coverage with the binomial band of
+the tests (central 1 - 0.001/60, tests/sbc.py), how many replications passed the convergence
+gate, and the divergences. Also printed:
 wall time per study (compilation included) on this machine.
 """
 

@@ -140,8 +140,9 @@ def markdown_rows(cal: Calibration) -> list[str]:
         stat, p = cal.chi_square(key)
         c50, c90 = cal.coverage(key, 0.5), cal.coverage(key, 0.9)
         b50, b90 = coverage_band(cal.replications, 0.5), coverage_band(cal.replications, 0.9)
+        shown = f"{p:.3f}" if p >= 0.0005 else f"{p:.1e}"
         rows.append(f"| {cal.name} | {key} | {cal.replications} | {cal.lots} | "
-                    f"{stat:.1f} | {p:.3f} | {c50:.3f} ({b50[0]:.3f}-{b50[1]:.3f}) | "
+                    f"{stat:.1f} | {shown} | {c50:.3f} ({b50[0]:.3f}-{b50[1]:.3f}) | "
                     f"{c90:.3f} ({b90[0]:.3f}-{b90[1]:.3f}) | {cal.gate_passed}/"
                     f"{cal.replications} | {cal.divergences} |")
     return rows

@@ -48,3 +48,26 @@ def write_xlsx(path: Path, header, rows, title="Inspection", extra_sheets=None,
             s.append(r)
     wb.save(path)
     return path
+
+
+HEAVY = ("jax", "numpyro", "arviz", "matplotlib")
+
+
+def heavy_imports(*argvs: list[str]) -> list[str]:
+    """Run ``qualbayes`` on each argument list in a fresh interpreter (output discarded) and
+    return which of the heavy modules (jax, numpyro, arviz, matplotlib) it imported."""
+    import json
+    import subprocess
+    import sys
+
+    code = (
+        "import io, contextlib, json, sys\n"
+        "from qualbayes.cli import main\n"
+        "with contextlib.redirect_stdout(io.StringIO()):\n"
+        f"    rcs = [main(argv) for argv in {list(argvs)!r}]\n"
+        f"assert all(rc == 0 for rc in rcs), rcs\n"
+        f"print(json.dumps([m for m in {HEAVY!r} if m in sys.modules]))\n"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout
+    return json.loads(out.strip().splitlines()[-1])

@@ -2,11 +2,10 @@
 history prior and its convergence gate."""
 
 import json
-import subprocess
-import sys
 
 import pytest
 from conftest import EXAMPLES
+from helpers import heavy_imports
 
 from qualbayes.caution import CAUTION
 from qualbayes.cli import main
@@ -146,17 +145,8 @@ def test_bad_input_is_a_clear_error_and_writes_nothing(argv, match, tmp_path, ca
 
 
 def test_plan_commands_never_import_jax():
-    code = (
-        "import sys\n"
-        "from qualbayes.cli import main\n"
-        f"for argv in ({ATTRIBUTE!r}, {LIFE!r}, {MTBF!r}, {SAMPLING!r}):\n"
-        "    assert main(argv + ['--json']) == 0\n"
-        "heavy = [m for m in ('jax', 'numpyro', 'arviz', 'matplotlib') if m in sys.modules]\n"
-        "print('HEAVY', heavy)\n"
-    )
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                         check=True).stdout
-    assert "HEAVY []" in out
+    argvs = [[*a, "--json"] for a in (ATTRIBUTE, LIFE, MTBF, SAMPLING)]
+    assert heavy_imports(*argvs) == []
 
 
 # --------------------------------------------------------------------------- history prior

@@ -92,6 +92,22 @@ def coverage_band(replications: int, level: float, tail: float = PER_CHECK / 2
     return float(lo), float(hi)
 
 
+def ranks_and_coverage(draws: dict, truth: dict, thinned: int, levels) -> tuple[dict, dict]:
+    """Per parameter: the rank of the truth among ``thinned`` evenly spaced draws, and
+    whether each central interval at ``levels`` covers it. ``draws[k]`` has shape
+    (chain, draw, R), ``truth[k]`` shape (R,)."""
+    ranks, covered = {}, {}
+    for key, d in draws.items():
+        flat = d.reshape(-1, d.shape[-1])  # (chains * draws, R)
+        pick = np.linspace(0, flat.shape[0] - 1, thinned).round().astype(int)
+        ranks[key] = np.sum(flat[pick] < truth[key][None, :], axis=0)
+        covered[key] = {}
+        for level in levels:
+            lo, hi = np.quantile(flat, [(1 - level) / 2, (1 + level) / 2], axis=0)
+            covered[key][level] = (lo <= truth[key]) & (truth[key] <= hi)
+    return ranks, covered
+
+
 def run(sim: Simulated, settings, model=None, name: str = "lot history",
         thinned: int = 99, levels=(0.5, 0.9)) -> Calibration:
     """Fit every replication in one run and rank the truth among ``thinned`` draws."""
@@ -102,15 +118,7 @@ def run(sim: Simulated, settings, model=None, name: str = "lot history",
     fit = fit_histories(sim.groups, settings, names=names, model=model)
     truth = {"mu": sim.mu, "log_kappa": sim.log_kappa}
     draws = {"mu": fit.draws["mu"], "log_kappa": np.log(fit.draws["kappa"])}
-    ranks, covered = {}, {}
-    for key, d in draws.items():
-        flat = d.reshape(-1, d.shape[-1])  # (chains * draws, R)
-        pick = np.linspace(0, flat.shape[0] - 1, thinned).round().astype(int)
-        ranks[key] = np.sum(flat[pick] < truth[key][None, :], axis=0)
-        covered[key] = {}
-        for level in levels:
-            lo, hi = np.quantile(flat, [(1 - level) / 2, (1 + level) / 2], axis=0)
-            covered[key][level] = (lo <= truth[key]) & (truth[key] <= hi)
+    ranks, covered = ranks_and_coverage(draws, truth, thinned, levels)
     passed = sum(fit.gate.select(nm).passed for nm in names)
     return Calibration(name, len(sim.mu), len(sim.groups[0][0]), thinned, ranks, covered,
                        passed, fit.gate.divergences,
@@ -236,15 +244,8 @@ def run_life(sim: SimulatedLife, settings, name: str = "Weibull", drop_suspensio
     names = [f"r{r}" for r in range(len(stats_))]
     fit = fit_life(stats_, modes, prior, settings, names, mission=1000.0)
     truth = {"log_shape": sim.log_shape, "log_scale": sim.log_scale}
-    ranks, covered = {}, {}
-    for key in truth:
-        flat = fit.draws[key].reshape(-1, fit.draws[key].shape[-1])
-        pick = np.linspace(0, flat.shape[0] - 1, thinned).round().astype(int)
-        ranks[key] = np.sum(flat[pick] < truth[key][None, :], axis=0)
-        covered[key] = {}
-        for level in levels:
-            lo, hi = np.quantile(flat, [(1 - level) / 2, (1 + level) / 2], axis=0)
-            covered[key][level] = (lo <= truth[key]) & (truth[key] <= hi)
+    ranks, covered = ranks_and_coverage({k: fit.draws[k] for k in truth}, truth, thinned,
+                                        levels)
     passed = sum(fit.gate.select(nm).passed for nm in names)
     return Calibration(name, len(stats_), stats_[0].units, thinned, ranks, covered, passed,
                        fit.gate.divergences, {"min_ess_bulk": fit.gate.min_ess_bulk,

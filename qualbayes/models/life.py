@@ -44,15 +44,22 @@ import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
 
 
-def weibull_life_model(data, log_tref, center, chol, *, prior: LifePrior):
-    """``data``: dict of (groups, units) arrays (see ``log_likelihood``); ``center`` (G, 2),
-    ``chol`` (G, 2, 2) the Laplace mode and Cholesky factor of each group."""
+def whitened_sites(log_tref, center, chol):
+    """(b, u) = mode + L z per group, z the sampled site; records log shape and log scale.
+    Shared by this model and the prior-sensitivity model."""
     groups = center.shape[0]
     z = numpyro.sample("z", dist.ImproperUniform(dist.constraints.real, (), (groups, 2)))
     b = center[:, 0] + chol[:, 0, 0] * z[:, 0]
     u = center[:, 1] + chol[:, 1, 0] * z[:, 0] + chol[:, 1, 1] * z[:, 1]
     numpyro.deterministic("log_shape", b)
     numpyro.deterministic("log_scale", log_tref - u / jnp.exp(b))
+    return b, u
+
+
+def weibull_life_model(data, log_tref, center, chol, *, prior: LifePrior):
+    """``data``: dict of (groups, units) arrays (see ``log_likelihood``); ``center`` (G, 2),
+    ``chol`` (G, 2, 2) the Laplace mode and Cholesky factor of each group."""
+    b, u = whitened_sites(log_tref, center, chol)
     lp = log_prior(b, u, prior, log_tref, jnp) + log_likelihood(b, u, data, jnp)
     numpyro.factor("log_posterior", jnp.sum(lp))
 

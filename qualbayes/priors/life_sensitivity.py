@@ -58,7 +58,6 @@ setup_jax()
 
 import jax.numpy as jnp  # noqa: E402
 import numpyro  # noqa: E402
-import numpyro.distributions as dist  # noqa: E402
 
 JEFFREYS = LifePrior(shape=None, scale_kind="jeffreys")
 PREDICTIVE_DRAWS = 20_000
@@ -116,12 +115,9 @@ def log_density(b, u, data, log_tref, hyper, extra, structure, xp=np):
 def sensitivity_model(data, log_tref, center, chol, hyper, extra, *, structure):
     """The life model of :mod:`qualbayes.models.life` with the prior's numbers as
     arguments: (b, u) = mode + L z per group, target :func:`log_density`."""
-    groups = center.shape[0]
-    z = numpyro.sample("z", dist.ImproperUniform(dist.constraints.real, (), (groups, 2)))
-    b = center[:, 0] + chol[:, 0, 0] * z[:, 0]
-    u = center[:, 1] + chol[:, 1, 0] * z[:, 0] + chol[:, 1, 1] * z[:, 1]
-    numpyro.deterministic("log_shape", b)
-    numpyro.deterministic("log_scale", log_tref - u / jnp.exp(b))
+    from qualbayes.models.life import whitened_sites  # noqa: PLC0415
+
+    b, u = whitened_sites(log_tref, center, chol)
     numpyro.factor("log_posterior",
                    jnp.sum(log_density(b, u, data, log_tref, hyper, extra, structure, jnp)))
 

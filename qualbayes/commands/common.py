@@ -30,6 +30,21 @@ def add_output_options(p: argparse.ArgumentParser) -> None:
                         "into the new folder DIR")
     p.add_argument("--force", action="store_true",
                    help="allow replacing files of an earlier run in --out or --report")
+    add_analyst_option(p)
+
+
+def add_analyst_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--analyst", metavar="NAME",
+                   help="who prepared the analysis: recorded in the run record and shown in "
+                        "the report's sign-off block")
+
+
+def stamp(record: dict, args) -> dict:
+    """Add the run metadata (UTC time, report id, tool version, analyst) to ``record``."""
+    from qualbayes.evidence.report_common import run_metadata  # noqa: PLC0415
+
+    record.update(run_metadata(record, getattr(args, "analyst", None)))
+    return record
 
 
 def check_report(args) -> None:

@@ -11,6 +11,7 @@ from qualbayes.commands.common import (
     check_report,
     emit,
     out_targets,
+    stamp,
 )
 from qualbayes.commands.prior_options import add_prior_options
 
@@ -98,6 +99,7 @@ def run(args) -> int:
     result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
     record = life_record(result, data, sha, command_line(args.argv), versions())
     record.update(life_prior_evidence(args, result, data, prior, setup))
+    stamp(record, args)
     written = _write(record, data, targets, args.force) if targets else []
     emit(args, record, "" if args.json else life_text(record), written)
     return 0

@@ -10,6 +10,7 @@ from qualbayes.commands.common import (
     check_report,
     emit,
     out_targets,
+    stamp,
 )
 from qualbayes.commands.prior_options import add_prior_options
 
@@ -43,6 +44,7 @@ def run(args) -> int:
         lots_record,
         lots_text,
     )
+    from qualbayes.evidence.numbers import rate_unit_of  # noqa: PLC0415
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
 
@@ -57,6 +59,8 @@ def run(args) -> int:
     result = assess_lots(data, spec, confidence, prior, seed=args.seed)
     record = lots_record(result, data, sha, command_line(args.argv), versions())
     record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
+    record["question"]["rate_unit"] = rate_unit_of(args.spec)
+    stamp(record, args)
     if targets:
         _write(record, data, targets, args.force)
     emit(args, record, "" if args.json else lots_text(record), targets)

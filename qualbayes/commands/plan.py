@@ -14,7 +14,7 @@ import argparse
 import re
 from pathlib import Path
 
-from qualbayes.commands.common import check_report, write_report
+from qualbayes.commands.common import add_analyst_option, check_report, write_report
 from qualbayes.commands.prior_options import add_prior_options
 from qualbayes.errors import OptionError
 
@@ -165,6 +165,7 @@ def _output_options(p) -> None:
                         "into the new folder DIR")
     p.add_argument("--force", action="store_true",
                    help="allow replacing files of an earlier run in --out or --report")
+    add_analyst_option(p)
 
 
 # --------------------------------------------------------------------------- option parsing
@@ -473,13 +474,14 @@ def _targets(args, kind: str, curves: list[str]) -> dict[str, Path]:
 
 
 def _finish(record: dict, args, targets: dict[str, Path]) -> None:
-    from qualbayes.commands.common import print_text  # noqa: PLC0415
+    from qualbayes.commands.common import print_text, stamp  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
     from qualbayes.evidence.plan_record import plan_text  # noqa: PLC0415
     from qualbayes.provenance import command_line, versions  # noqa: PLC0415
 
     record["command"] = command_line(args.argv)
     record["versions"] = versions()
+    stamp(record, args)
     written = []
     if targets:
         written = _write(record, targets, args.force)

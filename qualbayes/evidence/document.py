@@ -8,6 +8,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from qualbayes.evidence.numbers import cell
+
 
 @dataclass
 class Table:
@@ -15,6 +17,9 @@ class Table:
     rows: list[list[object]]
     caption: str = ""
     id: str = ""
+    #: "" , "kv" (item-value pairs: long values such as a SHA-256 wrap anywhere) or
+    #: "signoff" (a form to fill in: tall empty cells)
+    style: str = ""
 
 
 @dataclass
@@ -45,6 +50,10 @@ class Report:
     subtitle: str
     sections: list[Section]
     alert: str | None = None  # shown at the very top (e.g. a failed convergence gate)
+    #: run metadata shown under the title and in the page margins: created_utc, report_id,
+    #: tool_version, analyst (see report_common.run_metadata)
+    meta: dict = field(default_factory=dict)
+    caution: str = ""  # repeated on every printed page
 
     def figures(self) -> list[Figure]:
         return [b for s in self.sections for b in s.blocks if isinstance(b, Figure)]
@@ -54,17 +63,6 @@ class Report:
 
 
 def fmt(value: object) -> str:
-    """One text form of a cell for every renderer (so HTML, PDF and tests agree)."""
-    if value is None:
-        return "-"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        if value != value:
-            return "-"
-        if value == 0:
-            return "0"
-        if abs(value) >= 1e5 or abs(value) < 1e-4:
-            return f"{value:.4g}"
-        return f"{value:.6g}"
-    return str(value)
+    """One text form of a cell for every renderer (so HTML, PDF and tests agree); builders
+    format rates and probabilities themselves with :mod:`qualbayes.evidence.numbers`."""
+    return cell(value)

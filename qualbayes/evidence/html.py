@@ -1,4 +1,5 @@
-"""Self-contained HTML: styles inline, figures as embedded PNG, no request to the network.
+"""Self-contained HTML: styles inline, figures as embedded PNG, no request to the network and
+no script. The same document, with its print rules (``@page``), is what pdf.py typesets.
 
 Every piece of text is escaped: lot ids and file names come from untrusted spreadsheets.
 """
@@ -15,27 +16,51 @@ CSS = """
 body{font-family:"DejaVu Sans",Helvetica,Arial,sans-serif;font-size:13px;color:#111;
 max-width:1100px;margin:24px auto;padding:0 16px;line-height:1.4}
 h1{font-size:22px;margin:0 0 4px}h2{font-size:16px;border-bottom:2px solid #333;
-margin-top:28px;padding-bottom:2px}.subtitle{color:#444;margin-bottom:12px}
-table{border-collapse:collapse;margin:8px 0 4px;font-size:12px}
-th,td{border:1px solid #777;padding:3px 6px;text-align:left;vertical-align:top}
+margin-top:28px;padding-bottom:2px}.subtitle{color:#444;margin-bottom:4px}
+.meta{color:#444;font-size:12px;margin-bottom:12px}
+table{border-collapse:collapse;margin:8px 0 4px;font-size:12px;max-width:100%}
+th,td{border:1px solid #777;padding:3px 6px;text-align:left;vertical-align:top;
+overflow-wrap:break-word}table.kv td{overflow-wrap:anywhere}
 th{background:#e4e4e4}tr:nth-child(even) td{background:#f6f6f6}
+td.num{text-align:right;white-space:nowrap}
 caption{caption-side:bottom;text-align:left;color:#444;font-size:11px;padding-top:3px}
 .alert{border:3px solid #000;background:#fff;padding:10px 14px;font-size:15px;
 font-weight:bold;margin:12px 0}
 .caution{border-left:6px solid #333;background:#eee;padding:8px 12px;font-weight:bold}
-.mono{font-family:"DejaVu Sans Mono",monospace;font-size:12px;word-break:break-all}
-figure{margin:12px 0;page-break-inside:avoid}figure img{max-width:100%;border:1px solid #bbb}
+.mono{font-family:"DejaVu Sans Mono",monospace;font-size:12px;overflow-wrap:anywhere;
+white-space:pre-wrap}
+figure{margin:12px 0;break-inside:avoid}figure img{max-width:100%;height:auto;
+border:1px solid #bbb}
 figcaption{color:#444;font-size:11px}
-@media print{body{margin:0;max-width:none}h2{page-break-after:avoid}
-table{page-break-inside:auto}tr{page-break-inside:avoid}}
+table.signoff{width:100%}table.signoff th{width:22%}
+table.signoff td{height:34px;background:#fff}
+@media print{body{margin:0;max-width:none;padding:0;font-size:9pt}
+h1{font-size:15pt}h2{font-size:11.5pt;margin-top:14pt;break-after:avoid}
+table{font-size:7.5pt;break-inside:auto}thead{display:table-header-group}
+tr{break-inside:avoid}th,td{padding:2px 4px}.mono{font-size:8pt}
+caption{font-size:7.5pt}figcaption{font-size:7.5pt}.alert{font-size:11pt}
+figure img{max-height:200mm}section{break-before:auto}
+h2+table,h2+p{break-before:avoid}}
 """
 
-# Marks the page when every image has decoded (read by the browser test).
-CHECK_SCRIPT = """<script>
-window.addEventListener('load',function(){var ok=0,imgs=document.images;
-for(var i=0;i<imgs.length;i++){if(imgs[i].complete&&imgs[i].naturalWidth>0){ok++;}}
-document.body.setAttribute('data-images-loaded',ok+'/'+imgs.length);});
-</script>"""
+
+def _css_string(text: str) -> str:
+    """``text`` as a CSS string literal (for the page-margin boxes)."""
+    out = text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", " ")
+    return '"' + "".join(ch if ch.isprintable() else " " for ch in out) + '"'
+
+
+def page_css(report: Report) -> str:
+    """Rules for printed pages: A4, the caution at the foot of every page, the report id and
+    page number at the head. Screens ignore them."""
+    meta = report.meta or {}
+    head = f"{report.title} - report {meta.get('report_id', '')}".strip(" -")
+    return ("@page{size:A4;margin:20mm 14mm 24mm 14mm;"
+            f"@top-left{{content:{_css_string(head)};font-size:7pt;color:#444}}"
+            '@top-right{content:"page " counter(page) " of " counter(pages);font-size:7pt;'
+            "color:#444}"
+            f"@bottom-center{{content:{_css_string(report.caution)};font-size:7pt;"
+            "font-weight:bold;color:#111;width:100%;text-align:left}}}")
 
 
 def png_bytes(fig) -> bytes:
@@ -47,15 +72,28 @@ def png_bytes(fig) -> bytes:
     return buf.getvalue()
 
 
+def meta_line(meta: dict) -> str:
+    """The run metadata in one line of words."""
+    parts = [f"report {meta['report_id']}" if meta.get("report_id") else "",
+             f"created {meta['created_utc']}" if meta.get("created_utc") else "",
+             f"qualbayes {meta['tool_version']}" if meta.get("tool_version") else "",
+             f"prepared by {meta['analyst']}" if meta.get("analyst") else ""]
+    return "; ".join(p for p in parts if p)
+
+
 def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
     pngs = pngs if pngs is not None else {f.id: png_bytes(f.figure) for f in report.figures()}
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
-             # no network at all: the policy forbids every fetch except embedded data
+             '<meta name="viewport" content="width=device-width, initial-scale=1">',
+             # no network and no script: the policy forbids every fetch but embedded data
              '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
-             'img-src data:; style-src \'unsafe-inline\'; script-src \'unsafe-inline\'">',
-             f"<title>{escape(report.title)}</title><style>{CSS}</style></head><body>",
+             'img-src data:; style-src \'unsafe-inline\'">',
+             f"<title>{escape(report.title)}</title>"
+             f"<style>{CSS}{page_css(report)}</style></head><body>",
              f"<h1>{escape(report.title)}</h1>",
              f'<div class="subtitle">{escape(report.subtitle)}</div>']
+    if report.meta:
+        parts.append(f'<div class="meta" id="run-meta">{escape(meta_line(report.meta))}</div>')
     if report.alert:
         parts.append(f'<div class="alert" id="gate-alert">{escape(report.alert)}</div>')
     for section in report.sections:
@@ -63,9 +101,14 @@ def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
         for block in section.blocks:
             parts.append(_block(block, pngs))
         parts.append("</section>")
-    parts.append(CHECK_SCRIPT)
     parts.append("</body></html>")
     return "\n".join(parts)
+
+
+def _td(value) -> str:
+    cls = ' class="num"' if isinstance(value, int | float) and not isinstance(value, bool) \
+        else ""
+    return f"<td{cls}>{escape(fmt(value))}</td>"
 
 
 def _block(block, pngs) -> str:
@@ -74,14 +117,23 @@ def _block(block, pngs) -> str:
         return f"<p{cls}>{escape(block.text)}</p>"
     if isinstance(block, Table):
         ident = f' id="{escape(block.id)}"' if block.id else ""
-        head = "".join(f"<th>{escape(h)}</th>" for h in block.headers)
-        body = "".join("<tr>" + "".join(f"<td>{escape(fmt(v))}</td>" for v in row) + "</tr>"
-                       for row in block.rows)
+        cls = f' class="{escape(block.style)}"' if block.style else ""
+        if block.style == "signoff":  # row headers and empty cells to fill in by hand
+            body = "".join(f"<tr><th>{escape(fmt(r[0]))}</th>"
+                           + "".join(f"<td>{escape(str(v or ''))}</td>" for v in r[1:])
+                           + "</tr>" for r in block.rows)
+            head = "".join(f"<th>{escape(h)}</th>" for h in block.headers)
+        else:
+            head = "".join(f"<th>{escape(h)}</th>" for h in block.headers)
+            body = "".join("<tr>" + "".join(_td(v) for v in row) + "</tr>"
+                           for row in block.rows)
         cap = f"<caption>{escape(block.caption)}</caption>" if block.caption else ""
-        return f"<table{ident}>{cap}<thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+        return (f"<table{ident}{cls}>{cap}<thead><tr>{head}</tr></thead><tbody>{body}"
+                "</tbody></table>")
     if isinstance(block, Figure):
         data = base64.b64encode(pngs[block.id]).decode("ascii")
-        cap = escape(block.caption or block.title)
+        cap = f"<b>{escape(block.title)}.</b>" + (f" {escape(block.caption)}"
+                                                   if block.caption != block.title else "")
         return (f'<figure id="{escape(block.id)}"><img alt="{escape(block.title)}" '
                 f'src="data:image/png;base64,{data}"><figcaption>{cap}</figcaption></figure>')
     raise TypeError(f"unknown block {type(block).__name__}")

@@ -14,6 +14,7 @@ import re
 from pathlib import Path
 
 from qualbayes.evidence.files import write_atomic
+from qualbayes.evidence.numbers import plural, probability, quantity
 
 STYLE = {
     "font.size": 9, "axes.edgecolor": "#333333", "axes.linewidth": 0.8,
@@ -49,7 +50,7 @@ def _plain_ticks(ax) -> None:
     from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter  # noqa: PLC0415
 
     ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
-    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:,.10g}"))
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: quantity(v)))
     ax.xaxis.set_minor_formatter(NullFormatter())
 
 
@@ -57,12 +58,34 @@ def _wy(p: float) -> float:
     return math.log(-math.log1p(-p))
 
 
-def draw_probability(group: dict, question: dict, path: Path, force: bool = False) -> Path:
+def _pyplot():
     import matplotlib  # noqa: PLC0415
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt  # noqa: PLC0415
 
+    return plt
+
+
+def _save(fig, path: Path, force: bool) -> Path:
+    plt = _pyplot()
+    with plt.rc_context(STYLE):
+        write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
+    plt.close(fig)
+    return path
+
+
+def draw_probability(group: dict, question: dict, path: Path, force: bool = False) -> Path:
+    return _save(probability_figure(group, question), path, force)
+
+
+def draw_reliability(group: dict, question: dict, path: Path, force: bool = False) -> Path:
+    return _save(reliability_figure(group, question), path, force)
+
+
+def probability_figure(group: dict, question: dict):
+    """The Weibull probability plot of one group (a matplotlib Figure)."""
+    plt = _pyplot()
     p = group["plot"]
     u = question["units"]
     cv = p["curve"]
@@ -97,21 +120,16 @@ def draw_probability(group: dict, question: dict, path: Path, force: bool = Fals
         ax.set_xlabel(f"time{f' ({u})' if u else ''}")
         ax.set_ylabel("unreliability F(t), Weibull scale")
         ax.set_title(f"Weibull probability plot - {group['group']}\n"
-                     f"median ranks (adjusted ranks, Bernard); {p['units']} units, "
-                     f"{group['failures']} failures", fontsize=9)
+                     f"median ranks (adjusted ranks, Bernard); {plural(p['units'], 'unit')}, "
+                     f"{plural(group['failures'], 'failure')}", fontsize=9)
         ax.legend(loc="upper left", fontsize=8)
         fig.tight_layout()
-        write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
-        plt.close(fig)
-    return path
+    return fig
 
 
-def draw_reliability(group: dict, question: dict, path: Path, force: bool = False) -> Path:
-    import matplotlib  # noqa: PLC0415
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt  # noqa: PLC0415
-
+def reliability_figure(group: dict, question: dict):
+    """R(t) of one group with its credible band, the mission and the target (a Figure)."""
+    plt = _pyplot()
     p = group["plot"]
     u = question["units"]
     cv = p["curve"]
@@ -128,7 +146,7 @@ def draw_reliability(group: dict, question: dict, path: Path, force: bool = Fals
         rel = group["reliability_at_mission"]
         ax.plot([question["mission"]], [rel["lower_bound"]], marker="v", color="black",
                 linestyle="none", label=f"{question['confidence']:.0%} lower bound "
-                                        f"{rel['lower_bound']:.4f}")
+                                        f"{probability(rel['lower_bound'])}")
         ax.set_xscale("log")
         _plain_ticks(ax)
         ax.set_ylim(0, 1.02)
@@ -138,9 +156,20 @@ def draw_reliability(group: dict, question: dict, path: Path, force: bool = Fals
                      fontsize=9)
         ax.legend(loc="lower left", fontsize=8)
         fig.tight_layout()
-        write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
-        plt.close(fig)
-    return path
+    return fig
+
+
+def group_figures(record: dict) -> list[tuple[str, str, object]]:
+    """(group, kind, Figure) for both figures of every group that has an answer; kind is
+    'probability' or 'reliability'."""
+    out = []
+    for group in record["groups"]:
+        if group["plot"] is not None:
+            out.append((group["group"], "probability",
+                        probability_figure(group, record["question"])))
+            out.append((group["group"], "reliability",
+                        reliability_figure(group, record["question"])))
+    return out
 
 
 def draw_all(record: dict, folder: Path, force: bool = False) -> list[Path]:

@@ -2,16 +2,16 @@
 
 from __future__ import annotations
 
-import tempfile
-from pathlib import Path
-
 from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.numbers import probability
 from qualbayes.evidence.prior_record import prior_sections
 from qualbayes.evidence.report_common import (
     caution_section,
     diagnostics_section,
     inputs_section,
     reproduce_sections,
+    run_metadata,
+    signoff_section,
 )
 
 
@@ -20,19 +20,16 @@ def _mi(s: dict | None, key: str = "median"):
 
 
 def _figures(record: dict) -> list[Figure]:
-    from qualbayes.evidence.life_plots import draw_all  # noqa: PLC0415 - matplotlib
+    from qualbayes.evidence.life_plots import group_figures  # noqa: PLC0415 - matplotlib
 
-    with tempfile.TemporaryDirectory() as tmp:
-        paths = draw_all(record, Path(tmp))
-        names = [g["group"] for g in record["groups"] if g["plot"] is not None]
-        out = []
-        for k, p in enumerate(paths):
-            kind = "Weibull probability plot" if k % 2 == 0 else "Reliability R(t)"
-            out.append(Figure(f"{kind}: {names[k // 2]}", p.read_bytes(),
-                              "Posterior median line with its credible band"
-                              + ("; points: median ranks (adjusted for suspensions, "
-                                 "Bernard's approximation)" if k % 2 == 0 else ""),
-                              f"fig-life-{k}"))
+    out = []
+    for k, (name, kind, fig) in enumerate(group_figures(record)):
+        title = "Weibull probability plot" if kind == "probability" else "Reliability R(t)"
+        out.append(Figure(f"{title}: {name}", fig,
+                          "Posterior median line with its credible band"
+                          + ("; points: median ranks (adjusted for suspensions, "
+                             "Bernard's approximation)" if kind == "probability" else ""),
+                          f"fig-life-{k}"))
     return out
 
 
@@ -66,8 +63,9 @@ def build(record: dict) -> Report:
     summary = Table(
         ["group", "units", "failures", "suspensions", f"R(mission) {c:.0%} lower bound",
          "P(R >= target)", "decision"],
-        [[g["group"], g["units"], g["failures"], g["suspensions"], _mi(r, "lower_bound"),
-          g["prob_meets_target"], g["decision"]] for g, r in zip(groups, rel, strict=True)],
+        [[g["group"], g["units"], g["failures"], g["suspensions"],
+          probability(_mi(r, "lower_bound")), probability(g["prob_meets_target"]),
+          g["decision"]] for g, r in zip(groups, rel, strict=True)],
         caption=f"meets: P(R(mission) >= target) >= {c:g}; does-not-meet: P(R(mission) < "
                 f"target) >= {c:g}; otherwise undecided; not-converged: no decision.",
         id="decision-summary")
@@ -76,7 +74,8 @@ def build(record: dict) -> Report:
         ["group", "shape", "scale", "B1", "B10", "mean life", "R(mission) median",
          "R interval low", "R interval high"],
         [[g["group"], _mi(g["shape"]), _mi(g["scale"]), _mi(g["b1"]), _mi(g["b10"]),
-          _mi(g["mean_life"]), _mi(r), *(r["interval"] if r else [None, None])]
+          _mi(g["mean_life"]), probability(_mi(r)),
+          *(map(probability, r["interval"]) if r else ["-", "-"])]
          for g, r in zip(groups, rel, strict=True)],
         caption=f"Posterior medians; R interval: {q['interval']}.", id="results")
     intervals = Table(
@@ -89,7 +88,8 @@ def build(record: dict) -> Report:
     sections = [
         Section("Decision summary", [Paragraph(f"Decisions: {counts}."), summary, *notes]),
         Section("The question asked", [Paragraph(q["asked"]), Table(
-            ["item", "value"], [["mission time", q["mission"]], ["units", q["units"]],
+            ["item", "value"], [["mission time", q["mission"]],
+                                ["time units", q["units"] or "(not stated)"],
                                 ["target reliability", q["target"]], ["confidence C", c],
                                 ["interval", q["interval"]], ["bound", q["lower_bound"]]])]),
         inputs_section(record),
@@ -105,6 +105,7 @@ def build(record: dict) -> Report:
             Paragraph("No figures: no group has a result.")]),
         caution_section(record),
         *reproduce_sections(record),
+        signoff_section(record),
     ]
     return Report("Reliability evidence (Weibull life)", f"{record['input']['file']} - "
-                  f"{q['asked']}", sections, alert)
+                  f"{q['asked']}", sections, alert, run_metadata(record), record["caution"])

@@ -3,12 +3,19 @@
 from __future__ import annotations
 
 from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.numbers import probability, rate
 from qualbayes.evidence.report_common import (
     caution_section,
     diagnostics_section,
     inputs_section,
     reproduce_sections,
+    run_metadata,
+    signoff_section,
 )
+
+
+def has_dates(record: dict) -> bool:
+    return any(lot.get("date") for lot in record["lots"])
 
 
 def build(record: dict) -> Report:
@@ -22,19 +29,27 @@ def build(record: dict) -> Report:
                  "converge, so no decision is given for those lots. Do not use any number in "
                  "this report for them; rerun with more data or seek a statistician's review.")
     c = q["confidence"]
+    unit = q.get("rate_unit", "%")
+
+    def r_(v):
+        return rate(v, unit)
+
     decisions = Table(
         ["lot", "part", "inspected", "defectives", "P(p <= spec)", "decision",
          "clean units to accept"],
-        [[r["lot"], r["part"], r["inspected"], r["defectives"], r["prob_within_spec"],
-          r["decision"], r["extra_clean_units_to_accept"]] for r in record["lots"]],
+        [[r["lot"], r["part"], r["inspected"], r["defectives"],
+          probability(r["prob_within_spec"]), r["decision"], r["extra_clean_units_to_accept"]]
+         for r in record["lots"]],
         caption=f"accept: P(p <= spec) >= {c:g}; reject: P(p > spec) >= {c:g}; otherwise "
-                "undecided; not-converged: no decision (sampler gate failed).",
+                "undecided; not-converged: no decision (sampler gate failed). Clean units "
+                "to accept: how many more units inspected without a defective would let "
+                "the lot be accepted.",
         id="decision-summary")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
     summary = Section("Decision summary", [Paragraph(f"Decisions: {counts}."), decisions])
     question = Section("The question asked", [
         Paragraph(q["asked"]),
-        Table(["item", "value"], [["defect-rate limit (spec)", q["spec"]],
+        Table(["item", "value"], [["defect-rate limit (spec)", r_(q["spec"])],
                                   ["confidence C", c], ["interval", q["interval"]],
                                   ["bound", q["upper_bound"]]])])
     model = Section("Model and prior", [
@@ -46,16 +61,18 @@ def build(record: dict) -> Report:
         ["lot", "part", "date", "n", "x", "mean", "interval low", "interval high",
          "upper bound", "P(p<=spec)", "decision", "N - n", "D median", "D upper"],
         [[r["lot"], r["part"], r["date"], r["inspected"], r["defectives"],
-          r["posterior_mean"], r["interval"][0], r["interval"][1], r["upper_bound"],
-          r["prob_within_spec"], r["decision"], r["remaining_units"],
+          r_(r["posterior_mean"]), r_(r["interval"][0]), r_(r["interval"][1]),
+          r_(r["upper_bound"]), probability(r["prob_within_spec"]), r["decision"],
+          r["remaining_units"],
           r["remaining_defectives"]["median"], r["remaining_defectives"]["upper_bound"]]
          for r in record["lots"]],
         caption="D: defectives among the units not inspected (median and upper bound at C).",
         id="results")])
     if record["next_lot"]:
-        rows = [[p, nl.get("mean"), (nl.get("interval") or [None, None])[0],
-                 (nl.get("interval") or [None, None])[1], nl.get("upper_bound"),
-                 nl.get("prob_within_spec")] for p, nl in record["next_lot"].items()]
+        rows = [[p, r_(nl.get("mean")), r_((nl.get("interval") or [None, None])[0]),
+                 r_((nl.get("interval") or [None, None])[1]), r_(nl.get("upper_bound")),
+                 probability(nl.get("prob_within_spec"))]
+                for p, nl in record["next_lot"].items()]
         results.blocks.append(Table(["part", "next lot: mean", "interval low",
                                      "interval high", "upper bound", "P(p<=spec)"], rows,
                                     caption="Predictive for the next lot of each part."))
@@ -68,10 +85,12 @@ def build(record: dict) -> Report:
                    f"{lot_plots.MAX_PANELS}). Dashed: the limit; hatched: the probability "
                    "mass beyond it.", "fig-densities"),
             Figure("Lot-by-lot intervals", lot_plots.intervals_figure(record),
-                   "Lots in date order with their credible intervals and means.",
-                   "fig-intervals"),
-            Figure("Prior and posterior", lot_plots.prior_posterior_figure(record), "",
-                   "fig-prior-posterior")]
+                   ("Lots in date order" if has_dates(record) else
+                    "Lots in the order of the file (no date column was found)")
+                   + " with their credible intervals and means.", "fig-intervals"),
+            Figure("Prior and posterior", lot_plots.prior_posterior_figure(record),
+                   "Each curve drawn whole on a logarithmic rate axis; the vertical line "
+                   "is the limit.", "fig-prior-posterior")]
     for k, (part, fig) in enumerate(lot_plots.rank_figures(record)):
         figures.blocks.append(Figure(f"Rank plots of the chains: {part}", fig,
                                      "Flat histograms: the chains explore the same "
@@ -82,6 +101,7 @@ def build(record: dict) -> Report:
 
     sections = [summary, question, inputs_section(record), model, *prior_sections(record),
                 diagnostics_section(record), results, figures, caution_section(record),
-                *reproduce_sections(record)]
+                *reproduce_sections(record), signoff_section(record)]
     return Report("Lot acceptance evidence",
-                  f"{record['input']['file']} - {q['asked']}", sections, alert)
+                  f"{record['input']['file']} - {q['asked']}", sections, alert,
+                  run_metadata(record), record["caution"])

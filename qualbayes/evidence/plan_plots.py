@@ -17,6 +17,13 @@ _MARKERS = ("o", "s", "^", "D")
 
 def curve_png(curve: dict) -> bytes:
     """One curve record (see qualbayes.planning.records.curve) drawn as PNG bytes."""
+    buf = io.BytesIO()
+    curve_figure(curve).savefig(buf, format="png")
+    return buf.getvalue()
+
+
+def curve_figure(curve: dict):
+    """One curve record drawn as a matplotlib Figure."""
     import matplotlib  # noqa: PLC0415
 
     matplotlib.use("Agg", force=True)
@@ -51,9 +58,7 @@ def curve_png(curve: dict) -> bytes:
     fig.suptitle(curve["title"], fontsize=11, x=0.02, ha="left")
     fig.text(0.02, 0.01, "qualbayes plan - decision support only", fontsize=7, color="0.4")
     fig.tight_layout(rect=(0, 0.03, 1, 0.97))
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    return buf.getvalue()
+    return fig
 
 
 def plan_figures(record: dict) -> dict[str, bytes]:

@@ -30,6 +30,11 @@ def plan_text(record: dict) -> str:
     return "\n".join(lines)
 
 
+def curve_sheet_name(name: str) -> str:
+    """``oc`` -> ``OC curve``, ``assurance`` -> ``Assurance curve``."""
+    return "OC curve" if name == "oc" else f"{name.replace('_', ' ').capitalize()} curve"
+
+
 def _sheet_name(name: str, used: set[str]) -> str:
     base = "".join(ch for ch in name if ch not in "[]:*?/\\")[:31] or "Sheet"
     out, k = base, 2
@@ -58,7 +63,7 @@ def plan_sheets(record: dict) -> dict:
         frame = pd.DataFrame({c["x_label"]: c["x"]})
         for s in c["series"]:
             frame[s["label"]] = s["y"]
-        sheets[_sheet_name(f"Curve {c['name']}", used)] = frame
+        sheets[_sheet_name(curve_sheet_name(c["name"]), used)] = frame
     cautions = [[record["caution"]], ["Assumptions:"]] + [[a] for a in record["assumptions"]]
     cautions += [["Standards to defer to:"]] + [[s] for s in record["standards"]]
     cautions += [[n] for n in record["notes"]]

@@ -3,20 +3,35 @@
 from __future__ import annotations
 
 from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
-from qualbayes.evidence.report_common import diagnostics_section, reproduce_sections
+from qualbayes.evidence.numbers import cell, rate
+from qualbayes.evidence.report_common import (
+    diagnostics_section,
+    label,
+    reproduce_sections,
+    run_metadata,
+    signoff_section,
+)
+
+RATE_KEYS = ("aql", "ltpd")
+PLAN_WORDS = {"attribute": "pass/fail demonstration test", "life": "life demonstration test "
+              "(binomial test with the test time scaled by an assumed Weibull shape)",
+              "mtbf": "constant failure rate demonstration test",
+              "sampling": "single sampling plan"}
 
 
 def _kv(mapping: dict) -> list[list[object]]:
-    """Rows of a key-value table; nested records show their one-line description (the gate
-    has its own section)."""
+    """Rows of a key-value table in words; nested records show their one-line description
+    (the gate has its own section)."""
     rows = []
     for k, v in mapping.items():
         if k == "convergence_gate":
             continue
         if isinstance(v, dict):
-            v = v.get("prior") or v.get("file") or ", ".join(f"{a}={b}" for a, b in v.items()
-                                                             if not isinstance(b, dict))
-        rows.append([k, v if not isinstance(v, list) else ", ".join(map(str, v))])
+            v = v.get("prior") or v.get("file") or ", ".join(
+                f"{label(a)} {cell(b)}" for a, b in v.items() if not isinstance(b, dict))
+        elif k in RATE_KEYS and isinstance(v, int | float):
+            v = rate(v)
+        rows.append([label(k), v if not isinstance(v, list) else ", ".join(map(cell, v))])
     return rows
 
 
@@ -64,7 +79,10 @@ def build(record: dict) -> Report:
                       [Paragraph(n) for n in record["notes"]])
     sections.append(caution)
     sections += reproduce_sections(record)
-    return Report(f"Test plan evidence: {record['plan']}", record["question"], sections, alert)
+    sections.append(signoff_section(record))
+    title = f"Test plan evidence: {PLAN_WORDS.get(record['plan'], record['plan'])}"
+    return Report(title, record["question"], sections, alert, run_metadata(record),
+                  record["caution"])
 
 
 def _diagnostics(record: dict) -> Section:

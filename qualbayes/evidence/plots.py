@@ -56,7 +56,21 @@ def rank_plot(chains_by_param: dict[str, np.ndarray], title: str, bins: int = 20
         ax.set_xlabel("rank among all draws")
     for ax in axes.ravel()[len(names):]:
         ax.axis("off")
-    axes.ravel()[0].legend(ncol=4, loc="lower left", bbox_to_anchor=(0, 1.12))
-    fig.suptitle(title, y=1.02, fontsize=9)
-    fig.tight_layout()
+    fig.suptitle(title, fontsize=9)
+    outside_legend(fig, axes.ravel()[0].get_legend_handles_labels(), ncol=4)
     return fig
+
+
+def outside_legend(fig, handles_labels: tuple[list, list], ncol: int | None = None):
+    """Lay the figure out with a band at the bottom for the legend, so that the legend
+    covers no curve, label or title; returns the legend (None when nothing is labelled)."""
+    handles, labels = handles_labels
+    if not handles:
+        fig.tight_layout()
+        return None
+    ncol = ncol or min(len(labels), 2)
+    rows = -(-len(labels) // ncol)
+    band = (0.16 * rows + 0.12) / fig.get_size_inches()[1]
+    fig.tight_layout(rect=(0, band, 1, 1))
+    return fig.legend(handles, labels, loc="lower center", ncol=ncol,
+                      bbox_to_anchor=(0.5, 0.0), frameon=False)

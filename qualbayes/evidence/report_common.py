@@ -1,6 +1,10 @@
-"""Sections every report shares: inputs, sampler and diagnostics, cautions, reproduction."""
+"""Sections every report shares: inputs, sampler and diagnostics, cautions, reproduction,
+sign-off; and the run metadata every record and report carries."""
 
 from __future__ import annotations
+
+import datetime as dt
+import uuid
 
 from qualbayes.evidence.document import Paragraph, Section, Table
 from qualbayes.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
@@ -8,11 +12,11 @@ from qualbayes.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
 
 def inputs_section(record: dict) -> Section:
     i = record["input"]
-    rows = [["file", i["file"]], ["sheet", i.get("sheet")], ["SHA-256", i["sha256"]],
+    rows = [["file", i["file"]], ["sheet", i.get("sheet")], ["SHA-256 (full)", i["sha256"]],
             ["header row", i.get("header_row")], ["rows read", i.get("rows_read")],
             ["rows rejected", i.get("rows_rejected", 0)]]
     rows += [[f"column for {k}", v] for k, v in (i.get("columns") or {}).items()]
-    blocks = [Table(["item", "value"], rows, id="inputs")]
+    blocks = [Table(["item", "value"], rows, id="inputs", style="kv")]
     if i.get("rows_rejected"):
         blocks.append(Paragraph("Rows rejected: " + "; ".join(i.get("rejected_reasons", []))))
     else:
@@ -31,7 +35,7 @@ def diagnostics_section(record: dict) -> Section:
             "numbers are exact up to floating-point rounding.")])
     first = next(iter(diags.values()))
     settings = first.get("settings", {})
-    blocks = [Table(["setting", "value"], [[k, v] for k, v in settings.items()],
+    blocks = [Table(["setting", "value"], [[label(k), v] for k, v in settings.items()],
                     caption="Sampler settings of the final attempt.", id="sampler"),
               Paragraph(f"Gate: rank-normalised R-hat <= {RHAT_MAX}, bulk and tail ESS >= "
                         f"{ESS_MIN:.0f}, divergent transitions <= {DIVERGENCES_MAX} "
@@ -59,8 +63,46 @@ def caution_section(record: dict) -> Section:
 def reproduce_sections(record: dict) -> list[Section]:
     versions = Section("Package versions", [Table(
         ["package", "version"], [[k, v] for k, v in record["versions"].items()])])
-    command = Section("Reproduce this run", [Paragraph(record["command"], "mono"), Paragraph(
-        "Run this command on the same input file (same SHA-256) and seed to obtain the same "
-        "numbers; `qualbayes report RUN.json --out DIR` rebuilds this report from its run "
-        "record.")])
+    command = Section("Reproduce this run", [
+        Paragraph(record["command"], "mono"),
+        Paragraph("Run this command on the same input file (same SHA-256) and seed to obtain "
+                  "the same numbers. This command rebuilds this report from its run record:"),
+        Paragraph("qualbayes report RUN.json --out NEW_FOLDER", "mono")])
     return [versions, command]
+
+
+META_KEYS = ("created_utc", "report_id", "tool_version", "analyst")
+
+
+def run_metadata(record: dict, analyst: str | None = None) -> dict:
+    """UTC time, report id, tool version and analyst of a run: the record's own fields when
+    it has them, otherwise made now (a new id, the current time and version)."""
+    from qualbayes import __version__  # noqa: PLC0415
+
+    now = dt.datetime.now(dt.UTC).replace(microsecond=0)
+    made = {"created_utc": now.isoformat().replace("+00:00", "Z"),
+            "report_id": f"QB-{now:%Y%m%d}-{uuid.uuid4().hex[:8].upper()}",
+            "tool_version": __version__, "analyst": analyst}
+    return {k: record[k] if record.get(k) else made[k] for k in META_KEYS}
+
+
+def signoff_section(record: dict) -> Section:
+    """A block to sign on paper: prepared by (the analyst when given), reviewed by, dates."""
+    analyst = run_metadata(record).get("analyst") or ""
+    rows = [["prepared by", analyst, "", ""], ["reviewed and approved by", "", "", ""]]
+    return Section("Sign-off", [
+        Paragraph("To be completed by hand. " + record["caution"]),
+        Table(["role", "name", "signature", "date"], rows, id="sign-off", style="signoff")])
+
+
+def label(key: str) -> str:
+    """A record key in words: ``draws_per_chain`` -> ``draws per chain``."""
+    return LABELS.get(key, key.replace("_", " "))
+
+
+LABELS = {"aql": "acceptable quality level (AQL)", "ltpd": "lot tolerance percent defective "
+          "(LTPD)", "alpha": "producer's risk (alpha)", "beta": "consumer's risk (beta)",
+          "lot_size": "lot size N", "units_inspected": "units inspected",
+          "mtbf_goal": "MTBF goal", "mission_time": "mission time", "target_accept":
+          "target acceptance probability", "max_tree_depth": "largest tree depth",
+          "chain_method": "how chains run", "draws_per_chain": "draws per chain"}

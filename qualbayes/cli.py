@@ -46,6 +46,9 @@ def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     args.argv = list(sys.argv[1:] if argv is None else argv)
+    from qualbayes import progress  # noqa: PLC0415
+
+    progress.quiet(bool(getattr(args, "json", False)))  # --json: nothing but the document
     previous = _on_sigterm(_terminated)
     from qualbayes.evidence.files import protect_inputs, release_inputs  # noqa: PLC0415
 

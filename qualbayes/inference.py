@@ -10,6 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
+from qualbayes import progress
 from qualbayes.gate import GateResult, diagnose
 
 _CONFIGURED = False
@@ -36,6 +37,7 @@ def setup_jax() -> None:
     jax.config.update("jax_platforms", "cpu")
     cache = os.environ.get("QUALBAYES_JAX_CACHE",
                            str(Path.home() / ".cache" / "qualbayes" / "jax"))
+    progress.compile_notice(cache)
     if cache and cache.lower() != "off":
         try:
             Path(cache).mkdir(parents=True, exist_ok=True)
@@ -72,7 +74,7 @@ class Fit:
 
 
 def show_progress() -> bool:
-    return not os.environ.get("CI") and sys.stderr.isatty()
+    return progress.enabled()
 
 
 def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
@@ -87,9 +89,11 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
     attempts = 0
     while True:
         attempts += 1
+        started = progress.fit_started(attempt_settings)
         draws, divergences = _sample(model, model_args, attempt_settings, init_params)
         checked = gate_on(draws) if gate_on else draws
         gate = diagnose(checked, divergences, attempts, _settings_dict(attempt_settings))
+        progress.fit_finished(started, gate.passed, attempt_settings.retry)
         if gate.passed or not attempt_settings.retry:
             return Fit(draws, gate, attempt_settings)
         attempt_settings = attempt_settings.harder()

@@ -58,9 +58,11 @@ def check_report(args) -> None:
 def write_report(args, record: dict) -> str | None:
     if not getattr(args, "report", None):
         return None
+    from qualbayes import progress  # noqa: PLC0415
     from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
 
-    write_report_folder(args.report, record, force=args.force)
+    with progress.task("building the report (figures, HTML, PDF)"):
+        write_report_folder(args.report, record, force=args.force)
     return f"report written: {args.report}/report.html, report.pdf"
 
 

@@ -34,6 +34,7 @@ from functools import partial
 
 import numpy as np
 
+from qualbayes import progress
 from qualbayes.inference import SamplerSettings, run_nuts, setup_jax
 from qualbayes.models.weibull import (
     FLAT,
@@ -287,7 +288,7 @@ def life_sensitivity(result, data: dict, rows: list[LifeRow], earlier=None,
     extra = _extra(earlier, mission)
     structure = structure_of([r.prior for r in rows])
     per_row: list[dict] = []
-    for row in rows:
+    for row in progress.steps(rows, "prior sensitivity: the question under each prior"):
         if row.as_run:
             per_row.append({g["group"]: {"prob": g["prob_meets_target"],
                                          "decision": g["decision"]} for g in result.groups})

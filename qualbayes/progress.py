@@ -1,0 +1,138 @@
+"""Progress on long work, written to stderr for a person at a terminal, and only there.
+
+Silent when stderr is not a terminal (a pipe, a file, a test's capture), when the ``CI``
+environment variable is set, and under ``--json`` (the command line calls :func:`quiet`).
+Nothing here changes a number: it only reports what is being done and how long it took.
+
+>>> with task("example", total=2) as t:   # silent here: doctest's stderr is no terminal
+...     t.advance()
+...     t.advance()
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+
+_QUIET = False
+_SAID: set[str] = set()
+_FITS = 0
+
+
+def quiet(flag: bool = True) -> None:
+    """Silence (or allow again) every progress display of this process."""
+    global _QUIET
+    _QUIET = bool(flag)
+
+
+def enabled() -> bool:
+    """True only for a person at a terminal: stderr is a tty, not CI, not --json."""
+    if _QUIET or os.environ.get("CI"):
+        return False
+    try:
+        return sys.stderr.isatty()
+    except (AttributeError, ValueError):  # replaced or closed stream
+        return False
+
+
+def _write(text: str) -> None:
+    sys.stderr.write(text)
+    sys.stderr.flush()
+
+
+def say(text: str) -> None:
+    """One line of progress (``qualbayes: ...``) when enabled."""
+    if enabled():
+        _write(f"qualbayes: {text}\n")
+
+
+def say_once(key: str, text: str) -> None:
+    """:func:`say`, at most once per process for ``key``."""
+    if key not in _SAID and enabled():
+        _SAID.add(key)
+        say(text)
+
+
+def _elapsed(seconds: float) -> str:
+    return f"{seconds:.1f} s" if seconds < 60 else f"{int(seconds // 60)} min {seconds % 60:.0f} s"
+
+
+class Task:
+    """Progress of one piece of work, a line per step (lines, not a bar redrawn in place, so
+    that the sampler's own bars and other messages never garble it). Use :func:`task`."""
+
+    def __init__(self, label: str, total: int | None = None):
+        self.label, self.total, self.done = label, total, 0
+        self.start = time.monotonic()
+        self.on = enabled()
+
+    def _since(self) -> str:
+        return _elapsed(time.monotonic() - self.start)
+
+    def advance(self, n: int = 1) -> None:
+        self.done += n
+        if self.on and self.total:
+            _write(f"qualbayes: {self.label}: {self.done:,} of {self.total:,} done "
+                   f"({self._since()})\n")
+
+    def __enter__(self) -> Task:
+        if self.on:
+            _write(f"qualbayes: {self.label}...\n")
+        return self
+
+    def __exit__(self, kind, value, tb) -> None:
+        if self.on and not (self.total and self.done == self.total and kind is None):
+            _write(f"qualbayes: {self.label}: {'done' if kind is None else 'stopped'} "
+                   f"in {self._since()}\n")
+
+
+def task(label: str, total: int | None = None) -> Task:
+    return Task(label, total)
+
+
+def steps(items: Iterable, label: str) -> Iterator:
+    """Iterate over ``items`` showing ``label: k of n``."""
+    items = list(items)
+    with task(label, len(items)) as t:
+        for item in items:
+            yield item
+            t.advance()
+
+
+def cache_is_cold(cache_dir: str | os.PathLike | None) -> bool:
+    """True when the compiled-code cache holds nothing yet (a first run compiles)."""
+    if not cache_dir or str(cache_dir).lower() == "off":
+        return True
+    path = Path(cache_dir)
+    try:
+        return not path.is_dir() or not any(path.iterdir())
+    except OSError:
+        return True
+
+
+def compile_notice(cache_dir: str | os.PathLike | None) -> None:
+    """Say once, on a first run (empty cache), that the sampler is being compiled."""
+    if cache_is_cold(cache_dir):
+        say_once("compile", "first run: compiling the sampler, which can take a minute or "
+                 "two; later runs reuse the compiled code and start much faster")
+
+
+def fit_started(settings) -> tuple[int, float]:
+    """Say that one NUTS fit starts (numpyro then shows a bar per chain); returns the fit's
+    number and start time for :func:`fit_finished`."""
+    global _FITS
+    _FITS += 1
+    iterations = settings.num_warmup + settings.num_samples
+    say(f"sampling, fit {_FITS}: {settings.num_chains} chains x {iterations:,} iterations")
+    return _FITS, time.monotonic()
+
+
+def fit_finished(started: tuple[int, float], passed: bool, retry: bool) -> None:
+    number, t0 = started
+    outcome = "sampler checks passed" if passed else (
+        "sampler checks failed, retrying once with twice the draws" if retry
+        else "sampler checks failed")
+    say(f"fit {number} done in {_elapsed(time.monotonic() - t0)}: {outcome}")

@@ -9,19 +9,34 @@ from pathlib import Path
 from qualbayes.caution import CAUTION
 
 
-def add_input_options(p: argparse.ArgumentParser) -> None:
+class HelpFormatter(argparse.ArgumentDefaultsHelpFormatter):
+    """Help that states each default once: "(default: X)" is added only when the help text
+    does not already speak of its default and there is a default worth stating."""
+
+    def _get_help_string(self, action):
+        text = action.help or ""
+        if "default" in text.lower() or action.default in (None, False, "", argparse.SUPPRESS):
+            return text
+        return super()._get_help_string(action)
+
+
+LOTS_COLUMNS_EXAMPLE = "inspected=Checked Qty,lot=Batch"
+
+
+def add_input_options(p: argparse.ArgumentParser,
+                      columns_example: str = LOTS_COLUMNS_EXAMPLE) -> None:
     p.add_argument("file", help="xlsx or csv export")
     p.add_argument("--sheet", help="xlsx sheet to read (default: the first visible one)")
     p.add_argument("--columns", metavar="KEY=HEADER,...",
                    help="name columns whose headers are not recognised, "
-                        "e.g. --columns 'inspected=Checked Qty,lot=Batch'")
+                        f"e.g. --columns '{columns_example}'")
     p.add_argument("--max-rows", type=int, default=500_000,
-                   help="refuse files with more data rows than this (default 500000)")
+                   help="refuse files with more data rows than this")
 
 
 def add_output_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--confidence", default="0.95",
-                   help="confidence C for bounds and decisions (default 0.95)")
+                   help="confidence C for bounds and decisions")
     p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
     p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
     p.add_argument("--out", metavar="DIR", help="write the evidence workbook into DIR")

@@ -3,9 +3,8 @@ requirement at the mission time?"""
 
 from __future__ import annotations
 
-import argparse
-
 from qualbayes.commands.common import (
+    HelpFormatter,
     add_input_options,
     add_output_options,
     check_report,
@@ -15,6 +14,7 @@ from qualbayes.commands.common import (
 )
 from qualbayes.commands.prior_options import add_prior_options
 
+LIFE_COLUMNS_EXAMPLE = "time=Op Hours,status=Condition,unit=Tag No"
 WORKBOOK = "life_results.xlsx"
 RECORD = "life_results.json"
 FIGURE = "life_prior.png"  # only with --believe, --earlier or --sensitivity
@@ -28,8 +28,8 @@ def register(sub) -> None:
                     "B10 lives, mean life, R(mission) with its one-sided lower bound, "
                     "P(R(mission) >= target), and meets / does-not-meet / undecided at the "
                     "stated confidence.",
-        formatter_class=argparse.ArgumentDefaultsHelpFormatter)
-    add_input_options(p)
+        formatter_class=HelpFormatter)
+    add_input_options(p, LIFE_COLUMNS_EXAMPLE)
     p.add_argument("--mission", required=True, help="mission time, in the units of the file")
     p.add_argument("--target", required=True,
                    help="reliability required at the mission time: 0.9 or 90%%")

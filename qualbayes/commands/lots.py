@@ -2,9 +2,8 @@
 
 from __future__ import annotations
 
-import argparse
-
 from qualbayes.commands.common import (
+    HelpFormatter,
     add_input_options,
     add_output_options,
     check_report,
@@ -24,12 +23,12 @@ def register(sub) -> None:
         "lots", help="decide lot by lot whether the defect rate is within its limit",
         description="For each lot: posterior of the defect rate p, P(p <= spec | data), and "
                     "accept / reject / undecided at the stated confidence.",
-        formatter_class=argparse.ArgumentDefaultsHelpFormatter)
+        formatter_class=HelpFormatter)
     add_input_options(p)
     p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
     p.add_argument("--prior", default=None,
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
-                        "lots of each part number, NUTS); default uniform")
+                        "lots of each part number, NUTS) (default: uniform)")
     add_prior_options(p, "p", "lots")
     add_output_options(p)
     p.set_defaults(func=run)

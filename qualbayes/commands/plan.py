@@ -10,11 +10,15 @@ All answers are closed forms or exact sums (scipy); only ``--history`` runs the 
 
 from __future__ import annotations
 
-import argparse
 import re
 from pathlib import Path
 
-from qualbayes.commands.common import add_analyst_option, check_report, write_report
+from qualbayes.commands.common import (
+    HelpFormatter,
+    add_analyst_option,
+    check_report,
+    write_report,
+)
 from qualbayes.commands.prior_options import add_prior_options
 from qualbayes.errors import OptionError
 
@@ -29,7 +33,7 @@ def register(sub) -> None:
         description="Demonstration test planning (attribute, Weibull life, constant rate) "
                     "and single sampling plans, classical and Bayesian, with assurance.")
     kinds = p.add_subparsers(dest="plan_kind", metavar="QUESTION", required=True)
-    fmt = argparse.ArgumentDefaultsHelpFormatter
+    fmt = HelpFormatter
 
     a = kinds.add_parser(
         "attribute", formatter_class=fmt,

@@ -179,7 +179,7 @@ def lot_prior_evidence(args, result, prior, setup, spec: float, confidence: floa
     extras = setup.record() if setup is not None else {
         "prior_words": [], "prior_elicited": [], "earlier_data": None}
     frame = result.lots
-    if prior != HISTORY:
+    if prior != HISTORY and (used(args) or args.prior is not None):  # a prior was stated
         lots = list(zip(frame["lot"].astype(str), frame["defectives"].astype(int),
                         frame["inspected"].astype(int), strict=True))
         pred = lots_predictive(prior.a, prior.b, lots)

@@ -10,7 +10,9 @@ import pandas as pd
 
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.life import LifeTable
+from qualbayes.evidence.explain import NEXT_STEP, gate_line, life_columns
 from qualbayes.evidence.jsonout import plain
+from qualbayes.evidence.numbers import probability, quantity
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
@@ -48,11 +50,7 @@ def life_record(result: LifeAssessment, data: LifeTable, sha256: str, command: s
 
 
 def _num(v, digits: int = 4):
-    if v is None:
-        return None
-    if abs(v) >= 1000:
-        return f"{v:,.0f}"
-    return f"{v:.{digits}g}"
+    return None if v is None else quantity(v, digits)
 
 
 def _with_interval(summary: dict | None) -> str | None:
@@ -75,10 +73,8 @@ def life_text(record: dict) -> str:
     ]
     for g in record["groups"]:
         d = g["diagnostics"]
-        status = "passed" if d["passed"] else "FAILED - no answer and no decision for this group"
-        head.append(f"convergence gate [{g['group']}]: {status} (max R-hat {d['max_rhat']:.4f}, "
-                    f"min bulk ESS {d['min_ess_bulk']:.0f}, min tail ESS "
-                    f"{d['min_ess_tail']:.0f}, divergences {d['divergences']})")
+        head.append(gate_line(f"group {g['group']}", d,
+                              "no answer and no decision for this group"))
         for reason in d["reasons"]:
             head.append(f"  - {reason}")
     headers = ["group", "units", "fail", "susp", "shape", f"scale{u}", f"B10{u}",
@@ -89,11 +85,12 @@ def life_text(record: dict) -> str:
         rows.append([g["group"], g["units"], g["failures"], g["suspensions"],
                      _with_interval(g["shape"]), _with_interval(g["scale"]),
                      _with_interval(g["b10"]),
-                     None if rel is None else f"{rel['median']:.4f}",
-                     None if rel is None else f"{rel['lower_bound']:.4f}",
-                     None if g["prob_meets_target"] is None else f"{g['prob_meets_target']:.4f}",
+                     None if rel is None else probability(rel["median"]),
+                     None if rel is None else probability(rel["lower_bound"]),
+                     None if g["prob_meets_target"] is None else
+                     probability(g["prob_meets_target"]),
                      g["decision"]])
-    detail = [f"(medians with {record['question']['interval']}s)"]
+    detail = [life_columns(c), f"(medians with {record['question']['interval']}s)"]
     for g in record["groups"]:
         if g["b1"] is not None:
             detail.append(f"[{g['group']}] B1 life {_with_interval(g['b1'])}{u}; mean life "
@@ -103,7 +100,7 @@ def life_text(record: dict) -> str:
         for n in g["notes"]:
             detail.append(f"[{g['group']}] {n}")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
-    tail = [f"decisions: {counts}", *record["notes"], CAUTION]
+    tail = [f"decisions: {counts}", *record["notes"], NEXT_STEP, CAUTION]
     head += prior_lines(record)
     detail += sensitivity_lines(record)
     return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrl"), "", *detail, "",

@@ -11,7 +11,9 @@ import pandas as pd
 from qualbayes.acceptance import LotAssessment
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.lots import LotTable
+from qualbayes.evidence.explain import NEXT_STEP, gate_line, lots_columns
 from qualbayes.evidence.jsonout import plain, without_draws  # noqa: F401 - re-export
+from qualbayes.evidence.numbers import count, plural, probability, rate
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
@@ -61,53 +63,56 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
     })
 
 
-def _pct(v):
-    """A rate as a percentage for people; below 1 ppm it is shown as '<0.0001%'."""
-    if v is None:
-        return None
-    return "<0.0001%" if v < 1e-6 else f"{100 * v:.3g}%"
-
-
 def lots_text(record: dict) -> str:
     q = record["question"]
+    unit = q.get("rate_unit", "%")
+
+    def pct(v):
+        return None if v is None else rate(v, unit)
+
     head = [
         f"Lot acceptance: {q['asked']}",
         f"input: {record['input']['file']}"
         + (f" [sheet {record['input']['sheet']}]" if record["input"]["sheet"] else "")
-        + f", {record['input']['rows_read']} lots, sha256 {record['input']['sha256'][:16]}...",
+        + f", {plural(record['input']['rows_read'], 'lot')}, sha256 "
+          f"{record['input']['sha256'][:16]}... (in full in the report)",
         f"prior: {record['prior']}",
     ]
     for part, d in record["diagnostics"].items():
-        status = "passed" if d["passed"] else "FAILED - no decision for these lots"
-        head.append(f"convergence gate [{part}]: {status} (max R-hat {d['max_rhat']:.4f}, "
-                    f"min bulk ESS {d['min_ess_bulk']:.0f}, min tail ESS "
-                    f"{d['min_ess_tail']:.0f}, divergences {d['divergences']})")
+        head.append(gate_line(f"part {part}", d, "no decision for these lots"))
         for reason in d["reasons"]:
             head.append(f"  - {reason}")
     c = q["confidence"]
+    finite = any(lot.get("remaining_units") is not None for lot in record["lots"])
     headers = ["lot", "part", "n", "x", "mean", f"{c:.0%} interval", f"{c:.0%} upper",
                "P(p<=spec)", "decision", "clean units to accept"]
+    if finite:
+        headers += ["units left", "defectives left"]
     rows = []
     for lot in record["lots"]:
         lo, hi = lot["interval"]
-        rows.append([lot["lot"], lot["part"], lot["inspected"], lot["defectives"],
-                     _pct(lot["posterior_mean"]),
-                     None if lo is None else f"{_pct(lo)} - {_pct(hi)}",
-                     _pct(lot["upper_bound"]),
-                     None if lot["prob_within_spec"] is None else
-                     f"{lot['prob_within_spec']:.4f}",
-                     lot["decision"], lot["extra_clean_units_to_accept"]])
+        row = [lot["lot"], lot["part"], lot["inspected"], lot["defectives"],
+               pct(lot["posterior_mean"]), None if lo is None else f"{pct(lo)} - {pct(hi)}",
+               pct(lot["upper_bound"]),
+               None if lot["prob_within_spec"] is None else probability(lot["prob_within_spec"]),
+               lot["decision"], lot["extra_clean_units_to_accept"]]
+        if finite:
+            d = lot["remaining_defectives"]
+            row += [lot["remaining_units"], None if d["median"] is None else
+                    f"{count(d['median'])} (up to {count(d['upper_bound'])})"]
+        rows.append(row)
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
     tail = [f"decisions: {counts}"]
     for part, nl in record["next_lot"].items():
         if "prob_within_spec" in nl:
-            tail.append(f"next lot of {part}: predicted defect rate mean {_pct(nl['mean'])}, "
-                        f"{c:.0%} upper {_pct(nl['upper_bound'])}, "
-                        f"P(p<=spec) {nl['prob_within_spec']:.4f}")
+            tail.append(f"next lot of {part}: predicted defect rate mean {pct(nl['mean'])}, "
+                        f"{c:.0%} upper {pct(nl['upper_bound'])}, "
+                        f"P(p<=spec) {probability(nl['prob_within_spec'])}")
     tail += record["notes"]
-    tail.append(CAUTION)
+    tail += [NEXT_STEP, CAUTION]
     head += prior_lines(record)
-    table = [text_table(headers, rows, "llrrrrrrll"), *sensitivity_lines(record)]
+    table = [text_table(headers, rows, "llrrrrrrlr" + "rr" * finite),
+             lots_columns(finite, c), *sensitivity_lines(record)]
     return "\n".join([*head, "", *table, "", *tail])
 
 

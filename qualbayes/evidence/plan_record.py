@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from qualbayes.evidence.explain import NEXT_STEP, gate_line
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 
@@ -13,12 +14,7 @@ from qualbayes.evidence.terminal import table as text_table
 def plan_text(record: dict) -> str:
     lines = list(record["summary"])
     for name, gate in record.get("diagnostics", {}).items():
-        status = "passed" if gate.get("passed") else "FAILED - no plan"
-        lines.append(f"convergence gate [{name}]: {status} (max R-hat "
-                     f"{gate.get('max_rhat', float('nan')):.4f}, min bulk ESS "
-                     f"{gate.get('min_ess_bulk', float('nan')):.0f}, min tail ESS "
-                     f"{gate.get('min_ess_tail', float('nan')):.0f}, divergences "
-                     f"{gate.get('divergences')})")
+        lines.append(gate_line(f"the prior learned from {name}", gate, "no plan"))
     for t in record["tables"]:
         lines += ["", t["title"] + ":", text_table(t["columns"], t["rows"])]
     lines += prior_lines(record) + sensitivity_lines(record)
@@ -26,6 +22,7 @@ def plan_text(record: dict) -> str:
     if record["notes"]:
         lines += ["notes:"] + [f"  - {n}" for n in record["notes"]]
     lines.append("standards to defer to: " + "; ".join(record["standards"]))
+    lines.append(NEXT_STEP)
     lines.append(record["caution"])
     return "\n".join(lines)
 

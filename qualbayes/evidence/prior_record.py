@@ -30,7 +30,10 @@ def legend(sens: dict) -> list[str]:
 
 def prior_lines(record: dict) -> list[str]:
     """The prior in words (stated, borrowed, expected data) for the terminal."""
-    return [f"prior in words: {w}" for w in record.get("prior_words") or []]
+    from qualbayes.evidence.explain import prior_range_advice  # noqa: PLC0415
+
+    lines = [f"prior in words: {w}" for w in record.get("prior_words") or []]
+    return lines + (prior_range_advice(record.get("prior_predictive")) if lines else [])
 
 
 def sensitivity_lines(record: dict) -> list[str]:

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from qualbayes.evidence.numbers import cell
+
 
 def table(headers: Sequence[str], rows: Sequence[Sequence[object]],
           align: str | None = None) -> str:
@@ -26,16 +28,4 @@ def table(headers: Sequence[str], rows: Sequence[Sequence[object]],
 
 
 def _fmt(v: object) -> str:
-    if v is None:
-        return "-"
-    if isinstance(v, float):
-        if v != v:
-            return "-"
-        if v == 0:
-            return "0"
-        if abs(v) >= 1000:
-            return f"{v:,.0f}"
-        if abs(v) < 0.001:
-            return f"{v:.2e}"
-        return f"{v:.4g}"
-    return str(v)
+    return cell(v)

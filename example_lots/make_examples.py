@@ -3,7 +3,7 @@
 Scenario (fictional): Kestrel Fluid Systems, Dunmore plant, receives three purchased parts.
   KV-220 valve seat   from Alder Castings       (stable, very few defects)
   PC-14 pump cover    from Brightwater Machining (about 0.4% defective)
-  GS-7 gasket         from Corvel Polymers       (mostly fine; lot G-1108 is clearly bad)
+  GS-7 gasket         from Tarnbeck Polymers     (mostly fine; lot G-1108 is clearly bad)
 Lot B-2215 is the borderline lot. Nothing here is real data.
 """
 
@@ -26,7 +26,7 @@ def lots() -> list[list[object]]:
     rows: list[list[object]] = []
     specs = [("KV-220", "Alder Castings", "A", 0.0015, 14),
              ("PC-14", "Brightwater Machining", "B", 0.004, 12),
-             ("GS-7", "Corvel Polymers", "G", 0.003, 10)]
+             ("GS-7", "Tarnbeck Polymers", "G", 0.003, 10)]
     for part, supplier, prefix, rate, count in specs:
         day = dt.date(2026, 7, 1)
         for k in range(count):

@@ -45,7 +45,7 @@ def rig_rows(rng) -> list[list[object]]:
         for k in range(count):
             end = pulled_at[k] if pulled[k] else cutoff
             if life[k] < end:
-                rows.append([f"SV30-{prefix}{k + 1:03d}", rev, round(float(life[k]), 1), "F"])
+                rows.append([f"SV30-{prefix}{k + 1:03d}", rev, round(float(life[k]), 1), "failed"])
             else:
                 status = "Suspended" if pulled[k] else "Running"
                 rows.append([f"SV30-{prefix}{k + 1:03d}", rev, round(float(end), 1), status])
@@ -79,7 +79,7 @@ def field_rows(rng) -> list[list[object]]:
 
 
 def zero_rows() -> list[list[object]]:
-    return [[f"QC-{k + 1:02d}", 4000, "S"] for k in range(14)]
+    return [[f"QC-{k + 1:02d}", 4000, "suspended"] for k in range(14)]
 
 
 def write_csv(name: str, header: list[str], rows) -> None:

@@ -248,7 +248,7 @@ def test_life_command_text_on_field_returns(examples, capsys):
                  "--target", "0.9", "--confidence", "0.9", "--units", "h"])
     text = capsys.readouterr().out
     assert code == 0
-    assert "convergence gate [(all units)]: passed" in text
+    assert "sampler checks passed for group (all units)" in text
     assert "CAUTION" in text and "P(R(5000 h) >= 0.9 | data) >= 0.9?" in text
 
 

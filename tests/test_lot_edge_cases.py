@@ -149,7 +149,7 @@ def test_exact_sum_in_blocks_matches_scipy_for_many_draws():
 EDGE_PARTS = {
     # part: list of (inspected, defectives, lot size)
     "single": [(125, 2, 5000)],
-    "one-unit": [(1, 1, None)] * 6 + [(1, 0, None)] * 34,
+    "one-unit": [(1, 1, None)] * 4 + [(1, 0, None)] * 37,
     "all-defective": [(50, 50, None)] * 8,
     "zero-in-huge": [(10**6, 0, 10**9)] * 10,
     "ties": [(125, 1, 2000)] * 30,
@@ -255,11 +255,11 @@ def test_history_edge_parts_give_finite_sensible_decisions(history):
     ties = lots.loc[part == "ties", numeric + ["decision"]]
     assert (ties.nunique() == 1).all()
     # one unit per lot tells nothing about lot-to-lot spread: mu | data is exactly
-    # Beta(1 + 6, 1 + 34) whatever kappa is (the beta-binomial with n = 1 is Bernoulli(mu))
+    # Beta(1 + 4, 1 + 37) whatever kappa is (the beta-binomial with n = 1 is Bernoulli(mu))
     import arviz as az
 
     mu = np.asarray(history.draws["one-unit"]["mu"])
-    exact = stats.beta(7, 35)
+    exact = stats.beta(5, 38)
     ess = float(az.ess(mu, method="bulk"))
     assert abs(mu.mean() - exact.mean()) <= 4 * exact.std() / np.sqrt(ess)
     for q in (0.1, 0.5, 0.9):

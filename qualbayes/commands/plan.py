@@ -61,7 +61,8 @@ def register(sub) -> None:
     life = kinds.add_parser(
         "life", formatter_class=fmt,
         help="with n units and a Weibull shape, how long must each unit be tested?",
-        description="Weibull-extended (parametric binomial) test: test time per unit for the "
+        description="Binomial test with the test time scaled by an assumed Weibull shape: "
+                    "test time per unit for the "
                     "units available, allowing c failures, with a known shape or a shape "
                     "range; the trade-off of units against test time.")
     _goal_options(life)

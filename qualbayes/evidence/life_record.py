@@ -136,6 +136,8 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
         "posterior mode scale": g["posterior_mode"]["scale"],
         "notes": " ".join(g["notes"]),
     } for g in record["groups"]])
+    results.attrs["formats"] = {c: "probability" for c in results.columns
+                                if str(c).startswith(("R(mission)", "Monte Carlo"))}
     sheets: dict = {"Results": results}
     if data is not None:
         f = data.frame

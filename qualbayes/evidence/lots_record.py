@@ -130,6 +130,8 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
         "defectives not inspected, median": r["remaining_defectives"]["median"],
         "defectives not inspected, upper bound": r["remaining_defectives"]["upper_bound"],
     } for r in record["lots"]])
+    decisions.attrs.update(rate_unit=q.get("rate_unit", "%"), formats=dict.fromkeys(
+        ["posterior mean", "interval low", "interval high", "upper bound"], "rate"))
     inputs = pd.DataFrame([{
         "spreadsheet row": r["row"], "lot": r["lot"], "part": r["part"],
         "supplier": r["supplier"], "date": r["date"], "lot size": r["lot_size"],

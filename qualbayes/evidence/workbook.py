@@ -9,6 +9,7 @@ from pathlib import Path
 import pandas as pd
 
 from qualbayes.evidence.files import write_atomic
+from qualbayes.evidence.numbers import excel_format
 
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
@@ -45,12 +46,16 @@ def workbook_writer(sheets: dict[str, pd.DataFrame | list[list[object]]]
         for name, content in sheets.items():
             ws = wb.create_sheet(title=name[:31])
             rows = _rows(content)
+            formats = column_formats(content)
             for r, row in enumerate(rows, start=1):
                 for c, value in enumerate(row, start=1):
                     cell = ws.cell(row=r, column=c)
                     cell.value = safe_cell(value)
                     if isinstance(cell.value, str):
                         cell.data_type = "s"
+                    elif isinstance(cell.value, int | float) and not isinstance(
+                            cell.value, bool):
+                        cell.number_format = formats.get(c - 1) or _default_format(cell.value)
             if isinstance(content, pd.DataFrame):
                 for cell in ws[1]:
                     cell.font = Font(bold=True)
@@ -61,6 +66,26 @@ def workbook_writer(sheets: dict[str, pd.DataFrame | list[list[object]]]
         wb.save(tmp)
 
     return writer
+
+
+def _default_format(value: float) -> str:
+    return excel_format("count") if isinstance(value, int) else excel_format("quantity")
+
+
+def column_formats(content) -> dict[int, str]:
+    """Display formats by column index: a DataFrame may name the kind of number in each
+    column in ``frame.attrs["formats"]`` ({column: "rate" | "probability" | "count" |
+    "quantity"}, and "rate_unit"); columns named ``P(...)`` are probabilities."""
+    if not isinstance(content, pd.DataFrame):
+        return {}
+    kinds = dict(content.attrs.get("formats") or {})
+    unit = content.attrs.get("rate_unit", "%")
+    out = {}
+    for j, col in enumerate(content.columns):
+        kind = kinds.get(col) or ("probability" if str(col).startswith("P(") else None)
+        if kind:
+            out[j] = excel_format(kind, unit)
+    return out
 
 
 def _rows(content) -> list[list[object]]:

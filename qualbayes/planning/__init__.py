@@ -2,7 +2,8 @@
 
 Modules, one job each:
   attribute   pass/fail demonstration: success run, c-failure binomial, Beta-prior plans
-  weibull     Weibull-extended (parametric binomial) test time, known shape or shape range
+  weibull     binomial test with the test time scaled by an assumed Weibull shape (known
+              shape or shape range)
   mtbf        constant failure rate tests: chi-square and gamma-prior test times
   assurance   prior-predictive probability of passing; smallest plan for a wanted assurance
   sampling    single sampling plans (n, c) for AQL/alpha and LTPD/beta; OC; accepted lots

@@ -275,13 +275,16 @@ def plan_life(reliability: float, confidence: float, mission: float, units, shap
                "log_sd": shape.log_sd}, "wanted_assurance": assurance}
     bayes = analysis is not None
     if not bayes:
-        method = ("Weibull-extended binomial: X ~ Binomial(n, 1 - R*^(L^beta)); "
-                  "L = (ln R_L / ln R*)^(1/beta), R_L = BetaInv(1 - C; n - c, c + 1)" if known
-                  else "Weibull-extended binomial with the consumer's risk at the goal "
+        method = ("binomial test with the test time scaled by an assumed Weibull shape: "
+                  "X ~ Binomial(n, 1 - R*^(L^beta)); L = (ln R_L / ln R*)^(1/beta), R_L the "
+                  "(1 - C) quantile of Beta(n - c, c + 1)" if known
+                  else "binomial test with the test time scaled by an assumed Weibull shape, "
+                  "the consumer's risk at the goal "
                   "averaged over ln(beta) ~ Normal (the stated range as its central 95%): "
                   "E_beta[P(X <= c | R*)] <= 1 - C, solved for L")
     else:
-        method = ("Bayesian Weibull-extended: least L with P(R(t) >= R* | c of n failed in "
+        method = ("Bayesian, test time scaled by an assumed Weibull shape: least L with "
+                  "P(R(t) >= R* | c of n failed in "
                   f"L t) >= C, prior {analysis.label}; posterior by the exact signed Beta sum "
                   "over (1 - (1 - p)^(L^beta))^c" + ("" if known else
                                                       ", averaged over ln(beta) ~ Normal"))

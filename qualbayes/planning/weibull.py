@@ -1,4 +1,4 @@
-r"""Life demonstration with a Weibull shape (parametric binomial, "extended test time").
+r"""Life demonstration: a binomial test with the test time scaled by an assumed Weibull shape.
 
 Units fail by a Weibull law with shape :math:`\beta`; reliability at the mission time t is
 :math:`R = \exp(-(t/\eta)^\beta)`. Testing each unit for :math:`L t` instead of t gives a

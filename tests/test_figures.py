@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 from matplotlib.collections import PolyCollection
 from matplotlib.figure import Figure
+from matplotlib.patches import StepPatch
 
 from qualbayes.evidence import lot_plots
 from qualbayes.evidence.life_plots import probability_figure, reliability_figure
@@ -115,18 +116,22 @@ def test_prior_posterior_curves_are_whole_distinct_and_uncovered(make):
         lo, hi = ax.get_xlim()
         top = ax.get_ylim()[1]
         curves = _curves(ax)
-        assert len(curves) >= 2
+        steps = [p for p in ax.patches if isinstance(p, StepPatch)]
+        assert len(curves) + len(steps) >= 3  # prior and at least two posteriors
         for ln in curves:
             x, y = (np.asarray(v, float) for v in ln.get_data())
             assert x.min() >= lo * (1 - 1e-9) and x.max() <= hi * (1 + 1e-9), ln.get_label()
             assert np.nanmax(y) <= top, f"{ln.get_label()} cut at the top"
             # whole: the curve falls to a small part of its peak at both ends of its range
             assert y[0] < 0.2 * np.nanmax(y) or ln.get_label().startswith("prior")
-        styles = [(str(ln.get_linestyle()), ln.get_color(), ln.get_linewidth())
-                  for ln in curves]
+        styles = [(str(a.get_linestyle()), str(a.get_edgecolor() if isinstance(a, StepPatch)
+                                                 else a.get_color()), a.get_linewidth())
+                  for a in [*curves, *steps]]
         assert len(set(styles)) == len(styles), "two curves drawn alike"
-        for patch in ax.patches:  # the histogram of mu stays under the top too
-            assert _bbox(patch, fig).y1 <= _bbox(ax, fig).y1 + 1
+        for patch in steps:  # histograms (of ln p) whole and under the top too
+            edges = patch.get_data().edges
+            assert edges[0] >= lo * (1 - 1e-9) and edges[-1] <= hi * (1 + 1e-9)
+            assert patch.get_data().values.max() <= top
     _legend_covers_nothing(fig)
 
 

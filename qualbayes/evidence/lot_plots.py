@@ -161,12 +161,16 @@ def _history_panel(ax, d) -> None:
     hist, _ = np.histogram(log_mu, bins=edges, density=True)
     ax.stairs(hist, np.exp(edges) * 100, color=INK, linewidth=1.3,
               label="posterior of the mean rate mu")
-    alpha, beta = mu * kappa, (1 - mu) * kappa
-    grid = _whole_grid(alpha, beta)
-    sub = slice(None, None, max(1, mu.size // 400))
-    pred = _log_density(grid, alpha[sub], beta[sub])
-    ax.plot(grid * 100, pred, color=MID, linestyle="--", linewidth=1.1,
-            label="next lot's rate (predictive)")
+    # the next lot's rate: one draw per posterior draw, as a histogram of ln p over its
+    # central 99% (a density curve would be unbounded where the Beta shapes fall below 1)
+    pred = np.random.default_rng(0).beta(mu * kappa, (1 - mu) * kappa)
+    pred = pred[pred > 0]
+    lo, hi = np.quantile(pred, [0.005, 0.995])
+    grid = np.geomspace(max(min(lo, mu.min()), 1e-12), max(hi, mu.max()), 500)
+    edges = np.linspace(np.log(lo), np.log(hi), 41)
+    counts, _ = np.histogram(np.log(pred), bins=edges)
+    ax.stairs(counts / (pred.size * np.diff(edges)), np.exp(edges) * 100, color=MID,
+              linestyle="--", linewidth=1.1, label="next lot's rate (predictive)")
     prior = np.geomspace(grid[0], 1.0, 200)
     ax.plot(prior * 100, prior, color=LIGHT, linestyle=":", linewidth=1.4,
             label="prior of mu: uniform on (0, 1)")

@@ -7,6 +7,7 @@ import re
 import shutil
 import subprocess
 import threading
+from html import escape
 from html.parser import HTMLParser
 from pathlib import Path
 
@@ -16,6 +17,7 @@ from helpers import write_csv
 from qualbayes.cli import main
 from qualbayes.evidence.report_folder import write_report_folder
 
+ANALYST = "R. Quinlan <QA>"
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 PDFTOTEXT = shutil.which("pdftotext")
 needs_browser = pytest.mark.skipif(CHROMIUM is None and not os.environ.get("QUALBAYES_CI"),
@@ -67,7 +69,8 @@ def history_report(tmp_path_factory, examples=None):
 
     out = tmp_path_factory.mktemp("rep") / "run1"
     assert main(["lots", str(EXAMPLES / "incoming_inspection.xlsx"), "--spec", "1%",
-                 "--prior", "history", "--seed", "5", "--report", str(out)]) == 0
+                 "--prior", "history", "--seed", "5", "--report", str(out),
+                 "--analyst", ANALYST]) == 0
     return out
 
 
@@ -85,7 +88,7 @@ class _Recorder(http.server.BaseHTTPRequestHandler):
         pass
 
 
-def _browse(html: Path, tmp_path: Path) -> tuple[str, Path, list[str]]:
+def _browse(html: Path, tmp_path: Path, width: int = 1200) -> tuple[str, Path, list[str]]:
     """Open ``html`` in headless Chromium behind a recording loopback proxy; returns the DOM
     after load, a screenshot and the requests that did not come from the browser itself."""
     assert CHROMIUM, "chromium must be installed in CI (.ci/run installs it)"
@@ -98,14 +101,15 @@ def _browse(html: Path, tmp_path: Path) -> tuple[str, Path, list[str]]:
              f"--proxy-server=http://127.0.0.1:{server.server_address[1]}",
              "--proxy-bypass-list=<-loopback>", "--virtual-time-budget=5000",
              "--no-pings", "--disable-domain-reliability", "--disable-default-apps",
-             "--disable-client-side-phishing-detection",
-             "--disable-features=NetworkTimeServiceQuerying,OptimizationHints,MediaRouter"]
+             "--disable-client-side-phishing-detection", "--hide-scrollbars",
+             "--disable-features=NetworkTimeServiceQuerying,OptimizationHints,MediaRouter",
+             f"--window-size={width},1800"]
     try:
         dom = subprocess.run([*flags, "--dump-dom", html.as_uri()], capture_output=True,
                              text=True, timeout=120).stdout
-        shot = tmp_path / "report.png"
-        subprocess.run([*flags, "--window-size=1200,1800", f"--screenshot={shot}",
-                        html.as_uri()], capture_output=True, timeout=120)
+        shot = tmp_path / f"report-{width}.png"
+        subprocess.run([*flags, f"--screenshot={shot}", html.as_uri()], capture_output=True,
+                       timeout=120)
     finally:
         server.shutdown()
     # The browser's own background services (update and time checks) talk to its vendor's
@@ -113,6 +117,36 @@ def _browse(html: Path, tmp_path: Path) -> tuple[str, Path, list[str]]:
     own = re.compile(r"^(https?://)?[\w.-]*\.(google\.com|googleapis\.com|gstatic\.com)"
                      r"(:\d+)?(/|$)")
     return dom, shot, [u for u in _Recorder.seen if not own.match(u)]
+
+
+# The report carries no script (its content-security policy forbids any); the test opens
+# a copy with this probe added, which writes what it measured into the body's attributes.
+PROBE = """<script>
+window.addEventListener('load',function(){var ok=0,imgs=document.images;
+for(var i=0;i<imgs.length;i++){if(imgs[i].complete&&imgs[i].naturalWidth>0){ok++;}}
+var b=document.body,d=document.documentElement;
+b.setAttribute('data-images-loaded',ok+'/'+imgs.length);
+b.setAttribute('data-overflow',String(d.scrollWidth-d.clientWidth));});
+</script>"""
+
+
+def _probed_copy(html: Path, tmp_path: Path) -> Path:
+    text = html.read_text(encoding="utf-8")
+    assert "<script" not in text.lower()
+    assert "script-src" not in text and "default-src 'none'" in text  # so no script runs
+    text = text.replace("default-src 'none';", "default-src 'none'; script-src 'unsafe-inline';")
+    copy = tmp_path / "probed.html"
+    copy.write_text(text.replace("</body>", PROBE + "</body>"), encoding="utf-8")
+    return copy
+
+
+def _white_right_margin(shot: Path, width: int) -> bool:
+    """True when the screenshot is ``width`` pixels wide and its right-most 8 columns are
+    page background: nothing runs off the right edge."""
+    import matplotlib.image as mpimg
+
+    img = mpimg.imread(shot)
+    return img.shape[1] == width and bool((img[:, -8:, :3] > 0.97).all())
 
 
 @needs_browser
@@ -125,17 +159,35 @@ def test_html_loads_in_headless_browser_with_no_network_request(history_report, 
     assert "decision-summary" in page.ids
     n_fig = len(list((history_report / "figures").glob("*.png")))
     assert n_fig >= 4  # densities, intervals, prior/posterior, rank plots per part
-    assert page.attrs.get("data-images-loaded") == f"{n_fig}/{n_fig}"
     assert shot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and shot.stat().st_size > 10_000
+    probed, _, _ = _browse(_probed_copy(html, tmp_path), tmp_path)
+    attrs = parse(probed).attrs
+    assert attrs.get("data-images-loaded") == f"{n_fig}/{n_fig}"
+    assert attrs.get("data-overflow") == "0"  # no horizontal scrolling at 1200 px
 
 
 @needs_browser
-def test_the_network_check_catches_a_page_that_fetches(tmp_path):
-    # control: the same harness must see a request from a page that makes one
-    page = tmp_path / "leaky.html"
-    page.write_text('<html><body><img src="http://qualbayes-test.invalid/x.png"></body></html>')
-    _, _, from_page = _browse(page, tmp_path)
-    assert any("qualbayes-test.invalid" in u for u in from_page)
+@pytest.mark.parametrize("width", [1200, 800])
+def test_html_screenshot_has_no_horizontal_overflow(history_report, tmp_path, width):
+    html = history_report / "report.html"
+    _, shot, _ = _browse(html, tmp_path, width)
+    assert _white_right_margin(shot, width)
+    probed, _, _ = _browse(_probed_copy(html, tmp_path), tmp_path, width)
+    assert parse(probed).attrs.get("data-overflow") == "0"
+
+
+@needs_browser
+def test_the_overflow_check_catches_a_page_that_overflows(tmp_path):
+    # control: a page wider than the window must fail both checks
+    page = tmp_path / "wide.html"
+    page.write_text("<!DOCTYPE html><html><head><meta http-equiv='Content-Security-Policy' "
+                    "content=\"default-src 'none'; style-src 'unsafe-inline'\"></head><body>"
+                    "<table><tr><td style='background:#000'>" + "W" * 400
+                    + "</td></tr></table></body></html>")
+    _, shot, _ = _browse(page, tmp_path, 800)
+    assert not _white_right_margin(shot, 800)
+    probed, _, _ = _browse(_probed_copy(page, tmp_path), tmp_path, 800)
+    assert int(parse(probed).attrs.get("data-overflow")) > 0
 
 
 def test_html_content_order_and_caution(history_report):
@@ -151,32 +203,86 @@ def test_html_content_order_and_caution(history_report):
     assert record["input"]["sha256"] in html
 
 
-def _pdf_pages(path: Path) -> int:
-    return len(re.findall(rb"/Type\s*/Page[^s]", path.read_bytes()))
+needs_pdftotext = pytest.mark.skipif(
+    PDFTOTEXT is None and not os.environ.get("QUALBAYES_CI"),
+    reason="pdftotext (poppler-utils) not installed (CI installs it)")
 
 
-@pytest.mark.skipif(PDFTOTEXT is None and not os.environ.get("QUALBAYES_CI"),
-                    reason="pdftotext (poppler-utils) not installed (CI installs it)")
-def test_pdf_pages_and_decision_table_text(history_report):
+def _pdf_text(path: Path) -> list[str]:
+    """The text of each page (pdftotext, layout kept)."""
+    text = subprocess.run([PDFTOTEXT or "pdftotext", "-layout", str(path), "-"],
+                          capture_output=True, text=True, check=True).stdout
+    return [p for p in text.split("\f") if p.strip()]
+
+
+def _words(text: str) -> str:
+    return " ".join(text.split())
+
+
+@needs_pdftotext
+def test_pdf_is_typeset_with_every_lot_full_fingerprint_and_caution_on_each_page(
+        history_report):
     pdf = history_report / "report.pdf"
     record = json.loads((history_report / "run.json").read_text())
-    n_fig = len(list((history_report / "figures").glob("*.png")))
-    pages = _pdf_pages(pdf)
-    # text pages first, then one page per figure, each titled
-    text = subprocess.run(["pdftotext", "-layout", str(pdf), "-"], capture_output=True,
-                          text=True, check=True).stdout
-    per_page = text.split("\f")[:pages]
-    assert len(per_page) == pages
-    figure_pages = [p for p in per_page if p.strip() and "Decision summary" not in p
-                    and p.lstrip().split("\n")[0].strip().startswith(
-                        ("Posterior density", "Lot-by-lot", "Prior and posterior",
-                         "Rank plots"))]
-    assert len(figure_pages) == n_fig
-    assert pages >= n_fig + 1
+    pages = _pdf_text(pdf)
+    assert len(pages) >= 3
+    for k, page in enumerate(pages, start=1):
+        words = _words(page)
+        assert "CAUTION: decision support only" in words, f"page {k} has no caution"
+        assert f"page {k} of {len(pages)}" in words
+        assert record["report_id"] in words
+    text = "\n".join(pages)
+    # the full fingerprint (a wrapped cell may split it over lines): nothing cut off
+    assert record["input"]["sha256"] in "".join(text.split())
+    assert not re.search(r"\S~(\s|$)", text)  # no cell cut off with "~"
     for lot in record["lots"]:
-        line = next(row for row in text.splitlines() if row.strip().startswith(lot["lot"]))
-        assert lot["decision"] in line
-    assert "CAUTION: decision support only" in text.replace("\n", " ")
+        rows = [row for row in text.splitlines() if row.strip().startswith(lot["lot"] + " ")]
+        assert rows and all(lot["decision"] in row for row in rows), lot["lot"]
+    # the results table runs over a page break: its header row is repeated
+    with_rows = [p for p in pages if re.search(r"^\s*[ABG]-\d{4}\s+\S+\s+2026-", p, re.M)]
+    assert len(with_rows) >= 2
+    assert all(re.search(r"lot\s+part\s+date\s+n\s+x", p) for p in with_rows)
+    # figures sit in the text, each under the heading that introduces them
+    assert "Figures" in text and "Posterior density of each lot's defect rate" in text
+    # sign-off block with the analyst's name and lines left to sign
+    signoff = _words(text[text.index("Sign-off"):])
+    assert "prepared by" in signoff and ANALYST in signoff
+    assert "reviewed and approved by" in signoff
+
+
+@needs_pdftotext
+def test_pdf_of_a_life_report_holds_its_full_fingerprint(tmp_path, capsys):
+    from conftest import EXAMPLES
+
+    out = tmp_path / "life"
+    assert main(["life", str(EXAMPLES / "sv30_zero_failure.csv"), "--mission", "3000",
+                 "--target", "0.9", "--shape-prior", "1.5,4", "--units", "h",
+                 "--report", str(out)]) == 0
+    capsys.readouterr()
+    record = json.loads((out / "run.json").read_text())
+    text = "\n".join(_pdf_text(out / "report.pdf"))
+    assert record["input"]["sha256"] in "".join(text.split())
+    assert not re.search(r"\S~(\s|$)", text)
+
+
+def test_report_numbers_are_for_people(history_report):
+    html = (history_report / "report.html").read_text()
+    page = parse(html)
+    cells = [c for table in page.tables for row in table for c in row]
+    sci = [c for c in cells if re.search(r"\d[eE][+-]?\d", c)]
+    assert sci == []  # no scientific notation in any table
+    assert "`" not in html  # no markdown shown literally
+    summary = page.tables[0]
+    probs = [row[4] for row in summary[1:]]
+    assert all(re.fullmatch(r"(<0\.0001|>0\.9999|0|1|0\.\d{4})", p) for p in probs), probs
+    results = next(t for t in page.tables if t[0][:3] == ["lot", "part", "date"])
+    means = [row[5] for row in results[1:]]
+    assert all(re.fullmatch(r"<?[\d.,]+%", m) for m in means), means  # rates in percent
+    record = json.loads((history_report / "run.json").read_text())
+    for key in ("created_utc", "report_id", "tool_version"):
+        assert record[key] and str(record[key]) in html, key
+    assert record["analyst"] == ANALYST and escape(ANALYST) in html
+    assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ", record["created_utc"])
 
 
 def test_rebuild_from_run_record_gives_identical_tables(history_report, tmp_path, capsys):
@@ -256,6 +362,11 @@ def test_plan_report_rebuilds_identically_and_carries_assumptions(tmp_path, caps
     assert page.images == len(list((out / "figures").glob("*.png"))) >= 1
     assert "CAUTION: decision support only" in html and "ISO 2859-1" in html
     assert "drawn at random from the lot" in html  # a stated assumption
+    inputs = next(t for t in page.tables if t[0] == ["input", "value"])
+    labels = [row[0] for row in inputs[1:]]
+    assert "lot size N" in labels or "acceptable quality level (AQL)" in labels
+    assert not [w for w in labels if "_" in w or w in ("aql", "ltpd")]  # words, not keys
+    assert "Test plan evidence: single sampling plan" in html
     rebuilt = tmp_path / "again"
     assert main(["report", str(out / "run.json"), "--out", str(rebuilt)]) == 0
     assert parse((rebuilt / "report.html").read_text()).tables == page.tables

@@ -32,12 +32,12 @@ white-space:pre-wrap}
 figure{margin:12px 0;break-inside:avoid}figure img{max-width:100%;height:auto;
 border:1px solid #bbb}
 figcaption{color:#444;font-size:11px}
-table.signoff{width:100%}table.signoff th{width:22%}
+.table-wrap{max-width:100%;overflow-x:auto}table.signoff{width:100%}table.signoff th{width:22%}
 table.signoff td{height:34px;background:#fff}
 @media print{body{margin:0;max-width:none;padding:0;font-size:9pt}
 h1{font-size:15pt}h2{font-size:11.5pt;margin-top:14pt;break-after:avoid}
 table{font-size:7.5pt;break-inside:auto}thead{display:table-header-group}
-tr{break-inside:avoid}th,td{padding:2px 4px}.mono{font-size:8pt}
+tr{break-inside:avoid}th,td{padding:2px 4px}.table-wrap{overflow:visible}.mono{font-size:8pt}
 caption{font-size:7.5pt}figcaption{font-size:7.5pt}.alert{font-size:11pt}
 figure img{max-height:200mm}section{break-before:auto}
 h2+table,h2+p{break-before:avoid}}
@@ -128,8 +128,9 @@ def _block(block, pngs) -> str:
             body = "".join("<tr>" + "".join(_td(v) for v in row) + "</tr>"
                            for row in block.rows)
         cap = f"<caption>{escape(block.caption)}</caption>" if block.caption else ""
-        return (f"<table{ident}{cls}>{cap}<thead><tr>{head}</tr></thead><tbody>{body}"
-                "</tbody></table>")
+        # a table wider than a narrow window scrolls in its own box, not the page
+        return (f'<div class="table-wrap"><table{ident}{cls}>{cap}<thead><tr>{head}</tr>'
+                f"</thead><tbody>{body}</tbody></table></div>")
     if isinstance(block, Figure):
         data = base64.b64encode(pngs[block.id]).decode("ascii")
         cap = f"<b>{escape(block.title)}.</b>" + (f" {escape(block.caption)}"

@@ -36,7 +36,10 @@ def run(args) -> int:
         raise InputError("the report folder holds the run record being rebuilt; choose "
                          "another --out folder (the record is never replaced)",
                          file=args.record)
-    info = write_report_folder(args.out, record, force=args.force)
+    from qualbayes import progress  # noqa: PLC0415
+
+    with progress.task("rebuilding the report (figures, HTML, PDF)"):
+        info = write_report_folder(args.out, record, force=args.force)
     print_text(f"report rebuilt in {info['folder']} ({info['pages']} PDF pages, "
                f"{info['figures']} figures)")
     print_text(record["caution"])

@@ -40,7 +40,7 @@ table{font-size:7.5pt;break-inside:auto}thead{display:table-header-group}
 tr{break-inside:avoid}th,td{padding:2px 4px}.table-wrap{overflow:visible}.mono{font-size:8pt}
 caption{font-size:7.5pt}figcaption{font-size:7.5pt}.alert{font-size:11pt}
 figure img{max-height:200mm}section{break-before:auto}
-h2+table,h2+p{break-before:avoid}}
+h2+table,h2+p{break-before:avoid}#sec-sign-off{break-inside:avoid}}
 """
 
 
@@ -97,7 +97,8 @@ def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
     if report.alert:
         parts.append(f'<div class="alert" id="gate-alert">{escape(report.alert)}</div>')
     for section in report.sections:
-        parts.append(f"<section><h2>{escape(section.title)}</h2>")
+        slug = "".join(ch if ch.isalnum() else "-" for ch in section.title.lower())
+        parts.append(f'<section id="sec-{escape(slug)}"><h2>{escape(section.title)}</h2>')
         for block in section.blocks:
             parts.append(_block(block, pngs))
         parts.append("</section>")
@@ -105,9 +106,9 @@ def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
     return "\n".join(parts)
 
 
-def _td(value) -> str:
-    cls = ' class="num"' if isinstance(value, int | float) and not isinstance(value, bool) \
-        else ""
+def _td(value, align_numbers: bool = True) -> str:
+    number = isinstance(value, int | float) and not isinstance(value, bool)
+    cls = ' class="num"' if number and align_numbers else ""
     return f"<td{cls}>{escape(fmt(value))}</td>"
 
 
@@ -125,8 +126,8 @@ def _block(block, pngs) -> str:
             head = "".join(f"<th>{escape(h)}</th>" for h in block.headers)
         else:
             head = "".join(f"<th>{escape(h)}</th>" for h in block.headers)
-            body = "".join("<tr>" + "".join(_td(v) for v in row) + "</tr>"
-                           for row in block.rows)
+            body = "".join("<tr>" + "".join(_td(v, block.style != "kv") for v in row)
+                           + "</tr>" for row in block.rows)
         cap = f"<caption>{escape(block.caption)}</caption>" if block.caption else ""
         # a table wider than a narrow window scrolls in its own box, not the page
         return (f'<div class="table-wrap"><table{ident}{cls}>{cap}<thead><tr>{head}</tr>'

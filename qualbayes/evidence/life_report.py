@@ -91,7 +91,8 @@ def build(record: dict) -> Report:
             ["item", "value"], [["mission time", q["mission"]],
                                 ["time units", q["units"] or "(not stated)"],
                                 ["target reliability", q["target"]], ["confidence C", c],
-                                ["interval", q["interval"]], ["bound", q["lower_bound"]]])]),
+                                ["interval", q["interval"]], ["bound", q["lower_bound"]]],
+            style="kv")]),
         inputs_section(record),
         Section("Model and priors", [Paragraph(record["model"], "mono"),
                                      Paragraph("Prior: " + (

@@ -51,7 +51,7 @@ def build(record: dict) -> Report:
         Paragraph(q["asked"]),
         Table(["item", "value"], [["defect-rate limit (spec)", r_(q["spec"])],
                                   ["confidence C", c], ["interval", q["interval"]],
-                                  ["bound", q["upper_bound"]]])])
+                                  ["bound", q["upper_bound"]]], style="kv")])
     model = Section("Model and prior", [
         Paragraph(record["model"], "mono"), Paragraph(f"Prior: {record['prior']}", "mono"),
         Paragraph("Finite lots: defectives among the N - n units not inspected ~ "

@@ -52,7 +52,8 @@ def build(record: dict) -> Report:
     sections = [Section("Decision summary", summary_blocks),
                 Section("The question asked", [Paragraph(record["question"]),
                                                Table(["input", "value"],
-                                                     _kv(record["inputs"]), id="inputs")])]
+                                                     _kv(record["inputs"]), id="inputs",
+                                                     style="kv")])]
     history = record["priors"].get("history") if isinstance(record["priors"], dict) else None
     if isinstance(history, dict):
         sections.append(Section("Inputs", [Table(["item", "value"], _kv(history))]))

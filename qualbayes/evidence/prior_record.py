@@ -5,6 +5,7 @@ Everything is drawn from the record, so a saved record rebuilds the same evidenc
 
 from __future__ import annotations
 
+from qualbayes.evidence.numbers import probability
 from qualbayes.evidence.terminal import table as text_table
 
 CODES = {"accept": "A", "reject": "R", "undecided": "U", "not-converged": "NC",
@@ -21,7 +22,7 @@ def has_prior_evidence(record: dict) -> bool:
 def _cell(res: dict) -> str:
     code = CODES.get(res["decision"], res["decision"])
     prob = res.get("prob")
-    return code if prob is None else f"{prob:.4f} {code}"
+    return code if prob is None else f"{probability(prob)} {code}"
 
 
 def legend(sens: dict) -> list[str]:

@@ -15,7 +15,7 @@ def inputs_section(record: dict) -> Section:
     rows = [["file", i["file"]], ["sheet", i.get("sheet")], ["SHA-256 (full)", i["sha256"]],
             ["header row", i.get("header_row")], ["rows read", i.get("rows_read")],
             ["rows rejected", i.get("rows_rejected", 0)]]
-    rows += [[f"column for {k}", v] for k, v in (i.get("columns") or {}).items()]
+    rows += [[f"column for {label(k)}", v] for k, v in (i.get("columns") or {}).items()]
     blocks = [Table(["item", "value"], rows, id="inputs", style="kv")]
     if i.get("rows_rejected"):
         blocks.append(Paragraph("Rows rejected: " + "; ".join(i.get("rejected_reasons", []))))
@@ -36,7 +36,8 @@ def diagnostics_section(record: dict) -> Section:
     first = next(iter(diags.values()))
     settings = first.get("settings", {})
     blocks = [Table(["setting", "value"], [[label(k), v] for k, v in settings.items()],
-                    caption="Sampler settings of the final attempt.", id="sampler"),
+                    caption="Sampler settings of the final attempt.", id="sampler",
+                    style="kv"),
               Paragraph(f"Gate: rank-normalised R-hat <= {RHAT_MAX}, bulk and tail ESS >= "
                         f"{ESS_MIN:.0f}, divergent transitions <= {DIVERGENCES_MAX} "
                         "(Vehtari et al. 2021). One automatic retry with twice the draws and "

@@ -74,7 +74,9 @@ class Fit:
 
 
 def show_progress() -> bool:
-    return progress.enabled()
+    """numpyro's own bar stays off: qualbayes.progress shows each fit with its time elapsed
+    (numpyro's bars do not update under parallel chains)."""
+    return False
 
 
 def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
@@ -90,10 +92,13 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
     while True:
         attempts += 1
         started = progress.fit_started(attempt_settings)
-        draws, divergences = _sample(model, model_args, attempt_settings, init_params)
+        try:
+            draws, divergences = _sample(model, model_args, attempt_settings, init_params)
+        finally:
+            progress.fit_finished(started)
         checked = gate_on(draws) if gate_on else draws
         gate = diagnose(checked, divergences, attempts, _settings_dict(attempt_settings))
-        progress.fit_finished(started, gate.passed, attempt_settings.retry)
+        progress.fit_checked(started, gate.passed, attempt_settings.retry)
         if gate.passed or not attempt_settings.retry:
             return Fit(draws, gate, attempt_settings)
         attempt_settings = attempt_settings.harder()

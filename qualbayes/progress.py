@@ -120,19 +120,56 @@ def compile_notice(cache_dir: str | os.PathLike | None) -> None:
                  "two; later runs reuse the compiled code and start much faster")
 
 
-def fit_started(settings) -> tuple[int, float]:
-    """Say that one NUTS fit starts (numpyro then shows a bar per chain); returns the fit's
-    number and start time for :func:`fit_finished`."""
+class _Ticker:
+    """A line redrawn in place once a second with the time elapsed (a thread), for work that
+    reports no steps of its own, such as one sampler run."""
+
+    def __init__(self, text: str):
+        import threading  # noqa: PLC0415
+
+        self.text, self.start, self.seconds = text, time.monotonic(), 0.0
+        self.stop = threading.Event()
+        self.thread = threading.Thread(target=self._run, daemon=True)
+        self.thread.start()
+
+    def _draw(self) -> None:
+        _write(f"\r\x1b[Kqualbayes: {self.text} ({_elapsed(time.monotonic() - self.start)})")
+
+    def _run(self) -> None:
+        self._draw()
+        while not self.stop.wait(1.0):
+            self._draw()
+
+    def close(self) -> float:
+        self.stop.set()
+        self.thread.join()
+        _write("\r\x1b[K")
+        return time.monotonic() - self.start
+
+
+def fit_started(settings) -> tuple[int, _Ticker | None]:
+    """Show that one NUTS fit runs, with its time elapsed; returns what
+    :func:`fit_finished` needs."""
     global _FITS
     _FITS += 1
     iterations = settings.num_warmup + settings.num_samples
-    say(f"sampling, fit {_FITS}: {settings.num_chains} chains x {iterations:,} iterations")
-    return _FITS, time.monotonic()
+    text = f"sampling, fit {_FITS}: {settings.num_chains} chains x {iterations:,} iterations"
+    return _FITS, (_Ticker(text) if enabled() else None)
 
 
-def fit_finished(started: tuple[int, float], passed: bool, retry: bool) -> None:
-    number, t0 = started
+def fit_finished(started: tuple[int, _Ticker | None]) -> None:
+    """Stop the fit's line (always called, also when sampling is interrupted)."""
+    if started[1] is not None and not started[1].stop.is_set():
+        started[1].seconds = started[1].close()
+
+
+def fit_checked(started: tuple[int, _Ticker | None], passed: bool, retry: bool) -> None:
+    """Say how long the fit took and what the sampler checks found."""
+    number, ticker = started
+    if ticker is None:
+        return
+    fit_finished(started)
     outcome = "sampler checks passed" if passed else (
         "sampler checks failed, retrying once with twice the draws" if retry
         else "sampler checks failed")
-    say(f"fit {number} done in {_elapsed(time.monotonic() - t0)}: {outcome}")
+    say(f"sampling, fit {number} done in {_elapsed(ticker.seconds)}: {outcome}")

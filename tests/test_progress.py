@@ -3,6 +3,7 @@ pseudo-terminal), silent with --json, in CI and when stderr is not a terminal.""
 
 import os
 import pty
+import re
 import select
 import subprocess
 import sys
@@ -86,8 +87,11 @@ from qualbayes.inference import SamplerSettings
 cache = sys.argv[1]
 progress.compile_notice(cache)
 progress.compile_notice(cache)  # said once per process
+import time
 n = progress.fit_started(SamplerSettings(num_warmup=10, num_samples=20))
-progress.fit_finished(n, passed=True, retry=True)
+time.sleep(2.5)  # the line shows the time elapsed while the sampler runs
+progress.fit_finished(n)
+progress.fit_checked(n, passed=True, retry=True)
 for _ in progress.steps(range(3), "prior sensitivity"):
     pass
 """
@@ -99,7 +103,9 @@ def test_first_run_says_once_that_it_compiles_and_fits_are_reported(tmp_path):
     _, shown = _run_with_tty_stderr([sys.executable, "-c", SNIPPET, str(cold)], _env())
     assert shown.count("first run: compiling the sampler") == 1
     assert "later runs reuse the compiled code" in shown
-    assert "sampling, fit 1: 4 chains x 30 iterations" in shown
+    assert "sampling, fit 1: 4 chains x 30 iterations (0.0 s)" in shown
+    ticks = re.findall(r"sampling, fit 1: 4 chains x 30 iterations \((\d\.\d) s\)", shown)
+    assert len(ticks) >= 2 and float(ticks[-1]) >= 1.0  # redrawn as time passes
     assert "fit 1 done in" in shown and "sampler checks passed" in shown
     assert "prior sensitivity: 3 of 3 done" in shown
     warm = tmp_path / "warm-cache"

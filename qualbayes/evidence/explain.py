@@ -52,3 +52,8 @@ def prior_range_advice(predictive: dict | None) -> list[str]:
     return [f"advice: {outside} of {checked} lots fall outside the range this prior expects, "
             "so the prior disagrees with the data; check the stated belief or the earlier "
             "data, and compare with --sensitivity before relying on the decisions."]
+
+
+HISTORY_NOTE = ("prior history: the lots of each part share a typical defect rate and a "
+                "lot-to-lot spread learned from all of them, so a lot with little data "
+                "borrows strength from its part's other lots (docs/lots.md)")

@@ -12,7 +12,7 @@ from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.life import LifeTable
 from qualbayes.evidence.explain import NEXT_STEP, gate_line, life_columns
 from qualbayes.evidence.jsonout import plain
-from qualbayes.evidence.numbers import probability, quantity
+from qualbayes.evidence.numbers import plural, probability, quantity
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
@@ -68,7 +68,8 @@ def life_text(record: dict) -> str:
         f"Reliability at the mission time: {q['asked']}",
         f"input: {record['input']['file']}"
         + (f" [sheet {record['input']['sheet']}]" if record["input"]["sheet"] else "")
-        + f", {record['input']['rows_read']} units, sha256 {record['input']['sha256'][:16]}...",
+        + f", {plural(record['input']['rows_read'], 'unit')}, sha256 "
+          f"{record['input']['sha256'][:16]}... (in full in the report)",
         *[f"prior: {p}" for p in record["prior"]],
     ]
     for g in record["groups"]:

@@ -11,7 +11,7 @@ import pandas as pd
 from qualbayes.acceptance import LotAssessment
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.lots import LotTable
-from qualbayes.evidence.explain import NEXT_STEP, gate_line, lots_columns
+from qualbayes.evidence.explain import HISTORY_NOTE, NEXT_STEP, gate_line, lots_columns
 from qualbayes.evidence.jsonout import plain, without_draws  # noqa: F401 - re-export
 from qualbayes.evidence.numbers import count, plural, probability, rate
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
@@ -78,6 +78,8 @@ def lots_text(record: dict) -> str:
           f"{record['input']['sha256'][:16]}... (in full in the report)",
         f"prior: {record['prior']}",
     ]
+    if record.get("posterior_draws"):
+        head.append(HISTORY_NOTE)
     for part, d in record["diagnostics"].items():
         head.append(gate_line(f"part {part}", d, "no decision for these lots"))
         for reason in d["reasons"]:

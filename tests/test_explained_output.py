@@ -131,3 +131,15 @@ def test_life_help_shows_a_life_column_mapping():
     text = " ".join(_help("life").split())
     assert "--columns 'time=" in text and "inspected=" not in text
     assert "inspected=" in " ".join(_help("lots").split())
+
+
+def test_page_margin_text_from_a_record_cannot_break_out_of_the_styles():
+    from qualbayes.evidence.document import Report, Section
+    from qualbayes.evidence.html import render_html
+
+    hostile = '</style><b id="x">"\\'
+    html = render_html(Report("t", "s", [Section("A", [])], meta={"report_id": hostile},
+                              caution="CAUTION"), {})
+    style = html[html.index("<style>"):html.index("</style>")]
+    assert "<" not in style[1:] and "</style><b" not in html
+    assert html.count("</style>") == 1

@@ -45,8 +45,10 @@ h2+table,h2+p{break-before:avoid}#sec-sign-off{break-inside:avoid}}
 
 
 def _css_string(text: str) -> str:
-    """``text`` as a CSS string literal (for the page-margin boxes)."""
-    out = text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", " ")
+    """``text`` as a CSS string literal (for the page-margin boxes); ``<`` and ``>`` are
+    escaped too, so a value from a run record can never close the style element."""
+    out = (text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", " ")
+           .replace("<", "\\3c ").replace(">", "\\3e "))
     return '"' + "".join(ch if ch.isprintable() else " " for ch in out) + '"'
 
 

@@ -2,7 +2,7 @@
 tables whose header row repeats on every page, the caution at the foot and the page number
 at the head of every page, figures where the text refers to them).
 
-WeasyPrint needs the system libraries Pango and HarfBuzz (README, "Install"). The document
+WeasyPrint needs the system libraries Pango and HarfBuzz (README, "System packages"). The document
 is self-contained: every image is embedded, and the fetcher refuses any other URL, so a
 name from an untrusted spreadsheet can never make the renderer read a file or the network.
 """

@@ -31,6 +31,8 @@ def _kv(mapping: dict) -> list[list[object]]:
                 f"{label(a)} {cell(b)}" for a, b in v.items() if not isinstance(b, dict))
         elif k in RATE_KEYS and isinstance(v, int | float):
             v = rate(v)
+        elif k == "seed":  # an identifier, not a quantity: no thousands separators
+            v = str(v)
         rows.append([label(k), v if not isinstance(v, list) else ", ".join(map(cell, v))])
     return rows
 

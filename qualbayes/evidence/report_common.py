@@ -35,7 +35,8 @@ def diagnostics_section(record: dict) -> Section:
             "numbers are exact up to floating-point rounding.")])
     first = next(iter(diags.values()))
     settings = first.get("settings", {})
-    blocks = [Table(["setting", "value"], [[label(k), v] for k, v in settings.items()],
+    blocks = [Table(["setting", "value"],
+                    [[label(k), str(v) if k == "seed" else v] for k, v in settings.items()],
                     caption="Sampler settings of the final attempt.", id="sampler",
                     style="kv"),
               Paragraph(f"Gate: rank-normalised R-hat <= {RHAT_MAX}, bulk and tail ESS >= "

@@ -55,7 +55,8 @@ def workbook_writer(sheets: dict[str, pd.DataFrame | list[list[object]]]
                         cell.data_type = "s"
                     elif isinstance(cell.value, int | float) and not isinstance(
                             cell.value, bool):
-                        cell.number_format = formats.get(c - 1) or _default_format(cell.value)
+                        cell.number_format = ("0" if row[0] in IDENTIFIERS else
+                                              formats.get(c - 1) or _default_format(cell.value))
             if isinstance(content, pd.DataFrame):
                 for cell in ws[1]:
                     cell.font = Font(bold=True)
@@ -66,6 +67,10 @@ def workbook_writer(sheets: dict[str, pd.DataFrame | list[list[object]]]
         wb.save(tmp)
 
     return writer
+
+
+#: row labels whose numbers are identifiers, shown without thousands separators
+IDENTIFIERS = ("seed", "header row")
 
 
 def _default_format(value: float) -> str:

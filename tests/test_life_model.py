@@ -103,9 +103,13 @@ def test_binned_sums_equal_exact_sums():
 
 def test_jax_and_numpy_log_densities_agree():
     jnp = pytest.importorskip("jax.numpy")
-    from qualbayes.inference import setup_jax
+    from qualbayes.inference import jax_scope
 
-    setup_jax()
+    with jax_scope():
+        _compare_log_densities(jnp)
+
+
+def _compare_log_densities(jnp):
     parts = censored_sample()
     st = group_stats(*parts)
     data = data_arrays(st)

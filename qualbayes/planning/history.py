@@ -55,7 +55,7 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
                 settings=None) -> HistoryPrior:
     """Fit the lot history of one part and return its next-lot predictive as a prior."""
     from qualbayes.data.lots import read_lots  # noqa: PLC0415
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference import SamplerSettings, jax_scope  # noqa: PLC0415 - jax path
     from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
     from qualbayes.provenance import sha256_file  # noqa: PLC0415
 
@@ -77,7 +77,8 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
         raise OptionError(f"part {part!r} has {len(x)} lot in {path}: a history needs at "
                           "least two lots")
     settings = settings or SamplerSettings(seed=seed)
-    fit = fit_histories([(x, n)], settings, names=[part])
+    with jax_scope():
+        fit = fit_histories([(x, n)], settings, names=[part])
     gate = fit.gate.select(part).to_dict()
     prior = None
     if gate["passed"]:

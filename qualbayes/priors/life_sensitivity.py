@@ -22,7 +22,7 @@ gives ``not-converged`` for that prior and no probability. So that the runs shar
 code, the prior's numbers (means and sds of the shape and scale parts, the weights of the
 earlier-data and sceptical terms) are arguments of one model function, not constants: runs
 of the same prior structure (which parts are flat, the scale kind and its q or T) compile
-once, and jax's persistent compilation cache (:func:`qualbayes.inference.setup_jax`) serves
+once, and jax's persistent compilation cache (:func:`qualbayes.inference.configure_process`) serves
 the rest.
 """
 
@@ -34,7 +34,7 @@ from functools import partial
 
 import numpy as np
 
-from qualbayes.inference import SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference import SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
     FLAT,
     LifePrior,
@@ -54,7 +54,6 @@ from qualbayes.priors.sensitivity import (
 )
 from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
 
-setup_jax()
 
 import jax.numpy as jnp  # noqa: E402
 import numpyro  # noqa: E402
@@ -247,7 +246,7 @@ def numpy_prior(row: LifeRow, extra: dict) -> LifePrior:
 def run_row(row: LifeRow, stats: list, names: list[str], mission: float, extra: dict,
             settings: SamplerSettings, structure) -> dict:
     """One NUTS run of the given groups under one prior: name -> (R(mission) draws, gate)."""
-    from qualbayes.models.life import life_gate, sampler_inputs  # noqa: PLC0415
+    from qualbayes.models.life import gate_dims, sampler_inputs  # noqa: PLC0415
 
     prior_np = numpy_prior(row, extra)
     modes = [posterior_mode(st, prior_np) for st in stats]
@@ -257,8 +256,7 @@ def run_row(row: LifeRow, stats: list, names: list[str], mission: float, extra: 
                   "log_tref": extra["log_tref"]}
     hyper = {k: jnp.asarray(v) for k, v in hyper_of(row.prior, structure).items()}
     args = (*base_args, hyper, extra_args)
-    fit = run_nuts(_model(structure), args, settings, gate_on=life_gate(names, mission),
-                   init_params=init)
+    fit = run_nuts(_model(structure), args, settings, init_params=init, **gate_dims(names))
     out = {}
     for j, name in enumerate(names):
         b = fit.draws["log_shape"][:, :, j].reshape(-1)
@@ -273,6 +271,7 @@ def _gate_summary(gate) -> dict:
                               "divergences", "attempts", "reasons")}
 
 
+@jax_scope()
 def life_sensitivity(result, data: dict, rows: list[LifeRow], earlier=None,
                      settings: SamplerSettings | None = None) -> dict:
     """Every group under every prior of ``rows``. ``result`` is the

@@ -34,7 +34,6 @@ from __future__ import annotations
 import numpy as np
 from scipy import special, stats
 
-
 TAIL_PROBS = (0.05, 0.95)
 
 

@@ -23,7 +23,10 @@ from __future__ import annotations
 
 from functools import partial
 
+import jax.numpy as jnp  # noqa: E402
 import numpy as np
+import numpyro  # noqa: E402
+import numpyro.distributions as dist  # noqa: E402
 
 from qualbayes.inference import Fit, SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
@@ -36,10 +39,6 @@ from qualbayes.models.weibull import (
     log_likelihood,
     log_prior,
 )
-
-import jax.numpy as jnp  # noqa: E402
-import numpyro  # noqa: E402
-import numpyro.distributions as dist  # noqa: E402
 
 
 def whitened_sites(log_tref, center, chol):

@@ -32,7 +32,9 @@ import math
 from dataclasses import replace
 from functools import partial
 
+import jax.numpy as jnp  # noqa: E402
 import numpy as np
+import numpyro  # noqa: E402
 
 from qualbayes.inference import SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
@@ -53,10 +55,6 @@ from qualbayes.priors.sensitivity import (
     item_summary,
 )
 from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
-
-
-import jax.numpy as jnp  # noqa: E402
-import numpyro  # noqa: E402
 
 JEFFREYS = LifePrior(shape=None, scale_kind="jeffreys")
 PREDICTIVE_DRAWS = 20_000

@@ -12,6 +12,7 @@ compilation cache), before jax is imported.
 from __future__ import annotations
 
 import contextlib
+import contextvars
 import os
 import sys
 from collections.abc import Callable
@@ -72,6 +73,21 @@ def jax_scope():
 
     with jax.enable_x64(True):
         yield
+
+
+_RECORDER: contextvars.ContextVar[list | None] = contextvars.ContextVar("fits", default=None)
+
+
+@contextlib.contextmanager
+def recording_fits():
+    """Collect every :class:`Fit` that :func:`run_nuts` returns inside the block (the API
+    uses it to give a result its InferenceData without reaching into the question's code)."""
+    fits: list = []
+    token = _RECORDER.set(fits)
+    try:
+        yield fits
+    finally:
+        _RECORDER.reset(token)
 
 
 @dataclass
@@ -158,8 +174,11 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
                 gate = diagnose(gate_on(draws) if gate_on else draws, divergences, attempts,
                                 info)
             if gate.passed or not attempt_settings.retry:
-                return Fit(draws, gate, attempt_settings, diverging, dict(dims or {}),
-                           dict(coords or {}))
+                fit = Fit(draws, gate, attempt_settings, diverging, dict(dims or {}),
+                          dict(coords or {}))
+                if (fits := _RECORDER.get()) is not None:
+                    fits.append(fit)
+                return fit
             attempt_settings = attempt_settings.harder()
 
 

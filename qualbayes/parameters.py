@@ -7,10 +7,10 @@ the command line. Anything else is refused rather than guessed.
 
 >>> rate(0.01, "spec"), rate("1%", "spec"), rate("10000ppm", "spec")
 (0.01, 0.01, 0.01)
->>> rate(1.5, "spec")
+>>> rate(1.5, "spec")  # doctest: +ELLIPSIS
 Traceback (most recent call last):
 ...
-qualbayes.errors.ParameterError: spec=1.5: a defect-rate limit lies strictly between 0 and 1 (0% and 100%)
+qualbayes.errors.ParameterError: spec=1.5: a defect-rate limit lies strictly between 0 and 1 ...
 >>> confidence("90%", "confidence")
 0.9
 """

@@ -17,10 +17,10 @@ Column names may be the canonical keys (``lot``, ``inspected``, ``defectives``, 
 >>> frame = pd.DataFrame({"lot": ["A1", "A2"], "inspected": [125, 80], "defectives": [0, 1]})
 >>> lots_table(frame).frame[["lot", "inspected", "defectives", "row"]].values.tolist()
 [['A1', 125, 0, 2], ['A2', 80, 1, 3]]
->>> lots_table(frame.assign(defectives=[0, 200]))
+>>> lots_table(frame.assign(defectives=[0, 200]))  # doctest: +ELLIPSIS
 Traceback (most recent call last):
 ...
-qualbayes.errors.InputError: file DataFrame, row 3, column 'defectives': defectives (200) exceed units inspected (80)
+qualbayes.errors.InputError: file DataFrame, row 3, column 'defectives': defectives (200) exceed ...
 """
 
 from __future__ import annotations

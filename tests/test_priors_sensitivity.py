@@ -19,7 +19,7 @@ from qualbayes.data.lots import read_lots
 from qualbayes.models.priors import BetaPrior
 from qualbayes.priors.elicit import elicit
 from qualbayes.priors.power import EarlierCounts, EarlierExposure
-from qualbayes.priors.sensitivity import (
+from qualbayes.priors.prior_set import (
     DEMONSTRATED,
     NOT_DEMONSTRATED,
     PriorRow,
@@ -313,7 +313,7 @@ def _accepted_within_reference(n, c, a, b, s):
 def test_sampling_rows_equal_separate_runs_and_scipy():
     from qualbayes.planning.plans import plan_sampling
     from qualbayes.planning.priors import RatePrior
-    from qualbayes.priors.sensitivity import sampling_sensitivity
+    from qualbayes.priors.prior_set import sampling_sensitivity
 
     stated = elicit(parse_statements(["p<1%@90%"], ("p",)))
     classical = PriorRow("as-run", "as run (plan alone)", "classical", {}, "none", "",
@@ -345,7 +345,7 @@ def test_sampling_rows_equal_separate_runs_and_scipy():
 def test_sampling_zero_acceptance_number_closed_form():
     """c = 0 and a uniform prior: accepted means x = 0, so p | accepted ~ Beta(1, n + 1) and
     P(p <= s | accepted) = 1 - (1 - s)^(n + 1) (conjugate closed form)."""
-    from qualbayes.priors.sensitivity import sampling_sensitivity
+    from qualbayes.priors.prior_set import sampling_sensitivity
 
     rows = beta_rows(None)
     sec = sampling_sensitivity(77, 0, None, 0.03, 0.9, rows)
@@ -363,7 +363,7 @@ def test_sampling_zero_acceptance_number_closed_form():
 def test_sampling_history_mixture_row_is_the_mixture():
     from qualbayes.planning import sampling
     from qualbayes.planning.priors import RatePrior
-    from qualbayes.priors.sensitivity import sampling_sensitivity
+    from qualbayes.priors.prior_set import sampling_sensitivity
 
     mix = RatePrior.mixture(np.array([1.0, 3.0]), np.array([200.0, 150.0]), "history")
     first = PriorRow("as-run", "as run (history)", "history", {}, "history", "", "history")
@@ -384,7 +384,7 @@ def test_life_plan_rows_equal_separate_plans_and_closed_forms():
     from qualbayes.planning import weibull
     from qualbayes.planning.plans import plan_life
     from qualbayes.planning.priors import RatePrior
-    from qualbayes.priors.sensitivity import life_plan_sensitivity
+    from qualbayes.priors.prior_set import life_plan_sensitivity
 
     stated = elicit(parse_statements(["R>0.85@95%", "R=0.95"], ("R",)))
     classical = PriorRow("as-run", "as run (classical)", "classical", {}, "none", "", "classical")

@@ -187,7 +187,7 @@ def lot_prior_evidence(args, result, prior, setup, spec: float, confidence: floa
         extras["prior_words"] = [*extras["prior_words"],
                                  f"What the prior as run expects: it {pred['words']}."]
     if args.sensitivity:
-        from qualbayes.priors.sensitivity import (  # noqa: PLC0415
+        from qualbayes.priors.prior_set import (  # noqa: PLC0415
             PriorRow,
             beta_rows,
             lots_sensitivity,
@@ -334,7 +334,7 @@ def plan_prior_evidence(args, kind: str, record: dict, setup, analysis) -> dict:
     """The prior keys of a plan record (words, predictive, sensitivity); also adds the
     sensitivity table to the record's tables so that text, workbook and report show it."""
     from qualbayes.evidence.jsonout import plain  # noqa: PLC0415
-    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+    from qualbayes.priors import prior_set as sens  # noqa: PLC0415
 
     extras = setup.record() if setup is not None else {
         "prior_words": [], "prior_elicited": [], "earlier_data": None}
@@ -393,7 +393,7 @@ def plan_prior_evidence(args, kind: str, record: dict, setup, analysis) -> dict:
 def _sampling_evidence(args, record: dict, setup, prior) -> dict:
     """Predictive and sensitivity keys of a sampling plan; ``prior``: the lot-quality prior
     as run (a RatePrior, or None for the plan alone)."""
-    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+    from qualbayes.priors import prior_set as sens  # noqa: PLC0415
     from qualbayes.priors.predictive import plan_predictive  # noqa: PLC0415
 
     inp = record["inputs"]
@@ -420,7 +420,7 @@ def _sampling_evidence(args, record: dict, setup, prior) -> dict:
 def _first_row(prior, what: str, classical: str):
     """The as-run row of a plan's sensitivity set: the classical rule (no prior), the Beta
     prior, or the history mixture."""
-    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+    from qualbayes.priors import prior_set as sens  # noqa: PLC0415
 
     if prior is None:
         return sens.PriorRow("as-run", "as run (classical)", "classical", {},
@@ -439,7 +439,7 @@ def _life_plan_evidence(args, record: dict, setup, prior) -> dict:
     """Predictive and sensitivity keys of a Weibull life plan; ``prior``: the analysis prior
     on p = 1 - R(mission) as run (a RatePrior, or None for the classical plan)."""
     from qualbayes.planning.weibull import ShapePrior  # noqa: PLC0415
-    from qualbayes.priors import sensitivity as sens  # noqa: PLC0415
+    from qualbayes.priors import prior_set as sens  # noqa: PLC0415
 
     inp = record["inputs"]
     shape = inp["shape"]
@@ -451,7 +451,7 @@ def _life_plan_evidence(args, record: dict, setup, prior) -> dict:
     out: dict = {}
     if prior is not None:
         c0, l0 = next(((c, r) for c, r in plans if r), (None, None))
-        pred = sens._life_plan_predictive(first, units, l0, c0, shape, mission)
+        pred = sens.life_plan_predictive(first, units, l0, c0, shape, mission)
         out["prior_predictive"] = pred
         out["prior_words"] = [*(setup.words if setup else []),
                               f"What the analysis prior expects: it {pred['words']}."]

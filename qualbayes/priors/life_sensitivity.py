@@ -1,6 +1,6 @@
 r"""Prior sensitivity of the Weibull life question (NUTS; imports jax: the sampler path only).
 
-The set of :mod:`qualbayes.priors.sensitivity`, made concrete for the Weibull model:
+The set of :mod:`qualbayes.priors.prior_set`, made concrete for the Weibull model:
 
 * **as run** - the analysis itself (not rerun);
 * **default** - log shape ~ N(0, 1), uniform on the cumulative hazard at t_ref;
@@ -47,12 +47,12 @@ from qualbayes.models.weibull import (
     posterior_mode,
 )
 from qualbayes.priors.predictive import improper, life_expectations
-from qualbayes.priors.sensitivity import (
+from qualbayes.priors.prior_set import (
     NOT_USABLE,
     WEIGHTS,
     PriorRow,
-    _section,
     item_summary,
+    section,
 )
 from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
 
@@ -318,10 +318,10 @@ def life_sensitivity(result, data: dict, rows: list[LifeRow], earlier=None,
     predictive = [life_predictive(r, mission, int(np.median(sizes)), settings.seed)
                   for r in rows]
     q = f"P(R({mission:g}) >= {target:g} | data) >= {conf:g}?"
-    section = _section(q, conf, [r.row for r in rows], items, "group", predictive)
-    section["sampler"] = {"num_chains": settings.num_chains, "num_warmup": settings.num_warmup,
+    out = section(q, conf, [r.row for r in rows], items, "group", predictive)
+    out["sampler"] = {"num_chains": settings.num_chains, "num_warmup": settings.num_warmup,
                           "num_samples": settings.num_samples, "seed": settings.seed}
-    return section
+    return out
 
 
 def life_predictive(row: LifeRow, mission: float, units: int, seed: int) -> dict:

@@ -93,7 +93,8 @@ def test_probability_rises_with_the_test_time(shape):
 
 
 def test_bayesian_units_at_unit_ratio_agree_with_the_attribute_plan():
-    """Known shape: the attribute Bayesian plan's n (CHECKS.md-checked module) needs L <= 1,
+    """Known shape: the attribute Bayesian plan's n (checked module, docs/references.md)
+    needs L <= 1,
     and one unit fewer needs L > 1."""
     prior = RatePrior.beta(1.0, 9.0)
     for c in (0, 1, 2):

@@ -17,7 +17,7 @@ from qualbayes.planning.weibull import ShapePrior
 @pytest.mark.parametrize("shape", [0.7, 1.0, 2.0, 3.5])
 def test_unit_test_time_ratio_gives_back_the_success_run(r, c, n, shape):
     # L = 1: n = ln(1-C)/(L^beta ln R) is the success-run size whatever the shape
-    # (parametric binomial, common practice; Kececioglu); values from CHECKS.md
+    # (parametric binomial, common practice; Kececioglu); values from docs/references.md
     assert weibull.units_needed(r, c, 1.0, shape, 0) == n
     # n units need L <= 1, n - 1 units need L > 1
     assert weibull.time_ratio(r, c, n, shape, 0) <= 1.0

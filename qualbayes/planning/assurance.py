@@ -222,7 +222,7 @@ def life_assurance(units: int, ratio: float, failures: int, shape: weibull.Shape
     c = count(failures, "allowed failures")
     if c >= n:
         return 1.0
-    betas, w = weibull._shape_nodes(shape)
+    betas, w = weibull.shape_nodes(shape)
     k = ratio ** betas  # L^beta per shape node
 
     def integrand(u: float, a: float, b: float) -> float:

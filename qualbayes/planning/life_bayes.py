@@ -100,7 +100,7 @@ def _node_terms(a: float, b: float, log_k: np.ndarray, n: int, c: int, p_star: f
 
 def _prob(prior: RatePrior, p_star: float, n: int, log_ratio: float, c: int,
           shape: weibull.Shape) -> float:
-    betas, w = weibull._shape_nodes(shape)
+    betas, w = weibull.shape_nodes(shape)
     log_k = _log_k(log_ratio, betas)
     logs, probs = [], []
     for a, b in zip(prior.a, prior.b, strict=True):

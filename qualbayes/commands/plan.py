@@ -206,7 +206,7 @@ def _sampling(args) -> dict:
     beta = optional_probability(args.beta, "--beta")
     lot = None if args.lot_size is None else parse_whole(args.lot_size, "--lot-size", least=2)
     spec = None if args.spec is None else parse_rate(args.spec, "--spec")
-    sampling._check(aql, alpha, ltpd, beta, lot)  # AQL < LTPD, lot size usable
+    sampling.check_inputs(aql, alpha, ltpd, beta, lot)  # AQL < LTPD, lot size usable
     if args.lot_quality_prior is None:
         prior = "history" if args.history else None
     else:

@@ -108,7 +108,7 @@ def units_needed(reliability: float, confidence: float, ratio: float, shape: Sha
             return None  # outside floating point: the test period is far too short or long
         return attribute.units_for_failures(r_test, conf, c)
     limit = (1.0 - conf) * (1.0 + 1e-12)
-    return attribute._smallest(
+    return attribute.smallest_units(
         lambda n: consumer_risk(n, ratio, c, r, shape) <= limit, c + 1)
 
 

@@ -75,6 +75,10 @@ class _Frozen:
     def mean(self) -> float:
         return float(self.frozen().mean())
 
+    def head(self) -> str:
+        """The label as a prefix of a description ("stated: "), or nothing."""
+        return f"{self.label}: " if self.label else ""
+
     def interval(self, coverage: float = 0.95) -> tuple[float, float]:
         lo, hi = self.frozen().interval(coverage)
         return float(lo), float(hi)
@@ -104,8 +108,7 @@ class Beta(_Frozen):
         return stats.beta(self.a, self.b)
 
     def describe(self) -> str:
-        head = f"{self.label}: " if self.label else ""
-        return f"{head}{self.variable} ~ Beta({self.a:.6g}, {self.b:.6g})"
+        return f"{self.head()}{self.variable} ~ Beta({self.a:.6g}, {self.b:.6g})"
 
     def to_numpyro(self):
         import numpyro.distributions as dist  # noqa: PLC0415
@@ -218,8 +221,7 @@ class Gamma(_Frozen):
         return stats.gamma(self.a, scale=1.0 / self.rate)
 
     def describe(self) -> str:
-        head = f"{self.label}: " if self.label else ""
-        return f"{head}{self.variable} ~ Gamma(shape {self.a:.6g}, rate {self.rate:.6g})"
+        return f"{self.head()}{self.variable} ~ Gamma(shape {self.a:.6g}, rate {self.rate:.6g})"
 
     def to_numpyro(self):
         import numpyro.distributions as dist  # noqa: PLC0415
@@ -266,9 +268,8 @@ class LogNormal(_Frozen):
         return stats.lognorm(self.sigma, scale=math.exp(self.mu))
 
     def describe(self) -> str:
-        head = f"{self.label}: " if self.label else ""
         lo, hi = self.interval()
-        return (f"{head}ln({self.variable}) ~ Normal({self.mu:.6g}, {self.sigma:.6g}^2) "
+        return (f"{self.head()}ln({self.variable}) ~ Normal({self.mu:.6g}, {self.sigma:.6g}^2) "
                 f"(central 95%: {lo:.4g} to {hi:.4g})")
 
     def to_numpyro(self):

@@ -267,6 +267,10 @@ def plan_attribute(*, reliability, confidence, failures=0, prior=None, design=No
                                                                               "max_units", 1)}
     analysis = _plan_prior(prior, history, "prior")
     design_prior = _plan_prior(design, history if design == HISTORY else None, "design")
+    if history is not None and HISTORY not in (analysis, design_prior):
+        raise ParameterError("history", type(history).__name__, "given, but neither prior "
+                                                                "uses it (prior='history' or "
+                                                                "design='history')")
     learned = _history(history, part, seed, settings)
     record = plans.plan_attribute(analysis=analysis, design=design_prior, history=learned,
                                   **kw)
@@ -316,6 +320,9 @@ def plan_sampling(*, aql, alpha, ltpd, beta, lot_size: int | None = None, prior=
     if not aql_v < ltpd_v:
         raise ParameterError("ltpd", ltpd, f"must exceed the AQL ({aql_v:g})")
     chosen = _plan_prior(prior, history, "prior")
+    if history is not None and chosen != HISTORY:
+        raise ParameterError("history", type(history).__name__, "given, but the prior does not "
+                                                                "use it (prior='history')")
     learned = _history(history, part, seed, settings) if chosen == HISTORY else None
     record = plans.plan_sampling(
         aql_v, check.probability(alpha, "alpha"), ltpd_v, check.probability(beta, "beta"),

@@ -157,6 +157,9 @@ def test_a_sampling_plan_meets_both_risks_by_the_binomial():
      "high"),
     (lambda: qb.plan_sampling(aql=0.05, alpha=0.05, ltpd=0.01, beta=0.1), "ltpd"),
     (lambda: qb.plan_attribute(reliability=0.9, confidence=0.9, prior="history"), "prior"),
+    (lambda: qb.plan_attribute(reliability=0.9, confidence=0.9, prior="R>0.95@90%",
+                               history=LOTS), "history"),
+    (lambda: qb.plan_mtbf(goal=100, confidence=0.9, prior="p<1%@90%"), "prior"),
 ])
 def test_plan_arguments_are_checked_on_entry(call, parameter):
     with pytest.raises(ParameterError) as err:

@@ -114,3 +114,21 @@ def test_a_plan_sensitivity_table_through_the_api():
     uniform = table[table["prior"] == "uniform"]
     assert uniform["prob"].item() == pytest.approx(1 - 0.9**23, rel=1e-10)
     assert uniform["decision"].item() == "demonstrated"
+
+
+@pytest.mark.slow
+def test_a_life_sensitivity_table_through_the_api():
+    from qualbayes.inference import SamplerSettings
+
+    rng = np.random.default_rng(8)
+    t = np.sort(rng.weibull(2.0, 12) * 1000.0)
+    life = pd.DataFrame({"unit": [f"u{i}" for i in range(12)], "time": t,
+                         "status": ["F"] * 9 + ["S"] * 3})
+    fast = SamplerSettings(num_warmup=500, num_samples=500, seed=3)
+    result = qb.assess_life(life, mission=100, target=0.9, settings=fast)
+    table = sensitivity(result, settings=fast)
+    assert table["prior"].iloc[0].startswith("as run")
+    as_run = table[table["prior"].str.startswith("as run")]["prob"].item()
+    assert as_run == pytest.approx(result.to_frame()["prob_meets_target"].item())
+    assert set(table["decision"]) <= {"meets", "does-not-meet", "undecided", "not-converged",
+                                      "not usable"}

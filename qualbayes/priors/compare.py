@@ -1,7 +1,8 @@
 """``sensitivity(question, priors)``: a result rerun under a set of priors, as a tidy frame.
 
-``question`` is a result of the Python API (:class:`~qualbayes.results.LotResult`, or a
-:class:`~qualbayes.results.PlanResult` of an attribute or MTBF plan). ``priors`` is None (the
+``question`` is a result of the Python API (:class:`~qualbayes.results.LotResult`, a
+:class:`~qualbayes.results.PlanResult` of an attribute or MTBF plan, or a
+:class:`~qualbayes.results.LifeResult`, whose reruns are NUTS fits, each gated). ``priors`` is None (the
 standard set of :mod:`qualbayes.priors.prior_set`: as run, uniform, Jeffreys, sceptical),
 or a dict ``{name: prior}`` of Beta priors (lots, attribute plans) or Gamma priors (MTBF
 plans), rerun beside the prior as run. The frame has one row per item (lot or plan) and
@@ -117,14 +118,39 @@ def _plan(result, priors) -> pd.DataFrame:
                                                   "lots, attribute and MTBF plans")
 
 
-def sensitivity(question, priors: dict | None = None) -> pd.DataFrame:
-    """Every item of ``question`` (a LotResult or an attribute/MTBF PlanResult) under every
-    prior of the set; see the module notes."""
-    from qualbayes.results import LotResult, PlanResult  # noqa: PLC0415
+def _life(result, priors, settings) -> pd.DataFrame:
+    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
+    from qualbayes.life_analysis import group_data  # noqa: PLC0415
+    from qualbayes.priors.life_sensitivity import life_rows, life_sensitivity  # noqa: PLC0415
+
+    if priors is not None:
+        raise ParameterError("priors", priors, "a life result is rerun under the standard set "
+                                               "only (leave priors out)")
+    as_run = result.assessment.prior
+    if as_run.earlier:
+        raise ParameterError("question", "LifeResult", "a life prior with earlier data is "
+                                                       "rerun from the command line "
+                                                       "(--sensitivity)")
+    if settings is not None and not isinstance(settings, SamplerSettings):
+        raise ParameterError("settings", settings, "expected SamplerSettings")
+    rows = life_rows(as_run, None, None, result.assessment.units)
+    section = life_sensitivity(result.assessment, group_data(result.table), rows, None,
+                               settings)
+    return _tidy(section, "group")
+
+
+def sensitivity(question, priors: dict | None = None, *, settings=None) -> pd.DataFrame:
+    """Every item of ``question`` (a LotResult, an attribute/MTBF PlanResult or a
+    LifeResult) under every prior of the set; see the module notes. ``settings``: the
+    sampler settings of the life reruns (default: those of the result's seed)."""
+    from qualbayes.results import LifeResult, LotResult, PlanResult  # noqa: PLC0415
 
     if isinstance(question, LotResult):
         return _lots(question, priors)
     if isinstance(question, PlanResult):
         return _plan(question, priors)
+    if isinstance(question, LifeResult):
+        return _life(question, priors, settings)
     raise ParameterError("question", type(question).__name__,
-                         "expected a LotResult or a PlanResult from the qualbayes API")
+                         "expected a LotResult, PlanResult or LifeResult from the qualbayes "
+                         "API")

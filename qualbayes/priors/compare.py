@@ -2,7 +2,8 @@
 
 ``question`` is a result of the Python API (:class:`~qualbayes.results.LotResult`, a
 :class:`~qualbayes.results.PlanResult` of an attribute or MTBF plan, or a
-:class:`~qualbayes.results.LifeResult`, whose reruns are NUTS fits, each gated). ``priors`` is None (the
+:class:`~qualbayes.results.LifeResult`, whose reruns are NUTS fits, each gated).
+``priors`` is None (the
 standard set of :mod:`qualbayes.priors.prior_set`: as run, uniform, Jeffreys, sceptical),
 or a dict ``{name: prior}`` of Beta priors (lots, attribute plans) or Gamma priors (MTBF
 plans), rerun beside the prior as run. The frame has one row per item (lot or plan) and

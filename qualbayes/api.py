@@ -227,14 +227,19 @@ def assess_life(data, *, mission, target, confidence=0.9, prior=None, shape=None
 
 # --------------------------------------------------------------------------- plans
 
-def _history(history, part, seed, settings):
+def _history(history, part, seed, settings, fits: list):
+    """The prior learned from a lot history (NUTS); its fit is appended to ``fits``."""
     if history is None:
         return None
     from qualbayes.planning.history import learn_prior  # noqa: PLC0415
 
     seed_value = None if seed is None else check.seed(seed)
     run_settings = check.settings_with_seed(settings, seed_value)
-    return learn_prior(history, part=part, seed=run_settings.seed, settings=run_settings)
+    with _sampling(True) as recorded:
+        learned = learn_prior(history, part=part, seed=run_settings.seed,
+                              settings=run_settings)
+    fits += [(learned.part, f) for f in recorded]
+    return learned
 
 
 def _plan_prior(prior, history, name: str):
@@ -271,10 +276,13 @@ def plan_attribute(*, reliability, confidence, failures=0, prior=None, design=No
         raise ParameterError("history", type(history).__name__, "given, but neither prior "
                                                                 "uses it (prior='history' or "
                                                                 "design='history')")
-    learned = _history(history, part, seed, settings)
+    fits: list = []
+    learned = _history(history, part, seed, settings, fits)
     record = plans.plan_attribute(analysis=analysis, design=design_prior, history=learned,
                                   **kw)
-    return PlanResult.from_record(record, analysis=analysis)
+    if analysis == HISTORY:
+        analysis = learned.prior
+    return PlanResult.from_record(record, analysis=analysis, fits=tuple(fits))
 
 
 def plan_life(*, reliability, confidence, mission, units, shape, failures=0, prior=None,
@@ -323,11 +331,13 @@ def plan_sampling(*, aql, alpha, ltpd, beta, lot_size: int | None = None, prior=
     if history is not None and chosen != HISTORY:
         raise ParameterError("history", type(history).__name__, "given, but the prior does not "
                                                                 "use it (prior='history')")
-    learned = _history(history, part, seed, settings) if chosen == HISTORY else None
+    fits: list = []
+    learned = _history(history, part, seed, settings, fits) if chosen == HISTORY else None
     record = plans.plan_sampling(
         aql_v, check.probability(alpha, "alpha"), ltpd_v, check.probability(beta, "beta"),
         None if lot_size is None else check.count(lot_size, "lot_size", 1),
         None if chosen == HISTORY else chosen,
         None if spec is None else check.rate(spec, "spec"), learned,
         None if level is None else check.probability(level, "level"))
-    return PlanResult.from_record(record, analysis=None if chosen == HISTORY else chosen)
+    analysis = learned.prior if chosen == HISTORY else chosen
+    return PlanResult.from_record(record, analysis=analysis, fits=tuple(fits))

@@ -229,10 +229,13 @@ class PlanResult:
     record: dict = field(repr=False)
     #: the analysis prior as run (RatePrior, GammaPrior) or None (classical)
     analysis: object = field(default=None, repr=False, compare=False)
+    #: (part, Fit) of a prior learned from a lot history
+    fits: tuple = field(default=(), repr=False, compare=False)
 
     @classmethod
-    def from_record(cls, record: dict, analysis=None) -> PlanResult:
-        return cls(record["plan"], record["question"], record["verdict"], record, analysis)
+    def from_record(cls, record: dict, analysis=None, fits: tuple = ()) -> PlanResult:
+        return cls(record["plan"], record["question"], record["verdict"], record, analysis,
+                   fits)
 
     @property
     def table_names(self) -> list[str]:
@@ -269,7 +272,14 @@ class PlanResult:
     def _repr_html_(self) -> str:
         return _html(self.to_frame(), self.question)
 
-    @property
+    @cached_property
     def idata(self):
-        """Plans are closed forms or quadrature: no MCMC draws (None)."""
-        return None
+        """The lot-history fit of a learned prior (mu and kappa, dimension ``part``), or None:
+        the plans themselves are closed forms or quadrature."""
+        if not self.fits:
+            return None
+        from qualbayes.inference import to_idata  # noqa: PLC0415
+
+        part, fit = self.fits[-1]
+        return to_idata(fit.draws, fit.diverging, {k: ["part"] for k in fit.draws},
+                        {"part": [part]})

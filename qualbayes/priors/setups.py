@@ -14,6 +14,19 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 
+def setup_record(setup, prior_text: str, formula: str) -> dict:
+    """The run-record keys of a Beta or gamma setup: its words, the elicited prior, and the
+    earlier data with their weight and the power-prior formula."""
+    earlier = None
+    if setup.earlier is not None:
+        earlier = setup.earlier.to_dict() | {
+            "weight": setup.weight, "initial_prior": setup.base[2], "prior": prior_text,
+            "method": f"power prior (Ibrahim & Chen 2000): {formula}"}
+    return {"prior_words": setup.words,
+            "prior_elicited": [setup.stated.to_dict()] if setup.stated is not None else [],
+            "earlier_data": earlier}
+
+
 @dataclass
 class BetaSetup:
     """The analysis prior on a probability p and where it came from."""
@@ -30,15 +43,8 @@ class BetaSetup:
 
     def record(self) -> dict:
         """The run-record keys this prior adds."""
-        earlier = None
-        if self.earlier is not None:
-            earlier = self.earlier.to_dict() | {
-                "weight": self.weight, "initial_prior": self.base[2],
-                "prior": f"Beta({self.a:.6g}, {self.b:.6g})",
-                "method": "power prior (Ibrahim & Chen 2000): Beta(a0 + w x0, b0 + w (n0 - x0))"}
-        return {"prior_words": self.words,
-                "prior_elicited": [self.stated.to_dict()] if self.stated is not None else [],
-                "earlier_data": earlier}
+        return setup_record(self, f"Beta({self.a:.6g}, {self.b:.6g})",
+                            "Beta(a0 + w x0, b0 + w (n0 - x0))")
 
 
 def beta_setup(statements, base: tuple[float, float, str] | None, earlier_text,
@@ -89,16 +95,10 @@ class GammaSetup:
     words: list[str] = field(default_factory=list)
 
     def record(self) -> dict:
-        earlier = None
-        if self.earlier is not None:
-            earlier = self.earlier.to_dict() | {
-                "weight": self.weight, "initial_prior": self.base[2],
-                "prior": self.prior.describe() if self.prior is not None else
-                "none: weight 0 on the flat prior leaves the classical test",
-                "method": "power prior (Ibrahim & Chen 2000): Gamma(a0 + w r0, b0 + w T0)"}
-        return {"prior_words": self.words,
-                "prior_elicited": [self.stated.to_dict()] if self.stated is not None else [],
-                "earlier_data": earlier}
+        """The run-record keys this prior adds."""
+        return setup_record(self, self.prior.describe() if self.prior is not None else
+                            "none: weight 0 on the flat prior leaves the classical test",
+                            "Gamma(a0 + w r0, b0 + w T0)")
 
 
 def gamma_setup(statements, analysis, earlier_text, weight: float | None) -> GammaSetup:

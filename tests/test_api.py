@@ -187,3 +187,20 @@ def test_a_life_plan_with_a_shape_range_lies_between_its_ends():
     t = plan["time per unit"].item()
     low, high = plan.iloc[0, -2], plan.iloc[0, -1]
     assert min(low, high) < t < max(low, high) or math.isclose(t, min(low, high))
+
+
+def test_pandas_types_read_as_their_values():
+    frame = pd.DataFrame({
+        "lot": [101, 102, 103],  # numbers as lot ids
+        "date": pd.to_datetime(["2026-03-01", None, "2026-03-09"]),  # Timestamp and NaT
+        "lot_size": pd.array([5000, None, 800], dtype="Int64"),  # pandas NA
+        "part": pd.Categorical(["A-1", "A-1", "B-2"]),
+        "inspected": np.array([125, 80, 50], dtype=np.int32),
+        "defectives": np.array([0.0, 1.0, 0.0]),  # whole numbers held as floats
+    })
+    got = qb.assess_lots(frame, spec=0.02).to_frame()
+    assert got["lot"].tolist() == ["101", "102", "103"]
+    assert str(got["date"][0]) == "2026-03-01" and got["date"][1] is None
+    assert got["lot_size"].isna().tolist() == [False, True, False]
+    assert got["part"].tolist() == ["A-1", "A-1", "B-2"]
+    assert got["defectives"].tolist() == [0, 1, 0]

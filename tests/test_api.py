@@ -102,6 +102,7 @@ def test_a_limit_may_be_written_as_the_engineer_writes_it():
     ({"spec": 0.01, "prior": "bogus"}, "prior"), ({"spec": 0.01, "prior": 3}, "prior"),
     ({"spec": 0.01, "prior": "history", "seed": -1}, "seed"),
     ({"spec": 0.01, "columns": 5}, "columns"),
+    ({"spec": 0.01, "sheet": "Sheet1"}, "sheet"),
 ])
 def test_bad_arguments_are_refused_on_entry_naming_the_parameter(kwargs, parameter):
     with pytest.raises(ParameterError) as err:

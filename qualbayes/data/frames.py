@@ -98,6 +98,12 @@ def _is_path(data) -> bool:
     return isinstance(data, str | os.PathLike)
 
 
+def _no_sheet(sheet) -> None:
+    if sheet is not None:
+        raise ParameterError("sheet", sheet, "applies to an xlsx file, not to a table given "
+                                             "from Python")
+
+
 def lots_table(data, *, columns=None, sheet: str | None = None):
     """A validated :class:`~qualbayes.data.lots.LotTable` from a DataFrame, a LotTable or the
     path of an inspection export."""
@@ -107,6 +113,7 @@ def lots_table(data, *, columns=None, sheet: str | None = None):
         return data
     if _is_path(data):
         return read_lots(data, sheet=sheet, columns=columns)
+    _no_sheet(sheet)
     return validate_lots(raw_from_frame(data), _mapping(columns))
 
 
@@ -120,6 +127,7 @@ def life_table(data, *, columns=None, sheet: str | None = None, units: str = "",
         return data
     if _is_path(data):
         return read_life(data, sheet=sheet, columns=columns, units=units, groups=groups)
+    _no_sheet(sheet)
     return validate_life(raw_from_frame(data), _mapping(columns), units=units, groups=groups)
 
 

@@ -28,6 +28,19 @@ from qualbayes.priors import (
 )
 
 
+def test_the_package_names_stay_the_functions_after_every_module_is_loaded():
+    import importlib
+    import pkgutil
+
+    import qualbayes.priors as package
+
+    for info in pkgutil.iter_modules(package.__path__):
+        if info.name != "life_sensitivity":  # the jax path; its name is no export
+            importlib.import_module(f"qualbayes.priors.{info.name}")
+    for name in package.__all__:
+        assert not isinstance(getattr(package, name), type(package)), name
+
+
 @pytest.mark.parametrize("prior, ref", [
     (Beta(2.0, 300.0), stats.beta(2.0, 300.0)),
     (Gamma(3.0, 1500.0), stats.gamma(3.0, scale=1 / 1500.0)),

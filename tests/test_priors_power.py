@@ -26,7 +26,7 @@ from qualbayes.models.weibull import (
     log_prior,
     reported_mode,
 )
-from qualbayes.priors.power import (
+from qualbayes.priors.power_prior import (
     EarlierCounts,
     EarlierExposure,
     beta_power,
@@ -80,7 +80,7 @@ def test_weight_one_equals_pooling_the_two_data_sets_exactly(tmp_path):
                 ["E-2", "KV", "Acme", "2025-01-02", 900, 315, 0],
                 ["E-3", "KV", "Acme", "2025-01-03", 900, 500, 3]]
     path = write_csv(tmp_path / "earlier.csv", LOT_HEADER, old_rows)
-    from qualbayes.priors.power import counts_from_lots
+    from qualbayes.priors.power_prior import counts_from_lots
 
     earlier = counts_from_lots(path)
     assert (earlier.failures, earlier.units, earlier.lots) == (4, 1130, 3)

@@ -18,7 +18,7 @@ from qualbayes.commands.prior_options import beta_setup
 from qualbayes.data.lots import read_lots
 from qualbayes.models.priors import BetaPrior
 from qualbayes.priors.elicit import elicit
-from qualbayes.priors.power import EarlierCounts, EarlierExposure
+from qualbayes.priors.power_prior import EarlierCounts, EarlierExposure
 from qualbayes.priors.prior_set import (
     DEMONSTRATED,
     NOT_DEMONSTRATED,
@@ -204,7 +204,7 @@ def test_the_shared_model_density_equals_the_life_models_posterior():
         numpy_prior,
         structure_of,
     )
-    from qualbayes.priors.power import EarlierLife
+    from qualbayes.priors.power_prior import EarlierLife
 
     st = group_stats([310.0, 520.0, 640.0], [400.0, 1000.0, 1200.0], [200.0], [500.0], [250.0])
     old = group_stats([450.0, 700.0], [900.0, 1300.0])

@@ -67,7 +67,7 @@ def used(args) -> bool:
 
 def earlier_weight(args) -> float | None:
     """The weight, checked against --earlier: both or neither."""
-    from qualbayes.priors.power import parse_weight  # noqa: PLC0415
+    from qualbayes.priors.power_prior import parse_weight  # noqa: PLC0415
 
     has_data, has_weight = args.earlier is not None, args.earlier_weight is not None
     if has_data and not has_weight:

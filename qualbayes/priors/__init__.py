@@ -13,7 +13,7 @@ Modules, one job each (scipy only, except ``life_sensitivity``):
   statements        parse "p<0.5%@90%"-style statements into quantile constraints
   elicit            a Beta, lognormal or gamma prior that meets one or two statements exactly
   build             from_statements and power: prior objects from Python
-  power             the power prior (Ibrahim & Chen 2000): earlier data at a weight in [0, 1]
+  power_prior       the power prior (Ibrahim & Chen 2000): earlier data at a weight in [0, 1]
   predictive        what data each prior expects (prior predictive ranges)
   prior_set         the prior set, and the lots question rerun under it (closed forms)
   plan_sensitivity  the plan questions rerun under it

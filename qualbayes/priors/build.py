@@ -47,7 +47,7 @@ def from_statements(statements, *, what: str | None = None):
 
 def _earlier_counts(earlier):
     """(failures, units) from a tuple, an EarlierCounts, or a table of lots (pooled)."""
-    from qualbayes.priors.power import EarlierCounts  # noqa: PLC0415
+    from qualbayes.priors.power_prior import EarlierCounts  # noqa: PLC0415
 
     if isinstance(earlier, EarlierCounts):
         return earlier
@@ -68,7 +68,7 @@ def _earlier_counts(earlier):
 
 def _earlier_exposure(earlier):
     from qualbayes.parameters import count, positive  # noqa: PLC0415
-    from qualbayes.priors.power import EarlierExposure  # noqa: PLC0415
+    from qualbayes.priors.power_prior import EarlierExposure  # noqa: PLC0415
 
     if isinstance(earlier, EarlierExposure):
         return earlier
@@ -106,7 +106,7 @@ def power(earlier, weight: float, *, base=None):
         from qualbayes.data.frames import life_table  # noqa: PLC0415
         from qualbayes.data.life import frame_arrays  # noqa: PLC0415
         from qualbayes.models.weibull import group_stats  # noqa: PLC0415
-        from qualbayes.priors.power import EarlierLife, life_power_prior  # noqa: PLC0415
+        from qualbayes.priors.power_prior import EarlierLife, life_power_prior  # noqa: PLC0415
 
         table = life_table(earlier)
         st = group_stats(**frame_arrays(table.frame))

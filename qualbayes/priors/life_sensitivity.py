@@ -155,7 +155,7 @@ def life_rows(as_run: LifePrior, stated: LifePrior | None, earlier, units: str =
               ) -> list[LifeRow]:
     """The set for the life question. ``as_run``: the analysis prior (with its earlier-data
     term, if any, which must come from ``earlier``); ``stated``: the elicited prior (None if
-    none); ``earlier``: a :class:`~qualbayes.priors.power.EarlierLife` or None. The
+    none); ``earlier``: a :class:`~qualbayes.priors.power_prior.EarlierLife` or None. The
     power-prior rows use the prior as run without its earlier-data term as the initial
     prior."""
     base = replace(as_run, earlier=())

@@ -94,7 +94,7 @@ def beta_rows(as_run: PriorRow | None, stated=None, base: tuple[float, float, st
     prior's row (None for a classical plan: then the classical rule is row one);
     ``stated`` an :class:`~qualbayes.priors.elicit.Elicited`; ``base`` the initial prior
     (a0, b0, words) of the power prior and ``earlier`` the earlier counts."""
-    from qualbayes.priors.power import beta_power  # noqa: PLC0415
+    from qualbayes.priors.power_prior import beta_power  # noqa: PLC0415
 
     rows = [as_run] if as_run is not None else []
     rows += [
@@ -130,7 +130,7 @@ def _gamma_row(key, label, a, rate, why, phrase) -> PriorRow:
 def gamma_rows(as_run: PriorRow | None, stated=None, base: tuple[float, float, str] | None = None,
                earlier=None) -> list[PriorRow]:
     """The set for a constant failure rate (MTBF plans)."""
-    from qualbayes.priors.power import gamma_power  # noqa: PLC0415
+    from qualbayes.priors.power_prior import gamma_power  # noqa: PLC0415
 
     rows = [as_run] if as_run is not None else []
     rows += [

@@ -54,7 +54,7 @@ def beta_setup(statements, base: tuple[float, float, str] | None, earlier_text,
     the earlier data at ``weight``. None when neither statements nor earlier data are
     given (the caller keeps its own prior)."""
     from qualbayes.priors.elicit import elicit  # noqa: PLC0415
-    from qualbayes.priors.power import beta_power, earlier_counts  # noqa: PLC0415
+    from qualbayes.priors.power_prior import beta_power, earlier_counts  # noqa: PLC0415
 
     if not statements and earlier_text is None:
         return None
@@ -106,7 +106,7 @@ def gamma_setup(statements, analysis, earlier_text, weight: float | None) -> Gam
     the initial prior, then the earlier exposure ``earlier_text`` ("R/T") at ``weight``."""
     from qualbayes.planning.mtbf import GammaPrior  # noqa: PLC0415
     from qualbayes.priors.elicit import elicit  # noqa: PLC0415
-    from qualbayes.priors.power import gamma_power, parse_exposure  # noqa: PLC0415
+    from qualbayes.priors.power_prior import gamma_power, parse_exposure  # noqa: PLC0415
 
     words, stated = [], None
     if statements:
@@ -187,7 +187,7 @@ def life_setup(prior, shape_statements, life_statements, earlier_text, weight,
     ``weight``: (prior, LifeSetup)."""
     from qualbayes.models.weibull import LifePrior  # noqa: PLC0415
     from qualbayes.priors.elicit import elicit  # noqa: PLC0415
-    from qualbayes.priors.power import earlier_life, life_power_prior  # noqa: PLC0415
+    from qualbayes.priors.power_prior import earlier_life, life_power_prior  # noqa: PLC0415
 
     elicited = [elicit(st, what=None) for st in (shape_statements, life_statements) if st]
     stated = None

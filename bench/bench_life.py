@@ -40,8 +40,8 @@ def main() -> None:
     args = ap.parse_args()
     os.environ.setdefault("CI", "true")
 
-    from qualbayes.inference import SamplerSettings, setup_jax
-    setup_jax()
+    from qualbayes.inference import SamplerSettings, configure_process
+    configure_process()
     cache = os.environ.get("QUALBAYES_JAX_CACHE",
                            str(Path.home() / ".cache" / "qualbayes" / "jax"))
     cache_state = ("warm" if Path(cache).is_dir() and any(Path(cache).iterdir())

@@ -47,7 +47,9 @@ def simulate(k: int = 1000, mu: float = 0.01, kappa: float = 300.0, seed: int = 
 
 
 def hierarchical(model_name: str, x, n) -> dict:
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference import SamplerSettings, configure_process
+
+    configure_process()
     from qualbayes.models import lot_history
 
     model = getattr(lot_history, model_name)

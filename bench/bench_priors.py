@@ -48,8 +48,8 @@ def elicitation() -> list[tuple[str, float]]:
 
 
 def lots_sensitivity(n: int = 10_000) -> float:
-    from qualbayes.priors.power import EarlierCounts
-    from qualbayes.priors.sensitivity import PriorRow, beta_rows, lots_sensitivity
+    from qualbayes.priors.power_prior import EarlierCounts
+    from qualbayes.priors.prior_set import PriorRow, beta_rows, lots_sensitivity
 
     rng = np.random.default_rng(1)
     inspected = rng.choice([80, 125, 200, 315], n)

@@ -1,30 +1,35 @@
 """qualbayes: Bayesian lot acceptance and reliability decisions for quality engineers.
 
-The API mirrors the command line:
+The questions, from Python (DataFrames or files in, result objects out; keyword-only
+options checked on entry, errors naming the parameter):
 
-* lots: ``read_lots(path)`` -> LotTable; ``assess_lots(table, spec, confidence, prior)``
-* life: ``read_life(path)`` -> LifeTable; ``assess_life(table, mission, target, ...)``
-* plans: ``plan_attribute``, ``plan_life``, ``plan_mtbf``, ``plan_sampling``
+* lots: ``assess_lots(data, spec=..., confidence=0.95, prior="uniform")`` -> LotResult
+* life: ``assess_life(data, mission=..., target=..., confidence=0.9)`` -> LifeResult
+* plans: ``plan_attribute``, ``plan_life``, ``plan_mtbf``, ``plan_sampling`` -> PlanResult
+* priors: ``qualbayes.priors`` (``Beta``, ``Gamma``, ``LogNormal``, ``from_statements``,
+  ``power``, ``sensitivity``)
 
-Importing this package does not import jax; the sampler is loaded only by the functions
-that need it, and the life and plan functions are loaded on first use.
+Importing this package imports neither jax nor arviz, and no call changes the process's
+jax configuration (see docs/api.md).
 """
 
 from __future__ import annotations
 
 __version__ = "0.1.0"
 
-from qualbayes.acceptance import LotAssessment, assess_lots  # noqa: E402
 from qualbayes.caution import CAUTION  # noqa: E402
-from qualbayes.data.lots import LotTable, read_lots  # noqa: E402
-from qualbayes.errors import InputError, OptionError  # noqa: E402
-from qualbayes.questions import parse_probability, parse_rate  # noqa: E402
+from qualbayes.errors import InputError, OptionError, ParameterError  # noqa: E402
 
 _LAZY = {
+    "assess_lots": "qualbayes.api", "assess_life": "qualbayes.api",
+    "plan_attribute": "qualbayes.api", "plan_life": "qualbayes.api",
+    "plan_mtbf": "qualbayes.api", "plan_sampling": "qualbayes.api",
+    "LotResult": "qualbayes.results", "LifeResult": "qualbayes.results",
+    "PlanResult": "qualbayes.results",
+    "read_lots": "qualbayes.data.lots", "LotTable": "qualbayes.data.lots",
     "read_life": "qualbayes.data.life", "LifeTable": "qualbayes.data.life",
-    "assess_life": "qualbayes.life_analysis", "LifeAssessment": "qualbayes.life_analysis",
-    "plan_attribute": "qualbayes.planning", "plan_life": "qualbayes.planning",
-    "plan_mtbf": "qualbayes.planning", "plan_sampling": "qualbayes.planning",
+    "LotAssessment": "qualbayes.acceptance", "LifeAssessment": "qualbayes.life_analysis",
+    "parse_probability": "qualbayes.questions", "parse_rate": "qualbayes.questions",
 }
 
 
@@ -36,7 +41,4 @@ def __getattr__(name: str):
     raise AttributeError(f"module 'qualbayes' has no attribute {name!r}")
 
 
-__all__ = [
-    "CAUTION", "InputError", "LotAssessment", "LotTable", "OptionError", "assess_lots",
-    "parse_probability", "parse_rate", "read_lots", "__version__", *_LAZY,
-]
+__all__ = ["CAUTION", "InputError", "OptionError", "ParameterError", "__version__", *_LAZY]

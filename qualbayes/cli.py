@@ -43,6 +43,9 @@ def _terminated(signum, frame):
 
 
 def main(argv: list[str] | None = None) -> int:
+    from qualbayes.inference import configure_process  # noqa: PLC0415 - environment only
+
+    configure_process()  # the process is the command's: jax float64, CPU devices, cache
     parser = build_parser()
     args = parser.parse_args(argv)
     args.argv = list(sys.argv[1:] if argv is None else argv)

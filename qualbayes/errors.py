@@ -42,3 +42,21 @@ class OptionError(ValueError):
 
 class OutputExistsError(Exception):
     """Refusing to overwrite an earlier report or workbook."""
+
+
+class ParameterError(OptionError):
+    """A value given to a Python function cannot be used. ``parameter`` names the keyword
+    argument (never a command-line flag); the command layer maps it to its flag.
+
+    >>> err = ParameterError("spec", 1.5, "a defect-rate limit lies strictly between 0 and 1")
+    >>> str(err)
+    'spec=1.5: a defect-rate limit lies strictly between 0 and 1'
+    >>> isinstance(err, ValueError)
+    True
+    """
+
+    def __init__(self, parameter: str, value: object, message: str):
+        self.parameter = parameter
+        self.value = value
+        self.reason = message
+        super().__init__(f"{parameter}={value!r}: {message}")

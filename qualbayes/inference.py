@@ -1,52 +1,95 @@
-"""Running NUTS and gating the result. Imports jax: only the sampler paths import this."""
+"""Running NUTS and gating the result. Imports jax: only the sampler paths import this.
+
+No side effects on import or call: a library call runs inside :func:`jax_scope` (64-bit
+floats, needed by the beta-binomial at large concentration), which restores the caller's
+``jax_enable_x64`` on exit, and never touches ``jax_platforms`` or ``XLA_FLAGS``. The chain
+method (``parallel`` over CPU devices, or ``vectorized``) and the number of chains are
+arguments (:class:`SamplerSettings`). Only the command-line entry point configures the
+process (:func:`configure_process`: one CPU device per chain, float64, CPU, and a persistent
+compilation cache), before jax is imported.
+"""
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import os
 import sys
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
 
 from qualbayes import progress
-from qualbayes.gate import GateResult, diagnose
+from qualbayes.gate import GateResult, diagnose, diagnose_arrays
 
-_CONFIGURED = False
 HOST_DEVICES = 4  # the default number of chains
 
 
-def setup_jax() -> None:
-    """64-bit floats (needed by the beta-binomial at large concentration) and a persistent
-    compilation cache so a second run of the same command reuses compiled code."""
-    global _CONFIGURED
-    if _CONFIGURED:
-        return
-    if "jax" not in sys.modules:
-        # one CPU "device" per chain: chains then run as a pmap, which jax traces once,
-        # instead of a vmap of NUTS's while loops, whose batching costs seconds of tracing
-        # per run (measured: 1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap)
-        flags = os.environ.get("XLA_FLAGS", "")
-        if "xla_force_host_platform_device_count" not in flags:
-            os.environ["XLA_FLAGS"] = (
-                f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}").strip()
-    import jax  # noqa: PLC0415
-
-    jax.config.update("jax_enable_x64", True)
-    jax.config.update("jax_platforms", "cpu")
+def configure_process() -> None:
+    """For the command line only: set, through the environment and before jax is imported,
+    one CPU "device" per chain (chains then run as a pmap, which jax traces once, instead of
+    a vmap of NUTS's while loops, whose batching costs seconds of tracing per run; measured:
+    1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap), 64-bit floats, CPU only, and a
+    persistent compilation cache (``QUALBAYES_JAX_CACHE``, "off" for none) so that a second
+    run reuses compiled code. Values the user already set in the environment win. If jax is
+    already imported, its configuration is updated to the same values."""
+    flags = os.environ.get("XLA_FLAGS", "")
+    if "xla_force_host_platform_device_count" not in flags:
+        os.environ["XLA_FLAGS"] = (
+            f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}").strip()
+    values = {"JAX_ENABLE_X64": "1", "JAX_PLATFORMS": "cpu"}
     cache = os.environ.get("QUALBAYES_JAX_CACHE",
                            str(Path.home() / ".cache" / "qualbayes" / "jax"))
     progress.compile_notice(cache)
     if cache and cache.lower() != "off":
         try:
             Path(cache).mkdir(parents=True, exist_ok=True)
-            jax.config.update("jax_compilation_cache_dir", cache)
-            jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
-            jax.config.update("jax_persistent_cache_min_entry_size_bytes", 0)
+            values |= {"JAX_COMPILATION_CACHE_DIR": cache,
+                       "JAX_PERSISTENT_CACHE_MIN_COMPILE_TIME_SECS": "0",
+                       "JAX_PERSISTENT_CACHE_MIN_ENTRY_SIZE_BYTES": "0"}
         except OSError:
             pass
-    _CONFIGURED = True
+    for key, value in values.items():
+        os.environ.setdefault(key, value)
+    if "jax" in sys.modules:
+        import jax  # noqa: PLC0415
+
+        jax.config.update("jax_enable_x64", True)
+        if "JAX_COMPILATION_CACHE_DIR" in values:
+            jax.config.update("jax_compilation_cache_dir", os.environ["JAX_COMPILATION_CACHE_DIR"])
+            jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
+            jax.config.update("jax_persistent_cache_min_entry_size_bytes", 0)
+
+
+def setup_jax() -> None:
+    """Kept for callers of earlier versions: does nothing (importing a model no longer
+    configures jax; see :func:`jax_scope` and :func:`configure_process`)."""
+
+
+@contextlib.contextmanager
+def jax_scope():
+    """64-bit floats inside, the caller's setting restored on exit (re-entrant)."""
+    import jax  # noqa: PLC0415
+
+    with jax.enable_x64(True):
+        yield
+
+
+_RECORDER: contextvars.ContextVar[list | None] = contextvars.ContextVar("fits", default=None)
+
+
+@contextlib.contextmanager
+def recording_fits():
+    """Collect every :class:`Fit` that :func:`run_nuts` returns inside the block (the API
+    uses it to give a result its InferenceData without reaching into the question's code)."""
+    fits: list = []
+    token = _RECORDER.set(fits)
+    try:
+        yield fits
+    finally:
+        _RECORDER.reset(token)
 
 
 @dataclass
@@ -58,12 +101,15 @@ class SamplerSettings:
     max_tree_depth: int = 10
     seed: int = 20261202
     retry: bool = True
+    #: "parallel" (one device per chain), "vectorized", "sequential", or None: parallel when
+    #: there are enough devices, else vectorized (both give the same draws for one seed)
+    chain_method: str | None = None
 
     def harder(self) -> SamplerSettings:
         """The retry: twice the draws, a higher target acceptance (smaller steps)."""
-        return SamplerSettings(self.num_chains, 2 * self.num_warmup, 2 * self.num_samples,
-                               max(self.target_accept, 0.95), self.max_tree_depth,
-                               self.seed + 1, False)
+        return replace(self, num_warmup=2 * self.num_warmup, num_samples=2 * self.num_samples,
+                       target_accept=max(self.target_accept, 0.95), seed=self.seed + 1,
+                       retry=False)
 
 
 @dataclass
@@ -71,6 +117,34 @@ class Fit:
     draws: dict[str, np.ndarray]  # name -> (chain, draw, *shape)
     gate: GateResult
     settings: SamplerSettings
+    #: per (chain, draw): True where the transition diverged
+    diverging: np.ndarray | None = None
+    dims: dict = field(default_factory=dict)  # name -> trailing dimension names
+    coords: dict = field(default_factory=dict)  # dimension -> labels
+
+    def to_idata(self, observed: dict | None = None, observed_dims: dict | None = None,
+                 coords: dict | None = None):
+        """The draws as an ``arviz.InferenceData`` (imports arviz): posterior with named
+        dimensions and coordinates, sample stats (``diverging``) and observed data."""
+        return to_idata(self.draws, self.diverging, self.dims, self.coords | (coords or {}),
+                        observed, observed_dims)
+
+
+def to_idata(draws: dict, diverging=None, dims: dict | None = None, coords: dict | None = None,
+             observed: dict | None = None, observed_dims: dict | None = None):
+    """``arviz.InferenceData`` from arrays (chain, draw, *shape) (imports arviz)."""
+    import warnings  # noqa: PLC0415
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FutureWarning)
+        import arviz as az  # noqa: PLC0415
+
+    dims = dict(dims or {}) | dict(observed_dims or {})
+    stats = None
+    if diverging is not None:
+        stats = {"diverging": np.asarray(diverging, dtype=bool)}
+    return az.from_dict(posterior={k: np.asarray(v) for k, v in draws.items()},
+                        sample_stats=stats, observed_data=observed, coords=coords, dims=dims)
 
 
 def show_progress() -> bool:
@@ -81,32 +155,47 @@ def show_progress() -> bool:
 
 def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
              gate_on: Callable[[dict], dict] | None = None,
-             init_params: dict | None = None) -> Fit:
+             init_params: dict | None = None, *, gate_vars: list[str] | None = None,
+             dims: dict | None = None, coords: dict | None = None) -> Fit:
     """Sample ``model(*model_args)`` with NUTS, vectorised chains; gate; retry once.
 
-    ``gate_on`` maps the draws to the quantities the gate checks (default: all sites).
+    The gate checks ``gate_vars`` (sites, with ``dims``/``coords`` naming their trailing axes
+    so selection is by coordinate), or what ``gate_on`` maps the draws to (the older layout:
+    ``{"mu[A]": (chain, draw)}``), or else every site.
     """
-    setup_jax()
     attempt_settings = settings
     attempts = 0
-    while True:
-        attempts += 1
-        started = progress.fit_started(attempt_settings)
-        try:
-            draws, divergences = _sample(model, model_args, attempt_settings, init_params)
-        finally:
-            progress.fit_finished(started)
-        checked = gate_on(draws) if gate_on else draws
-        gate = diagnose(checked, divergences, attempts, _settings_dict(attempt_settings))
-        progress.fit_checked(started, gate.passed, attempt_settings.retry)
-        if gate.passed or not attempt_settings.retry:
-            return Fit(draws, gate, attempt_settings)
-        attempt_settings = attempt_settings.harder()
+    with jax_scope():
+        while True:
+            attempts += 1
+            started = progress.fit_started(attempt_settings)
+            try:
+                draws, diverging = _sample(model, model_args, attempt_settings, init_params)
+            finally:
+                progress.fit_finished(started)
+            divergences = int(diverging.sum())
+            info = _settings_dict(attempt_settings)
+            if gate_vars is not None:
+                gate = diagnose_arrays({k: draws[k] for k in gate_vars}, divergences, attempts,
+                                       info, dims, coords)
+            else:
+                gate = diagnose(gate_on(draws) if gate_on else draws, divergences, attempts,
+                                info)
+            progress.fit_checked(started, gate.passed, attempt_settings.retry)
+            if gate.passed or not attempt_settings.retry:
+                fit = Fit(draws, gate, attempt_settings, diverging, dict(dims or {}),
+                          dict(coords or {}))
+                if (fits := _RECORDER.get()) is not None:
+                    fits.append(fit)
+                return fit
+            attempt_settings = attempt_settings.harder()
 
 
-def chain_method(num_chains: int) -> str:
-    """``parallel`` (pmap over CPU devices) when there is a device per chain, else
-    ``vectorized``; both give the same draws for the same seed."""
+def chain_method(num_chains: int, requested: str | None = None) -> str:
+    """``requested``, or ``parallel`` (pmap over CPU devices) when there is a device per
+    chain, else ``vectorized``; both give the same draws for the same seed."""
+    if requested is not None:
+        return requested
     import jax  # noqa: PLC0415
 
     return "parallel" if jax.local_device_count() >= num_chains else "vectorized"
@@ -116,7 +205,7 @@ def _settings_dict(s: SamplerSettings) -> dict:
     return {"sampler": "NUTS (numpyro)", "chains": s.num_chains, "warmup": s.num_warmup,
             "draws_per_chain": s.num_samples, "target_accept": s.target_accept,
             "max_tree_depth": s.max_tree_depth, "seed": s.seed,
-            "chain_method": chain_method(s.num_chains)}
+            "chain_method": chain_method(s.num_chains, s.chain_method)}
 
 
 def _sample(model, model_args, s: SamplerSettings, init_params):
@@ -125,10 +214,10 @@ def _sample(model, model_args, s: SamplerSettings, init_params):
 
     kernel = NUTS(model, target_accept_prob=s.target_accept, max_tree_depth=s.max_tree_depth)
     mcmc = MCMC(kernel, num_warmup=s.num_warmup, num_samples=s.num_samples,
-                num_chains=s.num_chains, chain_method=chain_method(s.num_chains),
+                num_chains=s.num_chains, chain_method=chain_method(s.num_chains, s.chain_method),
                 progress_bar=show_progress(), jit_model_args=True)
     mcmc.run(jax.random.PRNGKey(s.seed), *model_args, init_params=init_params,
              extra_fields=("diverging",))
     samples = {k: np.asarray(v) for k, v in mcmc.get_samples(group_by_chain=True).items()}
     diverging = np.asarray(mcmc.get_extra_fields(group_by_chain=True)["diverging"])
-    return samples, int(diverging.sum())
+    return samples, diverging

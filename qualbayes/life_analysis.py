@@ -229,7 +229,8 @@ def plot_data(arrays: dict, beta, eta, mission: float, confidence: float) -> dic
     t = np.geomspace(lo, hi, CURVE_POINTS)
     take = np.linspace(0, beta.size - 1, min(beta.size, 2000)).astype(int)
     b, e = beta[take, None], eta[take, None]
-    rel = np.exp(-np.exp(b * (np.log(t)[None, :] - np.log(e))))
+    with np.errstate(over="ignore"):  # a huge shape: H = inf, R = 0 exactly
+        rel = np.exp(-np.exp(b * (np.log(t)[None, :] - np.log(e))))
     tail = (1.0 - confidence) / 2.0
     r_lo, r_med, r_hi = np.quantile(rel, [tail, 0.5, 1.0 - tail], axis=0)
     return {

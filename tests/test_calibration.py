@@ -1,4 +1,4 @@
-"""Simulation-based calibration (Talts et al., 2018, arXiv:1804.06788; CHECKS.md) of the
+"""Simulation-based calibration (Talts et al., 2018, arXiv:1804.06788; docs/references.md) of the
 hierarchical lot model and the censored Weibull model, NUTS included.
 
 Replications draw parameters from the prior and data from the model; the rank of the true

@@ -19,7 +19,6 @@ from qualbayes.data.life import read_life
 from qualbayes.gate import diagnose
 from qualbayes.life_analysis import assess_life
 from qualbayes.models.weibull import FLAT, group_stats, make_prior, reported_mode
-from qualbayes.questions import NOT_CONVERGED
 
 
 def life_csv(path, rows):
@@ -103,24 +102,27 @@ def test_every_unit_suspended_at_times_spread_over_ten_decades(tmp_path):
 
 
 @pytest.mark.filterwarnings("error::RuntimeWarning")  # no numpy overflow noise either
-def test_every_failure_at_one_instant_is_not_given_a_verdict(tmp_path):
+def test_every_failure_at_one_instant_is_judged_on_the_parameters(tmp_path):
     # 20 units all failed at exactly 100 h: the likelihood grows without bound in the
     # shape, the posterior sits where the prior stops it (shape ~ e^20) and R(50 h) is 1.0
-    # in every draw. The gate cannot judge a quantity that never varies and says so.
+    # in every draw. R(mission) is derived and saturated: the gate judges the parameters
+    # (log shape, log scale), which converge, so the answer is given (issue 12, item 4:
+    # a saturated derived quantity must not turn a clear verdict into "not-converged").
     table = read_life(life_csv(tmp_path / "same.csv", [(100.0, "F")] * 20))
     res = assess_life(table, 50.0, 0.9, confidence=0.9, seed=2)
     g = res.groups[0]
-    assert g["decision"] == NOT_CONVERGED
-    assert g["prob_meets_target"] is None and g["reliability_at_mission"] is None
-    reasons = g["diagnostics"]["reasons"]
-    assert reasons and any("cannot be computed" in r for r in reasons)
+    names = {p["name"].split("[")[0] for p in g["diagnostics"]["parameters"]}
+    assert names == {"log_shape", "log_scale"}
+    assert g["diagnostics"]["passed"], g["diagnostics"]["reasons"]
+    assert g["decision"] == "meets" and g["prob_meets_target"] == 1.0
 
 
 def test_gate_names_draws_that_never_vary():
     rng = np.random.default_rng(0)
     gate = diagnose({"a": rng.normal(size=(4, 500)), "b": np.ones((4, 500))}, 0)
     assert not gate.passed
-    assert gate.reasons() == ["R-hat and ESS of b cannot be computed (every draw within a "
-                              "chain is the same, or not a number); convergence is not shown"]
+    assert gate.reasons() == ["R-hat and ESS of b cannot be computed: it is constant (every "
+                              "draw of every chain is the same, so the sampler did not move); "
+                              "convergence is not shown"]
     assert math.isnan(gate.max_rhat)  # arviz gives R-hat NaN for constant draws
     assert "nan" in gate.summary()

@@ -1,6 +1,7 @@
 """Weibull log density, priors, posterior mode and plotting positions (no sampler).
 
-Outside references: the Lieblein-Zelen ball-bearing MLE (CHECKS.md), scipy.stats.weibull_min
+Outside references: the Lieblein-Zelen ball-bearing MLE (docs/references.md),
+scipy.stats.weibull_min
 (log-density terms and the censored maximum-likelihood fit), scipy.stats.beta and lognorm,
 and closed forms derived in the module docstrings (Gamma conditional posterior).
 """
@@ -103,9 +104,13 @@ def test_binned_sums_equal_exact_sums():
 
 def test_jax_and_numpy_log_densities_agree():
     jnp = pytest.importorskip("jax.numpy")
-    from qualbayes.inference import setup_jax
+    from qualbayes.inference import jax_scope
 
-    setup_jax()
+    with jax_scope():
+        _compare_log_densities(jnp)
+
+
+def _compare_log_densities(jnp):
     parts = censored_sample()
     st = group_stats(*parts)
     data = data_arrays(st)
@@ -124,7 +129,8 @@ def test_jax_and_numpy_log_densities_agree():
 def test_ball_bearing_mode_with_flat_priors_is_the_published_mle():
     st = group_stats(BEARINGS, [])
     shape, scale = reported_mode(st, FLAT)
-    # Lieblein & Zelen (1956); MLE as in Lawless (2003): shape 2.102, scale 81.88 (CHECKS.md)
+    # Lieblein & Zelen (1956); MLE as in Lawless (2003): shape 2.102, scale 81.88
+    # (docs/references.md)
     assert abs(shape - 2.102) < 5e-4 and abs(scale - 81.88) < 5e-3
     # scipy.stats.weibull_min.fit (reference library), to its optimiser's precision
     c, _, sc = stats.weibull_min.fit(BEARINGS, floc=0)
@@ -195,7 +201,7 @@ def test_default_scale_prior_gives_the_gamma_conditional_posterior():
 
 def test_zero_failure_closed_form_for_known_shape():
     # with the shape fixed and no failures, P(R(T) >= r) = 1 - r^(sum (t_i/T)^beta): the
-    # Weibull extended zero-failure test n = ln(1-C)/(L^beta ln R) (CHECKS.md, Kececioglu)
+    # Weibull extended zero-failure test n = ln(1-C)/(L^beta ln R) (docs/references.md, Kececioglu)
     st = group_stats([], np.full(22, 5000.0))
     beta, r, mission = 1.0, 0.90, 5000.0
     b = math.log(beta)
@@ -209,7 +215,7 @@ def test_zero_failure_closed_form_for_known_shape():
     num = integrate.quad(dens, -40, u_edge, limit=200)[0]
     den = num + integrate.quad(dens, u_edge, 10, limit=200)[0]
     assert num / den == pytest.approx(1 - r**22, rel=1e-7)
-    # 22 units at R=0.90: confidence just above 0.90, the success-run value (CHECKS.md)
+    # 22 units at R=0.90: confidence just above 0.90, the success-run value (docs/references.md)
     assert 1 - r**22 >= 0.90 > 1 - r**21
 
 

@@ -1,7 +1,7 @@
 """NUTS answers of the life model against exact references, and the life command.
 
 References: the posterior computed by quadrature on a grid (exact up to the grid), the
-Lieblein-Zelen ball-bearing MLE (CHECKS.md), and the closed-form zero-failure probability
+Lieblein-Zelen ball-bearing MLE (docs/references.md), and the closed-form zero-failure probability
 for a known shape distribution. Tolerances come from Monte Carlo error with ArviZ's ESS:
 |mean_nuts - mean_exact| <= 4 sd / sqrt(ESS_mean); for a quantile q, the share of draws below
 the exact quantile within 4 sqrt(q (1 - q) / ESS_q) of q.
@@ -99,7 +99,7 @@ def test_ball_bearings_flat_priors_nuts_matches_quadrature_and_mle():
     draws = fit_draws(st, FLAT, mission=50.0)
     exact, w = quadrature(st, FLAT, 50.0)
     compare_with_quadrature(draws, exact, w)
-    # Lieblein & Zelen (1956) MLE shape 2.102, scale 81.88 (CHECKS.md): the mode on
+    # Lieblein & Zelen (1956) MLE shape 2.102, scale 81.88 (docs/references.md): the mode on
     # (log shape, log scale) of the flat-prior posterior is the MLE
     shape, scale = reported_mode(st, FLAT)
     assert abs(shape - 2.102) < 5e-4 and abs(scale - 81.88) < 5e-3
@@ -148,7 +148,7 @@ def test_zero_failures_with_shape_prior_probability_rises_with_test_time(tmp_pat
     assert all(g["diagnostics"]["passed"] for g in res.groups)
     assert all(np.diff(probs) > 0), probs
     # exact: all units of a group ran L x mission, so the shape's posterior is its prior and
-    # P = E[1 - R^(n L^beta)], the Bayesian form of n = ln(1-C)/(L^beta ln R) (CHECKS.md)
+    # P = E[1 - R^(n L^beta)], the Bayesian form of n = ln(1-C)/(L^beta ln R) (docs/references.md)
     m, sd = prior.shape
     nodes, weights = np.polynomial.hermite_e.hermegauss(80)
     beta = np.exp(m + sd * nodes)

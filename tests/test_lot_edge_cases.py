@@ -38,7 +38,7 @@ def _table(rows, part=None) -> LotTable:
 @pytest.mark.parametrize("n", [10**6, 10**9, 10**12, 2**52])
 def test_zero_defects_in_huge_samples_closed_form(n):
     # Uniform prior, x = 0: p | data ~ Beta(1, n + 1), so P(p <= u) = 1 - (1 - u)^(n + 1):
-    # upper bound 1 - (1 - C)^(1/(n+1)), mean 1/(n + 2) (conjugacy; CHECKS.md). The
+    # upper bound 1 - (1 - C)^(1/(n+1)), mean 1/(n + 2) (conjugacy; docs/references.md). The
     # expm1/log1p forms keep full precision where 1 - u rounds to 1.
     c, spec = 0.95, 1e-6
     res = assess_lots(_table([("A", n, 0, None)]), spec, c, UNIFORM).lots.iloc[0]

@@ -41,7 +41,7 @@ def test_posterior_and_summaries_match_scipy_beta(a, b, x, n):
 @pytest.mark.parametrize("n,expected", [(30, 0.0950), (100, 0.0295), (300, 0.00994)])
 def test_zero_defect_upper_bounds_clopper_pearson_and_rule_of_three(n, expected):
     # Exact Clopper-Pearson 95% upper bound after 0 defectives in n is beta.ppf(0.95, 1, n)
-    # (CHECKS.md; Hanley & Lippman-Hand 1983, JAMA 249:1743 for the rule of three, 3/n).
+    # (docs/references.md; Hanley & Lippman-Hand 1983, JAMA 249:1743 for the rule of three, 3/n).
     # It is the posterior bound of Beta(x + 1, n - x), i.e. a_post = 1, b_post = n.
     cp = conj.summarise(1.0, float(n), 0.5, 0.95)["upper_bound"]
     assert cp == pytest.approx(expected, abs=5e-5 if n < 300 else 5e-6)

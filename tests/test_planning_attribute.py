@@ -1,4 +1,4 @@
-"""Attribute (pass/fail) demonstration plans against CHECKS.md, exact identities and
+"""Attribute (pass/fail) demonstration plans against docs/references.md, exact identities and
 reference integrals."""
 
 import math
@@ -11,7 +11,7 @@ from qualbayes.planning import attribute
 from qualbayes.planning.priors import RatePrior
 
 # Success-run theorem n = ceil(ln(1-C)/ln R): common practice (reliability handbooks, e.g.
-# Kececioglu, Reliability and Life Testing Handbook); values as listed in CHECKS.md.
+# Kececioglu, Reliability and Life Testing Handbook); values as listed in docs/references.md.
 SUCCESS_RUN = [(0.90, 0.90, 22), (0.95, 0.90, 45), (0.90, 0.95, 29), (0.95, 0.95, 59),
                (0.99, 0.90, 230), (0.99, 0.95, 299)]
 

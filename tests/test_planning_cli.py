@@ -34,7 +34,7 @@ def _rows(record, name="Plans"):
 def test_attribute_json_gives_the_success_run_table(capsys):
     rec = _json(ATTRIBUTE, capsys)
     assert rec["kind"] == "plan" and rec["plan"] == "attribute"
-    # success-run and binomial sizes (CHECKS.md for c = 0; binomial definition otherwise)
+    # success-run and binomial sizes (docs/references.md for c = 0; binomial definition otherwise)
     assert [r["units n"] for r in _rows(rec)] == [22, 38, 52]
     assert rec["caution"] == CAUTION
     assert any("independently" in a for a in rec["assumptions"])

@@ -1,4 +1,5 @@
-"""The Bayesian Weibull-extended plan (qualbayes.planning.life_bayes): its posterior against
+"""The Bayesian plan with the test time scaled by a Weibull shape (planning.life_bayes): its
+posterior against
 direct numerical integration by scipy.integrate, the conjugate closed forms it must reduce to,
 the attribute plan it must agree with at L = 1, monotonicity in the test time, and the plan
 record and assurance built on it."""
@@ -93,7 +94,8 @@ def test_probability_rises_with_the_test_time(shape):
 
 
 def test_bayesian_units_at_unit_ratio_agree_with_the_attribute_plan():
-    """Known shape: the attribute Bayesian plan's n (CHECKS.md-checked module) needs L <= 1,
+    """Known shape: the attribute Bayesian plan's n (checked module, docs/references.md)
+    needs L <= 1,
     and one unit fewer needs L > 1."""
     prior = RatePrior.beta(1.0, 9.0)
     for c in (0, 1, 2):

@@ -8,7 +8,7 @@ from qualbayes.planning import mtbf
 from qualbayes.planning.mtbf import GammaPrior
 
 # T/MTBF = chi2(C; 2r+2)/2: NIST/SEMATECH e-Handbook of Statistical Methods, section 8.3.1.2
-# (test length guide table); MIL-HDBK-781A. Values as listed in CHECKS.md (3 decimals).
+# (test length guide table); MIL-HDBK-781A. Values as listed in docs/references.md (3 decimals).
 FACTORS = [(0, 0.80, 1.609), (0, 0.90, 2.303), (0, 0.95, 2.996), (1, 0.80, 2.994),
            (1, 0.90, 3.890), (2, 0.80, 4.279), (2, 0.90, 5.322)]
 

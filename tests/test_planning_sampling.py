@@ -16,7 +16,7 @@ CASES = [(0.01, 0.05, 0.05, 0.10), (0.005, 0.05, 0.03, 0.10), (0.02, 0.10, 0.08,
 
 
 def test_pa_for_n125_c3_at_one_percent():
-    # binomial OC, scipy.stats.binom.cdf(3, 125, 0.01) = 0.9626 (CHECKS.md; plan form as in
+    # binomial OC, scipy.stats.binom.cdf(3, 125, 0.01) = 0.9626 (docs/references.md; plan form as in
     # ISO 2859-1 single sampling)
     assert sampling.acceptance_probability(125, 3, 0.01) == pytest.approx(0.9626, abs=5e-5)
     assert sampling.acceptance_probability(125, 3, 0.01) == pytest.approx(

@@ -1,6 +1,5 @@
-"""Binomial test plans with the test time scaled by an assumed Weibull shape: reduction to
-the success run, closed forms, monotone trade-off, and the shape-range integral against
-simulation."""
+"""Test plans with the test time scaled by an assumed Weibull shape: reduction to the success run, closed
+forms, monotone trade-off, and the shape-range integral against simulation."""
 
 import math
 
@@ -18,7 +17,8 @@ from qualbayes.planning.weibull import ShapePrior
 @pytest.mark.parametrize("shape", [0.7, 1.0, 2.0, 3.5])
 def test_unit_test_time_ratio_gives_back_the_success_run(r, c, n, shape):
     # L = 1: n = ln(1-C)/(L^beta ln R) is the success-run size whatever the shape
-    # (test time scaled by the Weibull shape, common practice; Kececioglu); values from CHECKS.md
+    # (test time scaled by the Weibull shape, common practice; Kececioglu); values from
+    # docs/references.md
     assert weibull.units_needed(r, c, 1.0, shape, 0) == n
     # n units need L <= 1, n - 1 units need L > 1
     assert weibull.time_ratio(r, c, n, shape, 0) <= 1.0
@@ -34,8 +34,7 @@ def test_unit_ratio_with_failures_gives_the_binomial_plan(c):
 
 @pytest.mark.parametrize("ratio, shape", [(2.0, 2.0), (1.5, 3.0), (3.0, 1.2), (0.5, 2.0)])
 def test_zero_failure_extended_closed_form(ratio, shape):
-    # n = ceil(ln(1 - C) / (L^beta ln R)) (test time scaled by the Weibull shape, common
-    # practice; Kececioglu)
+    # n = ceil(ln(1 - C) / (L^beta ln R)) (time-scaled binomial, common practice; Kececioglu)
     r, conf = 0.9, 0.9
     n = math.ceil(math.log(1 - conf) / (ratio**shape * math.log(r)) - 1e-9)
     assert weibull.units_needed(r, conf, ratio, shape, 0) == n

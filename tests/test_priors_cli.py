@@ -152,7 +152,7 @@ def test_plan_attribute_classical_sensitivity_uses_the_classical_rule_first(caps
     rec = _json([*ATTRIBUTE, "--sensitivity"], capsys)
     first = rec["sensitivity"]["priors"][0]
     assert first["family"] == "classical"
-    assert [i["units"] for i in rec["sensitivity"]["items"]] == [22, 38]  # CHECKS.md c=0
+    assert [i["units"] for i in rec["sensitivity"]["items"]] == [22, 38]  # docs/references.md c=0
 
 
 def test_plan_mtbf_with_statements_and_earlier_test(capsys):

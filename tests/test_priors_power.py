@@ -2,7 +2,7 @@
 L(earlier data)^w x initial prior): closed forms against the definition, weight 0 equals
 the analysis without the earlier data, weight 1 equals pooling the two data sets (exact for
 the beta-binomial; for the Weibull the pooled maximum likelihood fit of scipy.stats and the
-Lieblein-Zelen ball-bearing MLE of CHECKS.md, and NUTS against a direct fit of the pooled
+Lieblein-Zelen ball-bearing MLE of docs/references.md, and NUTS against a direct fit of the pooled
 data within Monte Carlo error)."""
 
 from __future__ import annotations
@@ -26,7 +26,7 @@ from qualbayes.models.weibull import (
     log_prior,
     reported_mode,
 )
-from qualbayes.priors.power import (
+from qualbayes.priors.power_prior import (
     EarlierCounts,
     EarlierExposure,
     beta_power,
@@ -38,7 +38,7 @@ from qualbayes.priors.power import (
 
 BEARINGS = np.array([17.88, 28.92, 33.00, 41.52, 42.12, 45.60, 48.48, 51.84, 51.96, 54.12,
                      55.56, 67.80, 68.64, 68.64, 68.88, 84.12, 93.12, 98.64, 105.12, 105.84,
-                     127.92, 128.04, 173.40])  # Lieblein & Zelen (1956), CHECKS.md
+                     127.92, 128.04, 173.40])  # Lieblein & Zelen (1956), docs/references.md
 
 
 # --------------------------------------------------------------------------- binomial
@@ -80,7 +80,7 @@ def test_weight_one_equals_pooling_the_two_data_sets_exactly(tmp_path):
                 ["E-2", "KV", "Acme", "2025-01-02", 900, 315, 0],
                 ["E-3", "KV", "Acme", "2025-01-03", 900, 500, 3]]
     path = write_csv(tmp_path / "earlier.csv", LOT_HEADER, old_rows)
-    from qualbayes.priors.power import counts_from_lots
+    from qualbayes.priors.power_prior import counts_from_lots
 
     earlier = counts_from_lots(path)
     assert (earlier.failures, earlier.units, earlier.lots) == (4, 1130, 3)
@@ -115,7 +115,7 @@ def test_weights_and_counts_are_parsed_and_checked():
 
 @pytest.mark.parametrize("w", [0.0, 0.5, 1.0])
 def test_gamma_power_prior_is_the_normalised_definition(w):
-    a0, b0, r0, t0 = 2.0, 1400.0, 2, 1909.0  # NIST e-Handbook 8.4.6 prior and test (CHECKS.md)
+    a0, b0, r0, t0 = 2.0, 1400.0, 2, 1909.0  # NIST 8.4.6 (docs/references.md)
     a, b = gamma_power(a0, b0, EarlierExposure(r0, t0, "test"), w)
 
     def unnormalised(lam):
@@ -177,7 +177,7 @@ def test_weibull_weight_zero_leaves_the_posterior_unchanged():
 
 def test_weibull_weight_one_mode_is_the_pooled_mle_scipy_and_lieblein_zelen():
     # split the ball bearings: 10 "now", 13 "earlier"; with flat priors and w = 1 the mode on
-    # (log shape, log scale) is the MLE of all 23 (CHECKS.md: shape 2.102, scale 81.88;
+    # (log shape, log scale) is the MLE of all 23 (docs/references.md: shape 2.102, scale 81.88;
     # scipy.stats.weibull_min.fit agrees)
     now, old = BEARINGS[::2][:10], np.setdiff1d(BEARINGS, BEARINGS[::2][:10])
     old = np.concatenate([old, [68.64]])  # 68.64 occurs twice in the data

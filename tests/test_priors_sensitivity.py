@@ -1,7 +1,7 @@
 """The sensitivity table: under each prior of the set, the probability and decision equal
 a separate run of the question with that prior (lots, attribute and MTBF plans exactly;
 the Weibull life question within Monte Carlo error), plus the wording, merging of equal
-priors, the gate on every MCMC run, and external check values (CHECKS.md: chi-square test
+priors, the gate on every MCMC run, and external check values (docs/references.md: chi-square test
 times, the NIST gamma-prior example, the success-run size)."""
 
 from __future__ import annotations
@@ -18,8 +18,8 @@ from qualbayes.commands.prior_options import beta_setup
 from qualbayes.data.lots import read_lots
 from qualbayes.models.priors import BetaPrior
 from qualbayes.priors.elicit import elicit
-from qualbayes.priors.power import EarlierCounts, EarlierExposure
-from qualbayes.priors.sensitivity import (
+from qualbayes.priors.power_prior import EarlierCounts, EarlierExposure
+from qualbayes.priors.prior_set import (
     DEMONSTRATED,
     NOT_DEMONSTRATED,
     PriorRow,
@@ -107,7 +107,7 @@ def test_attribute_rows_equal_separate_plans_and_closed_forms():
     stated = elicit(parse_statements(["R>0.85@95%", "R=0.95"], ("R",)))
     classical = PriorRow("as-run", "as run (classical)", "classical", {}, "none", "", "classical")
     rows = beta_rows(classical, stated, (1.0, 1.0, "uniform"), EarlierCounts(1, 40, "test"))
-    plans = [(0, 22), (1, 38)]  # the classical plans for R = 0.9, C = 0.9 (CHECKS.md: 22)
+    plans = [(0, 22), (1, 38)]  # the classical plans for R = 0.9, C = 0.9 (docs/references.md: 22)
     sec = attribute_sensitivity(0.9, 0.9, plans, rows)
     c0 = sec["items"][0]["results"]
     assert c0[0] == {"prior": "as-run", "prob": None, "decision": DEMONSTRATED, "units": 22}
@@ -134,14 +134,14 @@ def test_mtbf_flat_and_jeffreys_rows_against_chi_square_and_nist():
     plans = [(r, 600.0 * special.gammaincinv(2 + r, conf) - 1400.0) for r in (0, 1, 2)]
     sec = mtbf_sensitivity(goal, conf, plans, rows)
     by = {row.key: k for k, row in enumerate(rows)}
-    # NIST/SEMATECH 8.4.6 (CHECKS.md): Gamma(2, 1400 h), r = 2, 80% -> T = 1909 h
+    # NIST/SEMATECH 8.4.6 (docs/references.md): Gamma(2, 1400 h), r = 2, 80% -> T = 1909 h
     assert sec["items"][2]["time"] == pytest.approx(1909, abs=0.5)
     assert sec["items"][2]["results"][0]["decision"] == DEMONSTRATED
     for item, r in zip(sec["items"], (0, 1, 2), strict=True):
         flat = item["results"][by["uniform"]]["time"]
         jeff = item["results"][by["jeffreys"]]["time"]
         # flat Gamma(1, 0) gives the classical chi-square time M chi2(C; 2r+2)/2
-        # (CHECKS.md: 1.609, 2.994, 4.279 x M at 80%); Jeffreys M chi2(C; 2r+1)/2
+        # (docs/references.md: 1.609, 2.994, 4.279 x M at 80%); Jeffreys M chi2(C; 2r+1)/2
         assert flat == pytest.approx(goal * stats.chi2.ppf(conf, 2 * r + 2) / 2, rel=1e-10)
         assert jeff == pytest.approx(goal * stats.chi2.ppf(conf, 2 * r + 1) / 2, rel=1e-10)
     assert sec["items"][0]["results"][by["uniform"]]["time"] / goal == pytest.approx(1.609,
@@ -204,7 +204,7 @@ def test_the_shared_model_density_equals_the_life_models_posterior():
         numpy_prior,
         structure_of,
     )
-    from qualbayes.priors.power import EarlierLife
+    from qualbayes.priors.power_prior import EarlierLife
 
     st = group_stats([310.0, 520.0, 640.0], [400.0, 1000.0, 1200.0], [200.0], [500.0], [250.0])
     old = group_stats([450.0, 700.0], [900.0, 1300.0])
@@ -313,7 +313,7 @@ def _accepted_within_reference(n, c, a, b, s):
 def test_sampling_rows_equal_separate_runs_and_scipy():
     from qualbayes.planning.plans import plan_sampling
     from qualbayes.planning.priors import RatePrior
-    from qualbayes.priors.sensitivity import sampling_sensitivity
+    from qualbayes.priors.prior_set import sampling_sensitivity
 
     stated = elicit(parse_statements(["p<1%@90%"], ("p",)))
     classical = PriorRow("as-run", "as run (plan alone)", "classical", {}, "none", "",
@@ -345,7 +345,7 @@ def test_sampling_rows_equal_separate_runs_and_scipy():
 def test_sampling_zero_acceptance_number_closed_form():
     """c = 0 and a uniform prior: accepted means x = 0, so p | accepted ~ Beta(1, n + 1) and
     P(p <= s | accepted) = 1 - (1 - s)^(n + 1) (conjugate closed form)."""
-    from qualbayes.priors.sensitivity import sampling_sensitivity
+    from qualbayes.priors.prior_set import sampling_sensitivity
 
     rows = beta_rows(None)
     sec = sampling_sensitivity(77, 0, None, 0.03, 0.9, rows)
@@ -363,7 +363,7 @@ def test_sampling_zero_acceptance_number_closed_form():
 def test_sampling_history_mixture_row_is_the_mixture():
     from qualbayes.planning import sampling
     from qualbayes.planning.priors import RatePrior
-    from qualbayes.priors.sensitivity import sampling_sensitivity
+    from qualbayes.priors.prior_set import sampling_sensitivity
 
     mix = RatePrior.mixture(np.array([1.0, 3.0]), np.array([200.0, 150.0]), "history")
     first = PriorRow("as-run", "as run (history)", "history", {}, "history", "", "history")
@@ -384,7 +384,7 @@ def test_life_plan_rows_equal_separate_plans_and_closed_forms():
     from qualbayes.planning import weibull
     from qualbayes.planning.plans import plan_life
     from qualbayes.planning.priors import RatePrior
-    from qualbayes.priors.sensitivity import life_plan_sensitivity
+    from qualbayes.priors.prior_set import life_plan_sensitivity
 
     stated = elicit(parse_statements(["R>0.85@95%", "R=0.95"], ("R",)))
     classical = PriorRow("as-run", "as run (classical)", "classical", {}, "none", "", "classical")

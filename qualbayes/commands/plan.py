@@ -10,16 +10,18 @@ All answers are closed forms or exact sums (scipy); only ``--history`` runs the 
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
-from qualbayes.commands.common import (
-    HelpFormatter,
-    add_analyst_option,
-    check_report,
-    write_report,
+from qualbayes.commands.common import check_report, write_report
+from qualbayes.commands.plan_text import (  # noqa: F401 - importable from here as before
+    optional_probability,
+    parse_failures,
+    parse_gamma,
+    parse_number,
+    parse_pair,
+    parse_reliability_prior,
+    parse_whole,
 )
-from qualbayes.commands.prior_options import add_prior_options
 from qualbayes.errors import OptionError
 
 RECORD = "plan_{kind}.json"
@@ -27,236 +29,11 @@ WORKBOOK = "plan_{kind}.xlsx"
 FIGURE = "plan_{kind}_{curve}.png"
 
 
+
 def register(sub) -> None:
-    p = sub.add_parser(
-        "plan", help="size a demonstration test or a sampling plan",
-        description="Demonstration test planning (attribute, Weibull life, constant rate) "
-                    "and single sampling plans, classical and Bayesian, with assurance.")
-    kinds = p.add_subparsers(dest="plan_kind", metavar="QUESTION", required=True)
-    fmt = HelpFormatter
+    from qualbayes.commands.plan_options import add_plan_parsers  # noqa: PLC0415
 
-    a = kinds.add_parser(
-        "attribute", formatter_class=fmt,
-        help="how many units must pass, allowing c failures, to show R at confidence C?",
-        description="Pass/fail demonstration: success-run and c-failure binomial plans, or "
-                    "Bayesian plans with a Beta prior on R (given, or learned from a lot "
-                    "history); assurance under a design prior.")
-    _goal_options(a)
-    _failures_option(a)
-    a.add_argument("--reliability-prior", metavar="PRIOR",
-                   help="analysis prior on R: beta:A,B (R ~ Beta(A, B)), uniform, jeffreys, "
-                        "history, or none for the classical plan (default: history when "
-                        "--history is given, else none)")
-    _history_options(a)
-    a.add_argument("--design-prior", metavar="PRIOR",
-                   help="design prior on R for the assurance: beta:A,B, history, or same "
-                        "(the analysis prior; the default when there is one)")
-    _assurance_option(a)
-    a.add_argument("--max-units", default="100000",
-                   help="largest test the assurance search considers")
-    add_prior_options(a, "R", "attribute")
-    _output_options(a)
-    a.set_defaults(func=run)
-
-    life = kinds.add_parser(
-        "life", formatter_class=fmt,
-        help="with n units and a Weibull shape, how long must each unit be tested?",
-        description="Binomial test with the test time scaled by an assumed Weibull shape: "
-                    "test time per unit for the "
-                    "units available, allowing c failures, with a known shape or a shape "
-                    "range; the trade-off of units against test time.")
-    _goal_options(life)
-    life.add_argument("--mission", required=True,
-                      help="mission time t at which R(t) is to be shown (any time unit)")
-    shape = life.add_mutually_exclusive_group(required=True)
-    shape.add_argument("--shape", help="known Weibull shape beta")
-    shape.add_argument("--shape-range", metavar="LO,HI",
-                       help="plausible shape range, taken as the central 95%% of a "
-                            "lognormal prior on the shape and integrated over")
-    life.add_argument("--units", required=True, metavar="N[,N2,...]",
-                      help="units available for test; several give the trade-off rows")
-    _failures_option(life)
-    life.add_argument("--reliability-prior", metavar="PRIOR",
-                      help="analysis prior on R(mission): beta:A,B (R ~ Beta(A, B)), uniform, "
-                           "jeffreys, or none for the classical plan (default: none)")
-    life.add_argument("--design-prior", metavar="beta:A,B",
-                      help="design prior on R(mission) for the assurance (default: the "
-                           "analysis prior, if any)")
-    _assurance_option(life)
-    add_prior_options(life, "R", "life-plan")
-    _output_options(life)
-    life.set_defaults(func=run)
-
-    m = kinds.add_parser(
-        "mtbf", formatter_class=fmt,
-        help="how much total test time, allowing r failures, shows an MTBF goal?",
-        description="Constant failure rate test, time-terminated: chi-square test time, or "
-                    "Bayesian test time with a gamma prior on the failure rate.")
-    m.add_argument("--mtbf", required=True, help="MTBF goal M (hours or any time unit)")
-    m.add_argument("--confidence", required=True, help="confidence C, e.g. 0.8 or 80%%")
-    _failures_option(m)
-    m.add_argument("--rate-prior", metavar="gamma:A,B",
-                   help="analysis prior on the failure rate: Gamma(shape A, rate B), B in the "
-                        "MTBF's time unit (as if A failures had been seen in B hours)")
-    m.add_argument("--design-prior", metavar="PRIOR",
-                   help="design prior on the failure rate for the assurance: gamma:A,B or "
-                        "same (the analysis prior; the default when there is one)")
-    _assurance_option(m)
-    add_prior_options(m, "rate", "mtbf")
-    _output_options(m)
-    m.set_defaults(func=run)
-
-    s = kinds.add_parser(
-        "sampling", formatter_class=fmt,
-        help="which single sampling plan (n, c) protects both the producer and the consumer?",
-        description="Smallest single sampling plan by attributes meeting the producer's risk "
-                    "at the AQL and the consumer's risk at the LTPD (binomial, or "
-                    "hypergeometric for a lot size); OC curve; with a prior on lot quality, "
-                    "how good accepted lots are.")
-    s.add_argument("--aql", required=True, help="acceptable quality level: 0.01, 1%% or ppm")
-    s.add_argument("--alpha", default="0.05", help="producer's risk at the AQL")
-    s.add_argument("--ltpd", required=True, help="lot tolerance percent defective (LTPD)")
-    s.add_argument("--beta", default="0.10", help="consumer's risk at the LTPD")
-    s.add_argument("--lot-size", help="lot size N: exact hypergeometric plan")
-    s.add_argument("--lot-quality-prior", metavar="PRIOR",
-                   help="prior on the defect rate of lots offered: beta:A,B (p ~ Beta(A, B)), "
-                        "uniform, jeffreys or history (default: history when --history is "
-                        "given)")
-    s.add_argument("--spec", help="defect-rate limit for 'accepted lot within spec' "
-                                  "(shown with the AQL and LTPD; default limit: the LTPD)")
-    s.add_argument("--confidence", metavar="C",
-                   help="with a lot-quality prior: the plan protects the consumer when an "
-                        "accepted lot is within --spec (else the LTPD) with probability >= C "
-                        "(default: 1 - beta)")
-    _history_options(s)
-    add_prior_options(s, "p", "lots")
-    _output_options(s)
-    s.set_defaults(func=run)
-
-
-def _goal_options(p) -> None:
-    p.add_argument("--reliability", required=True, help="reliability goal R*, e.g. 0.9")
-    p.add_argument("--confidence", required=True, help="confidence C, e.g. 0.9 or 90%%")
-
-
-def _failures_option(p) -> None:
-    p.add_argument("--failures", default="0", metavar="K|A..B|A,B,...",
-                   help="allowed failures: K gives the table for 0..K")
-
-
-def _assurance_option(p) -> None:
-    p.add_argument("--assurance", metavar="P",
-                   help="wanted assurance (probability the test passes under the design "
-                        "prior): find the smallest plan reaching it")
-
-
-def _history_options(p) -> None:
-    p.add_argument("--history", metavar="FILE",
-                   help="lot history (xlsx/csv, as for 'qualbayes lots') to learn a prior "
-                        "from (hierarchical model, NUTS, convergence-gated)")
-    p.add_argument("--part", help="part number in the history file (needed if it has several)")
-    p.add_argument("--sheet", help="xlsx sheet of the history file")
-    p.add_argument("--columns", metavar="KEY=HEADER,...",
-                   help="name history columns whose headers are not recognised")
-
-
-def _output_options(p) -> None:
-    p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
-    p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
-    p.add_argument("--out", metavar="DIR",
-                   help="write the run record (JSON), workbook and curve PNGs into DIR")
-    p.add_argument("--report", metavar="DIR",
-                   help="write the audit report (HTML, PDF, workbook, run record, figures) "
-                        "into the new folder DIR")
-    p.add_argument("--force", action="store_true",
-                   help="allow replacing files of an earlier run in --out or --report")
-    add_analyst_option(p)
-
-
-# --------------------------------------------------------------------------- option parsing
-
-_NUM = r"[0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?"
-
-
-def parse_number(text: str, option: str) -> float:
-    t = str(text).strip()
-    if not re.fullmatch(_NUM, t):
-        raise OptionError(f"{option} {text!r}: expected a positive number such as 600")
-    value = float(t)
-    if not value > 0 or value == float("inf"):
-        raise OptionError(f"{option} {text!r}: must be greater than 0")
-    return value
-
-
-def parse_whole(text: str, option: str, least: int = 0) -> int:
-    t = str(text).strip()
-    if not re.fullmatch(r"-?[0-9]+", t):
-        raise OptionError(f"{option} {text!r}: expected a whole number")
-    value = int(t)
-    if value < least:
-        raise OptionError(f"{option} {text!r}: " + ("a count cannot be negative" if least == 0
-                                                    else f"must be at least {least}"))
-    return value
-
-
-def parse_failures(text: str) -> list[int]:
-    """``K`` -> 0..K, ``A..B`` -> A..B, ``A,B,C`` -> that list."""
-    t = str(text).strip()
-    if ".." in t:
-        lo, _, hi = t.partition("..")
-        a, b = parse_whole(lo, "--failures"), parse_whole(hi, "--failures")
-        if b < a:
-            raise OptionError(f"--failures {text!r}: the range must run upwards, e.g. 0..3")
-        return list(range(a, b + 1))
-    if "," in t:
-        return sorted({parse_whole(v, "--failures") for v in t.split(",")})
-    return list(range(parse_whole(t, "--failures") + 1))
-
-
-def parse_pair(text: str, option: str, prefix: str) -> tuple[float, float]:
-    t = str(text).strip().lower()
-    if t.startswith(prefix + ":"):
-        t = t[len(prefix) + 1:]
-    parts = t.split(",")
-    if len(parts) != 2:
-        raise OptionError(f"{option} {text!r}: write {prefix}:A,B with two positive numbers")
-    a, b = (parse_number(v, option) for v in parts)
-    if a > 1e9 or b > 1e12:
-        raise OptionError(f"{option} {text!r}: A and B are implausibly large")
-    return a, b
-
-
-def parse_reliability_prior(text: str, option: str, on_reliability: bool = True):
-    """A Beta prior as typed: on R (attribute, life) or on the defect rate (sampling).
-    Returns a RatePrior, or the strings 'history' / 'none' / 'same'."""
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
-
-    t = str(text).strip().lower()
-    if t in ("history", "none", "same"):
-        return t
-    make = RatePrior.on_reliability if on_reliability else RatePrior.beta
-    what = "R" if on_reliability else "p"
-    if t == "uniform":
-        return make(1.0, 1.0, f"uniform: {what} ~ Beta(1, 1)")
-    if t == "jeffreys":
-        return make(0.5, 0.5, f"jeffreys: {what} ~ Beta(0.5, 0.5)")
-    a, b = parse_pair(text, option, "beta")
-    return make(a, b)
-
-
-def parse_gamma(text: str, option: str):
-    from qualbayes.planning.mtbf import GammaPrior  # noqa: PLC0415
-
-    if str(text).strip().lower() == "same":
-        return "same"
-    a, b = parse_pair(text, option, "gamma")
-    return GammaPrior(a, b)
-
-
-def _probability(text, option):
-    from qualbayes.questions import parse_probability  # noqa: PLC0415
-
-    return None if text is None else parse_probability(text, option)
+    add_plan_parsers(sub, run)
 
 
 # --------------------------------------------------------------------------- running
@@ -306,10 +83,10 @@ def _history_use(args, prior_text, option, on_reliability=True):
 def _attribute(args) -> dict:
     from qualbayes.planning.plans import plan_attribute  # noqa: PLC0415
 
-    r = _probability(args.reliability, "--reliability")
-    c = _probability(args.confidence, "--confidence")
+    r = optional_probability(args.reliability, "--reliability")
+    c = optional_probability(args.confidence, "--confidence")
     failures = parse_failures(args.failures)
-    target = _probability(args.assurance, "--assurance")
+    target = optional_probability(args.assurance, "--assurance")
     max_units = parse_whole(args.max_units, "--max-units", least=1)
     analysis = _history_use(args, args.reliability_prior, "--reliability-prior")
     from qualbayes.commands.prior_options import attribute_prior  # noqa: PLC0415
@@ -342,8 +119,8 @@ def _life(args) -> dict:
     from qualbayes.planning.plans import plan_life  # noqa: PLC0415
     from qualbayes.planning.weibull import ShapePrior  # noqa: PLC0415
 
-    r = _probability(args.reliability, "--reliability")
-    c = _probability(args.confidence, "--confidence")
+    r = optional_probability(args.reliability, "--reliability")
+    c = optional_probability(args.confidence, "--confidence")
     mission = parse_number(args.mission, "--mission")
     if args.shape is not None:
         shape = parse_number(args.shape, "--shape")
@@ -360,7 +137,7 @@ def _life(args) -> dict:
     if units[0] <= max(failures):
         raise OptionError(f"--units {units[0]}: need more units on test than allowed "
                           f"failures ({max(failures)})")
-    target = _probability(args.assurance, "--assurance")
+    target = optional_probability(args.assurance, "--assurance")
     analysis = None
     if args.reliability_prior is not None:
         analysis = parse_reliability_prior(args.reliability_prior, "--reliability-prior")
@@ -392,9 +169,9 @@ def _mtbf(args) -> dict:
     from qualbayes.planning.plans import plan_mtbf  # noqa: PLC0415
 
     goal = parse_number(args.mtbf, "--mtbf")
-    c = _probability(args.confidence, "--confidence")
+    c = optional_probability(args.confidence, "--confidence")
     failures = parse_failures(args.failures)
-    target = _probability(args.assurance, "--assurance")
+    target = optional_probability(args.assurance, "--assurance")
     analysis = None if args.rate_prior is None else parse_gamma(args.rate_prior,
                                                                 "--rate-prior")
     if analysis == "same":
@@ -425,11 +202,11 @@ def _sampling(args) -> dict:
 
     aql = parse_rate(args.aql, "--aql")
     ltpd = parse_rate(args.ltpd, "--ltpd")
-    alpha = _probability(args.alpha, "--alpha")
-    beta = _probability(args.beta, "--beta")
+    alpha = optional_probability(args.alpha, "--alpha")
+    beta = optional_probability(args.beta, "--beta")
     lot = None if args.lot_size is None else parse_whole(args.lot_size, "--lot-size", least=2)
     spec = None if args.spec is None else parse_rate(args.spec, "--spec")
-    sampling._check(aql, alpha, ltpd, beta, lot)  # AQL < LTPD, lot size usable
+    sampling.check_inputs(aql, alpha, ltpd, beta, lot)  # AQL < LTPD, lot size usable
     if args.lot_quality_prior is None:
         prior = "history" if args.history else None
     else:
@@ -442,7 +219,7 @@ def _sampling(args) -> dict:
         raise OptionError("--lot-quality-prior history: give the lot history with --history")
     if args.history and prior != "history":
         raise OptionError("--history is given but --lot-quality-prior does not use it")
-    level = _probability(args.confidence, "--confidence")
+    level = optional_probability(args.confidence, "--confidence")
     from qualbayes.commands.prior_options import sampling_prior  # noqa: PLC0415
 
     setup = sampling_prior(args, prior)  # --believe / --earlier

@@ -23,9 +23,12 @@ from __future__ import annotations
 
 from functools import partial
 
+import jax.numpy as jnp  # noqa: E402
 import numpy as np
+import numpyro  # noqa: E402
+import numpyro.distributions as dist  # noqa: E402
 
-from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference import Fit, SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
     SHAPE_CAP_SD,
     TAYLOR_ORDER,
@@ -36,12 +39,6 @@ from qualbayes.models.weibull import (
     log_likelihood,
     log_prior,
 )
-
-setup_jax()
-
-import jax.numpy as jnp  # noqa: E402
-import numpyro  # noqa: E402
-import numpyro.distributions as dist  # noqa: E402
 
 
 def whitened_sites(log_tref, center, chol):
@@ -130,18 +127,26 @@ def pad_groups(stats: list[GroupStats], modes: list[Mode] | None = None) -> tupl
     return data, np.array([st.log_tref for st in stats])
 
 
+#: the gate judges the model's parameters, one dimension ``group``; never R(mission), a
+#: derived quantity that saturates at 0 or 1 (constant draws, no R-hat) far from the data
+GATE_VARS = ["log_shape", "log_scale"]
+
+
+def gate_dims(names: list[str]) -> dict:
+    """``run_nuts`` keywords that gate log shape and log scale of every group by coordinate."""
+    return {"gate_vars": GATE_VARS, "dims": {v: ["group"] for v in GATE_VARS},
+            "coords": {"group": list(names)}}
+
+
 def life_gate(names: list[str], mission: float):
-    """The gate's quantities for groups ``names``: log shape, log scale and R(mission) of
-    each group, labelled ``name[group]``."""
-    log_t = float(np.log(mission))
+    """The gate's quantities in the older labelled layout: log shape and log scale of each
+    group, ``name[group]`` (``mission`` is no longer used: R(mission) is not gated)."""
 
     def gate_on(draws: dict) -> dict:
         out = {}
         for j, name in enumerate(names):
-            b, log_eta = draws["log_shape"][:, :, j], draws["log_scale"][:, :, j]
-            out[f"log_shape[{name}]"] = b
-            out[f"log_scale[{name}]"] = log_eta
-            out[f"R_mission[{name}]"] = np.exp(-np.exp(np.exp(b) * (log_t - log_eta)))
+            out[f"log_shape[{name}]"] = draws["log_shape"][:, :, j]
+            out[f"log_scale[{name}]"] = draws["log_scale"][:, :, j]
         return out
 
     return gate_on
@@ -162,11 +167,13 @@ def sampler_inputs(stats: list[GroupStats], modes: list[Mode], settings: Sampler
 
 def fit_life(stats: list[GroupStats], modes: list[Mode], prior: LifePrior,
              settings: SamplerSettings, names: list[str], mission: float) -> Fit:
-    """Sample every group at once. Draws come back as (chain, draw, group) arrays of
-    ``log_shape`` and ``log_scale``; the gate checks log shape, log scale and R(mission)
-    of every group (labelled ``name[group]``)."""
-    args, init = sampler_inputs(stats, modes, settings)
-    fit = run_nuts(partial(weibull_life_model, prior=prior), args, settings,
-                   gate_on=life_gate(names, mission), init_params=init)
+    """Sample every group at once (in a float64 scope that restores the caller's jax
+    configuration). Draws come back as (chain, draw, group) arrays of ``log_shape`` and
+    ``log_scale``; the gate checks both for every group, by coordinate ``group``.
+    ``mission`` is kept for callers of earlier versions."""
+    with jax_scope():
+        args, init = sampler_inputs(stats, modes, settings)
+        fit = run_nuts(partial(weibull_life_model, prior=prior), args, settings,
+                       init_params=init, **gate_dims(names))
     fit.draws = {"log_shape": fit.draws["log_shape"], "log_scale": fit.draws["log_scale"]}
     return fit

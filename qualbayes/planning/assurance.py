@@ -14,7 +14,8 @@ Constant-rate test of total time T, design prior :math:`\lambda \sim \mathrm{Gam
 b_D)`: failures are negative binomial, :math:`A(T) = \mathrm{NB}(X \le r^*(T);\; a_D,\;
 b_D / (b_D + T))`.
 
-Weibull-extended test (n units, L mission times each): the per-unit failure probability over
+test with the time scaled by an assumed Weibull shape (n units, L mission times each): the
+per-unit failure probability over
 the test is :math:`1 - R^{L^\beta}`, and :math:`A = E_{R,\beta}[\Pr(X \le c)]`, integrated
 adaptively over the design prior of R(t) (and Gauss-Hermite over the shape prior).
 
@@ -222,7 +223,7 @@ def life_assurance(units: int, ratio: float, failures: int, shape: weibull.Shape
     c = count(failures, "allowed failures")
     if c >= n:
         return 1.0
-    betas, w = weibull._shape_nodes(shape)
+    betas, w = weibull.shape_nodes(shape)
     k = ratio ** betas  # L^beta per shape node
 
     def integrand(u: float, a: float, b: float) -> float:

@@ -58,7 +58,7 @@ def units_for_failures(reliability: float, confidence: float, failures: int) -> 
     conf = probability(confidence, "confidence")
     c = count(failures, "allowed failures")
     lo = max(success_run_units(r, conf), c + 1)
-    return _smallest(lambda n: passes_classical(n, c, r, conf), lo)
+    return smallest_units(lambda n: passes_classical(n, c, r, conf), lo)
 
 
 def lower_reliability_bound(n: int, failures: int, confidence: float) -> float:
@@ -87,7 +87,7 @@ def bayes_units(prior: RatePrior, reliability: float, confidence: float,
     r = probability(reliability, "reliability")
     conf = probability(confidence, "confidence")
     c = count(failures, "allowed failures")
-    return _smallest(lambda n: passes_bayes(prior, n, c, r, conf), c)
+    return smallest_units(lambda n: passes_bayes(prior, n, c, r, conf), c)
 
 
 def classical_table(reliability: float, confidence: float, failures: list[int]) -> list[dict]:
@@ -121,6 +121,6 @@ def bayes_table(prior: RatePrior, reliability: float, confidence: float,
     return rows
 
 
-def _smallest(ok, lo: int) -> int | None:
+def smallest_units(ok, lo: int) -> int | None:
     """Smallest integer n >= lo with ok(n), for ok monotone (False then True)."""
     return smallest_int(ok, lo, MAX_UNITS)

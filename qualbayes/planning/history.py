@@ -53,13 +53,17 @@ class HistoryPrior:
 def learn_prior(path, part: str | None = None, sheet: str | None = None,
                 columns: str | dict | None = None, seed: int = 20261202,
                 settings=None) -> HistoryPrior:
-    """Fit the lot history of one part and return its next-lot predictive as a prior."""
-    from qualbayes.data.lots import read_lots  # noqa: PLC0415
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
-    from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
-    from qualbayes.provenance import sha256_file  # noqa: PLC0415
+    """Fit the lot history of one part and return its next-lot predictive as a prior.
 
-    table = read_lots(path, sheet=sheet, columns=columns)
+    ``path``: an inspection export, a pandas DataFrame of lots or a LotTable (the same
+    validation as a file)."""
+    from qualbayes.data.frames import lots_table, source_sha256  # noqa: PLC0415
+    from qualbayes.inference import SamplerSettings, jax_scope  # noqa: PLC0415 - jax path
+    from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
+
+    table = lots_table(path, sheet=sheet, columns=columns)
+    sha = source_sha256(path)
+    path = table.file
     frame = table.frame
     parts = frame["part"].fillna("(no part number)").astype(str)
     names = list(dict.fromkeys(parts))
@@ -77,7 +81,8 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
         raise OptionError(f"part {part!r} has {len(x)} lot in {path}: a history needs at "
                           "least two lots")
     settings = settings or SamplerSettings(seed=seed)
-    fit = fit_histories([(x, n)], settings, names=[part])
+    with jax_scope():
+        fit = fit_histories([(x, n)], settings, names=[part])
     gate = fit.gate.select(part).to_dict()
     prior = None
     if gate["passed"]:
@@ -88,4 +93,4 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
             f"next-lot predictive of part {part} from {len(x)} lots: defect rate p (= 1 - R) "
             f"~ mixture of {mu.size} Beta(mu*kappa, (1-mu)*kappa) over posterior draws")
     return HistoryPrior(prior, str(path), table.sheet, part, int(len(x)), int(np.sum(n)),
-                        int(np.sum(x)), sha256_file(path), gate)
+                        int(np.sum(x)), sha or "", gate)

@@ -1,4 +1,5 @@
-r"""Bayesian Weibull-extended demonstration: what a test of n units, each run L mission times
+r"""Bayesian demonstration with the test time scaled by an assumed Weibull shape: what a test
+of n units, each run L mission times
 with c failing, says about the reliability R = R(t) at the mission time t.
 
 Prior on the failure probability :math:`p = 1 - R \sim \frac1D\sum_d \mathrm{Beta}(a_d, b_d)`,
@@ -100,7 +101,7 @@ def _node_terms(a: float, b: float, log_k: np.ndarray, n: int, c: int, p_star: f
 
 def _prob(prior: RatePrior, p_star: float, n: int, log_ratio: float, c: int,
           shape: weibull.Shape) -> float:
-    betas, w = weibull._shape_nodes(shape)
+    betas, w = weibull.shape_nodes(shape)
     log_k = _log_k(log_ratio, betas)
     logs, probs = [], []
     for a, b in zip(prior.a, prior.b, strict=True):

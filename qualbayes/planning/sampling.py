@@ -77,7 +77,8 @@ def acceptance_probability(n: int, c: int, rate, lot_size: int | None = None):
     return float(out) if out.ndim == 0 else out
 
 
-def _check(aql, alpha, ltpd, beta, lot_size):
+def check_inputs(aql, alpha, ltpd, beta, lot_size):
+    """The plan's inputs checked: probabilities, AQL < LTPD, a usable lot size."""
     aql = probability(aql, "AQL")
     ltpd = probability(ltpd, "LTPD")
     alpha = probability(alpha, "producer's risk alpha")
@@ -98,7 +99,7 @@ def _check(aql, alpha, ltpd, beta, lot_size):
 def find_plan(aql: float, alpha: float, ltpd: float, beta: float,
               lot_size: int | None = None) -> SamplingPlan:
     """The smallest (n, c) with P_a(AQL) >= 1 - alpha and P_a(LTPD) <= beta."""
-    aql, alpha, ltpd, beta, lot_size = _check(aql, alpha, ltpd, beta, lot_size)
+    aql, alpha, ltpd, beta, lot_size = check_inputs(aql, alpha, ltpd, beta, lot_size)
     for c in range(MAX_ACCEPTANCE_NUMBER + 1):
         n = _least_n(c, ltpd, beta, lot_size)
         if n is None:

@@ -80,7 +80,7 @@ class ShapePrior:
 Shape = float | ShapePrior
 
 
-def _shape_nodes(shape: Shape) -> tuple[np.ndarray, np.ndarray]:
+def shape_nodes(shape: Shape) -> tuple[np.ndarray, np.ndarray]:
     if isinstance(shape, ShapePrior):
         return shape.nodes()
     return np.array([positive(shape, "shape")]), np.ones(1)
@@ -90,7 +90,7 @@ def consumer_risk(n: int, ratio: float, failures: int, reliability: float,
                   shape: Shape) -> float:
     """P(X <= c | R(t) = R*) for n units tested L = ratio mission times each, averaged over
     the shape prior when a range is given."""
-    betas, w = _shape_nodes(shape)
+    betas, w = shape_nodes(shape)
     surv = np.exp(math.log(reliability) * ratio ** betas)  # R*^(L^beta)
     return float(np.dot(w, special.bdtr(failures, n, 1.0 - surv)))
 
@@ -108,7 +108,7 @@ def units_needed(reliability: float, confidence: float, ratio: float, shape: Sha
             return None  # outside floating point: the test period is far too short or long
         return attribute.units_for_failures(r_test, conf, c)
     limit = (1.0 - conf) * (1.0 + 1e-12)
-    return attribute._smallest(
+    return attribute.smallest_units(
         lambda n: consumer_risk(n, ratio, c, r, shape) <= limit, c + 1)
 
 

@@ -1,6 +1,6 @@
 r"""Prior sensitivity of the Weibull life question (NUTS; imports jax: the sampler path only).
 
-The set of :mod:`qualbayes.priors.sensitivity`, made concrete for the Weibull model:
+The set of :mod:`qualbayes.priors.prior_set`, made concrete for the Weibull model:
 
 * **as run** - the analysis itself (not rerun);
 * **default** - log shape ~ N(0, 1), uniform on the cumulative hazard at t_ref;
@@ -22,7 +22,7 @@ gives ``not-converged`` for that prior and no probability. So that the runs shar
 code, the prior's numbers (means and sds of the shape and scale parts, the weights of the
 earlier-data and sceptical terms) are arguments of one model function, not constants: runs
 of the same prior structure (which parts are flat, the scale kind and its q or T) compile
-once, and jax's persistent compilation cache (:func:`qualbayes.inference.setup_jax`) serves
+once, and jax's persistent compilation cache (:func:`qualbayes.inference.configure_process`) serves
 the rest.
 """
 
@@ -32,10 +32,12 @@ import math
 from dataclasses import replace
 from functools import partial
 
+import jax.numpy as jnp  # noqa: E402
 import numpy as np
+import numpyro  # noqa: E402
 
 from qualbayes import progress
-from qualbayes.inference import SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference import SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
     FLAT,
     LifePrior,
@@ -46,19 +48,14 @@ from qualbayes.models.weibull import (
     posterior_mode,
 )
 from qualbayes.priors.predictive import improper, life_expectations
-from qualbayes.priors.sensitivity import (
+from qualbayes.priors.prior_set import (
     NOT_USABLE,
     WEIGHTS,
     PriorRow,
-    _section,
     item_summary,
+    section,
 )
 from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
-
-setup_jax()
-
-import jax.numpy as jnp  # noqa: E402
-import numpyro  # noqa: E402
 
 JEFFREYS = LifePrior(shape=None, scale_kind="jeffreys")
 PREDICTIVE_DRAWS = 20_000
@@ -159,7 +156,7 @@ def life_rows(as_run: LifePrior, stated: LifePrior | None, earlier, units: str =
               ) -> list[LifeRow]:
     """The set for the life question. ``as_run``: the analysis prior (with its earlier-data
     term, if any, which must come from ``earlier``); ``stated``: the elicited prior (None if
-    none); ``earlier``: a :class:`~qualbayes.priors.power.EarlierLife` or None. The
+    none); ``earlier``: a :class:`~qualbayes.priors.power_prior.EarlierLife` or None. The
     power-prior rows use the prior as run without its earlier-data term as the initial
     prior."""
     base = replace(as_run, earlier=())
@@ -248,7 +245,7 @@ def numpy_prior(row: LifeRow, extra: dict) -> LifePrior:
 def run_row(row: LifeRow, stats: list, names: list[str], mission: float, extra: dict,
             settings: SamplerSettings, structure) -> dict:
     """One NUTS run of the given groups under one prior: name -> (R(mission) draws, gate)."""
-    from qualbayes.models.life import life_gate, sampler_inputs  # noqa: PLC0415
+    from qualbayes.models.life import gate_dims, sampler_inputs  # noqa: PLC0415
 
     prior_np = numpy_prior(row, extra)
     modes = [posterior_mode(st, prior_np) for st in stats]
@@ -258,8 +255,7 @@ def run_row(row: LifeRow, stats: list, names: list[str], mission: float, extra: 
                   "log_tref": extra["log_tref"]}
     hyper = {k: jnp.asarray(v) for k, v in hyper_of(row.prior, structure).items()}
     args = (*base_args, hyper, extra_args)
-    fit = run_nuts(_model(structure), args, settings, gate_on=life_gate(names, mission),
-                   init_params=init)
+    fit = run_nuts(_model(structure), args, settings, init_params=init, **gate_dims(names))
     out = {}
     for j, name in enumerate(names):
         b = fit.draws["log_shape"][:, :, j].reshape(-1)
@@ -274,6 +270,7 @@ def _gate_summary(gate) -> dict:
                               "divergences", "attempts", "reasons")}
 
 
+@jax_scope()
 def life_sensitivity(result, data: dict, rows: list[LifeRow], earlier=None,
                      settings: SamplerSettings | None = None) -> dict:
     """Every group under every prior of ``rows``. ``result`` is the
@@ -322,10 +319,10 @@ def life_sensitivity(result, data: dict, rows: list[LifeRow], earlier=None,
     predictive = [life_predictive(r, mission, int(np.median(sizes)), settings.seed)
                   for r in rows]
     q = f"P(R({mission:g}) >= {target:g} | data) >= {conf:g}?"
-    section = _section(q, conf, [r.row for r in rows], items, "group", predictive)
-    section["sampler"] = {"num_chains": settings.num_chains, "num_warmup": settings.num_warmup,
+    out = section(q, conf, [r.row for r in rows], items, "group", predictive)
+    out["sampler"] = {"num_chains": settings.num_chains, "num_warmup": settings.num_warmup,
                           "num_samples": settings.num_samples, "seed": settings.seed}
-    return section
+    return out
 
 
 def life_predictive(row: LifeRow, mission: float, units: int, seed: int) -> dict:

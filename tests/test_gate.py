@@ -1,0 +1,89 @@
+"""The convergence gate: numpy diagnostics against ArviZ, selection by coordinate, constant
+draws, and the gate judging the model's parameters.
+
+Reference: ArviZ (az.rhat method="rank", az.ess methods "bulk" and "tail"), which implements
+Vehtari, Gelman, Simpson, Carpenter & Buerkner (2021), Bayesian Analysis 16:667 (see
+docs/references.md); agreement to 1e-8 is asked (the same arithmetic, in another order).
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+
+from qualbayes import diagnostics
+from qualbayes.gate import diagnose, diagnose_arrays, diagnose_idata
+
+
+def _draws(shape, seed):
+    rng = np.random.default_rng(seed)
+    x = rng.normal(size=shape)
+    x[..., 0] = np.cumsum(x[..., 0], axis=1) * 0.1  # strongly autocorrelated
+    x[0, :, -1] += 0.4  # one chain off: R-hat well above 1
+    x[..., 1] = np.round(x[..., 1])  # ties: average ranks
+    return x
+
+
+@pytest.mark.parametrize("shape", [(4, 1000, 3), (4, 101, 3), (2, 40, 2), (1, 200, 2)])
+def test_rhat_and_ess_match_arviz(shape):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FutureWarning)
+        import arviz as az
+    x = _draws(shape, sum(shape))
+    ours = diagnostics.summary(x)
+    for k in range(shape[2]):
+        xs = x[:, :, k]
+        assert ours["ess_bulk"][k] == pytest.approx(float(az.ess(xs, method="bulk")), abs=1e-8)
+        assert ours["ess_tail"][k] == pytest.approx(float(az.ess(xs, method="tail")), abs=1e-8)
+        if shape[0] > 1:
+            assert ours["rhat"][k] == pytest.approx(float(az.rhat(xs, method="rank")),
+                                                    abs=1e-8)
+
+
+def test_a_part_named_1_does_not_take_the_diagnostics_of_a_part_named_x1():
+    # the earlier gate picked parameters by the end of their label: "mu[X[1]" ends with
+    # "[1]", so one stuck part made part "1" not-converged
+    rng = np.random.default_rng(0)
+    good = {"mu[1]": rng.normal(size=(4, 500)), "log_kappa[1]": rng.normal(size=(4, 500))}
+    stuck = {"mu[X[1]": np.full((4, 500), 0.3), "log_kappa[X[1]": rng.normal(size=(4, 500))}
+    gate = diagnose(good | stuck, 0)
+    assert gate.select("1").passed
+    assert [p.name for p in gate.select("1").params] == ["mu[1]", "log_kappa[1]"]
+    assert not gate.select("X[1").passed
+    by_coord = diagnose_arrays({"mu": np.stack([good["mu[1]"], stuck["mu[X[1]"]], -1)}, 0,
+                               dims={"mu": ["part"]}, coords={"part": ["1", "X[1"]})
+    assert by_coord.select(part="1").passed and not by_coord.select(part="X[1").passed
+
+
+def test_constant_draws_are_reported_as_constant():
+    gate = diagnose_arrays({"mu": np.ones((4, 300, 2))}, 0, dims={"mu": ["part"]},
+                           coords={"part": ["a", "b"]})
+    assert not gate.passed
+    assert all(p.constant for p in gate.params)
+    assert all("it is constant" in r for r in gate.reasons())
+    assert gate.to_dict()["parameters"][0]["constant"] is True
+
+
+def test_the_gate_reads_an_inference_data_by_coordinate():
+    from qualbayes.inference import to_idata
+
+    rng = np.random.default_rng(2)
+    mu = rng.normal(size=(4, 400, 2))
+    diverging = np.zeros((4, 400), bool)
+    diverging[1, 7] = True
+    idata = to_idata({"mu": mu}, diverging, {"mu": ["part"]}, {"part": ["1", "X[1"]})
+    gate = diagnose_idata(idata)
+    assert gate.divergences == 1 and not gate.passed
+    assert [p.coords for p in gate.params] == [{"part": "1"}, {"part": "X[1"}]
+    direct = diagnostics.rhat(mu)
+    assert [p.rhat for p in gate.params] == pytest.approx(list(direct), abs=1e-12)
+
+
+def test_the_life_gate_judges_log_shape_and_log_scale_only():
+    from qualbayes.models.life import GATE_VARS, gate_dims
+
+    kw = gate_dims(["A", "1"])
+    assert kw["gate_vars"] == GATE_VARS == ["log_shape", "log_scale"]
+    assert kw["coords"] == {"group": ["A", "1"]}

@@ -1,4 +1,5 @@
-"""Test plans with the test time scaled by an assumed Weibull shape: reduction to the success run, closed
+"""Test plans with the test time scaled by an assumed Weibull shape: reduction to the success
+run, closed
 forms, monotone trade-off, and the shape-range integral against simulation."""
 
 import math

@@ -75,17 +75,31 @@ def execute(args, command: Command) -> int:
 
     targets = check_outputs(args)
     record = seal(stamp(command.compute()))
-    written = write_outputs(args, record, targets, command.evidence)
-    emit(args, record, command, written)
+    shown = render_terminal(args, record, command)  # rendered before anything is written
+    sets = render_sets(record, targets, command.evidence)
+    written = write_sets(args, record, targets, sets)
+    from qualbayes.evidence.terminal import print_text  # noqa: PLC0415
+
+    print_text(shown, raw=bool(getattr(args, "json", False)))
+    for line in ([] if getattr(args, "json", False) else written):
+        print_text(line)
     return 0
 
 
-def write_outputs(args, record: dict, targets: dict[str, Path],
-                  evidence: Callable[[dict], Files] | None) -> list[str]:
-    """Render every file, then write each folder as one locked group."""
-    from qualbayes.evidence.output_set import write_set  # noqa: PLC0415
+def render_terminal(args, record: dict, command: Command) -> str:
+    """The JSON document (sealed, without the draws) or the terminal text."""
+    from qualbayes.evidence.jsonout import dumps_for_terminal, without_draws  # noqa: PLC0415
+    from qualbayes.evidence.run_record import seal  # noqa: PLC0415
 
-    force = bool(getattr(args, "force", False))
+    if getattr(args, "json", False):
+        document = command.json_document(record) if command.json_document else record
+        return dumps_for_terminal(seal(without_draws(document)))
+    return command.text(record)
+
+
+def render_sets(record: dict, targets: dict[str, Path],
+                evidence: Callable[[dict], Files] | None) -> list[tuple]:
+    """Every file of every output folder, rendered before any is written."""
     sets = []
     if "--out" in targets and evidence is not None:
         sets.append(("--out", "evidence", evidence(record), {}))
@@ -94,6 +108,14 @@ def write_outputs(args, record: dict, targets: dict[str, Path],
 
         files, info = report_files(record)
         sets.append(("--report", "report", files, info))
+    return sets
+
+
+def write_sets(args, record: dict, targets: dict[str, Path], sets: list[tuple]) -> list[str]:
+    """Write each folder as one locked group; returns the lines saying what was written."""
+    from qualbayes.evidence.output_set import write_set  # noqa: PLC0415
+
+    force = bool(getattr(args, "force", False))
     lines = []
     for option, kind, files, info in sets:
         folder = targets[option]
@@ -106,20 +128,6 @@ def write_outputs(args, record: dict, targets: dict[str, Path],
         else:
             lines.append("evidence written: " + ", ".join(str(p) for p in written))
     return lines
-
-
-def emit(args, record: dict, command: Command, written: list[str]) -> None:
-    from qualbayes.evidence.jsonout import dumps_for_terminal, without_draws  # noqa: PLC0415
-    from qualbayes.evidence.run_record import seal  # noqa: PLC0415
-    from qualbayes.evidence.terminal import print_text  # noqa: PLC0415
-
-    if getattr(args, "json", False):
-        document = command.json_document(record) if command.json_document else record
-        print_text(dumps_for_terminal(seal(without_draws(document))), raw=True)
-        return
-    print_text(command.text(record))
-    for line in written:
-        print_text(line)
 
 
 def record_writer(record: dict, draws: bool = False) -> Callable[[Path], None]:

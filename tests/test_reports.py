@@ -115,11 +115,40 @@ def _browse(html: Path, tmp_path: Path) -> tuple[str, Path, list[str]]:
     return dom, shot, [u for u in _Recorder.seen if not own.match(u)]
 
 
+# Marks the page when every image has decoded. The report itself carries no script and its
+# policy forbids any; the harness adds this check to a copy whose policy allows inline script.
+CHECK_SCRIPT = """<script>
+window.addEventListener('load',function(){var ok=0,imgs=document.images;
+for(var i=0;i<imgs.length;i++){if(imgs[i].complete&&imgs[i].naturalWidth>0){ok++;}}
+document.body.setAttribute('data-images-loaded',ok+'/'+imgs.length);});
+</script>"""
+
+
+def _with_check_script(html: Path, tmp_path: Path) -> Path:
+    from qualbayes.evidence.html import CSP
+
+    text = html.read_text()
+    assert CSP in text
+    copy = tmp_path / "checked.html"
+    copy.write_text(text.replace(CSP, CSP.replace("script-src 'none'",
+                                                  "script-src 'unsafe-inline'"))
+                    .replace("</body>", CHECK_SCRIPT + "</body>"))
+    return copy
+
+
+def test_report_has_no_script_and_its_policy_forbids_any(history_report):
+    html = (history_report / "report.html").read_text()
+    assert "<script" not in html.lower()
+    policy = re.search(r'Content-Security-Policy" content="([^"]*)"', html)[1]
+    assert re.search(r"(^|; )script-src 'none'(;|$)", policy)
+    assert "default-src 'none'" in policy
+
+
 @needs_browser
 def test_html_loads_in_headless_browser_with_no_network_request(history_report, tmp_path):
     html = history_report / "report.html"
     assert not re.search(r"""(src|href)\s*=\s*["']?(https?:|//)""", html.read_text())
-    dom, shot, from_page = _browse(html, tmp_path)
+    dom, shot, from_page = _browse(_with_check_script(html, tmp_path), tmp_path)
     assert from_page == []
     page = parse(dom)
     assert "decision-summary" in page.ids

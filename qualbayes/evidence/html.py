@@ -30,12 +30,9 @@ figcaption{color:#444;font-size:11px}
 table{page-break-inside:auto}tr{page-break-inside:avoid}}
 """
 
-# Marks the page when every image has decoded (read by the browser test).
-CHECK_SCRIPT = """<script>
-window.addEventListener('load',function(){var ok=0,imgs=document.images;
-for(var i=0;i<imgs.length;i++){if(imgs[i].complete&&imgs[i].naturalWidth>0){ok++;}}
-document.body.setAttribute('data-images-loaded',ok+'/'+imgs.length);});
-</script>"""
+#: The page's content-security policy: nothing fetched but embedded images, no script.
+CSP = ("default-src 'none'; img-src data:; style-src 'unsafe-inline'; script-src 'none'; "
+       "object-src 'none'; base-uri 'none'; form-action 'none'")
 
 
 def png_bytes(fig) -> bytes:
@@ -50,9 +47,9 @@ def png_bytes(fig) -> bytes:
 def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
     pngs = pngs if pngs is not None else {f.id: png_bytes(f.figure) for f in report.figures()}
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
-             # no network at all: the policy forbids every fetch except embedded data
-             '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
-             'img-src data:; style-src \'unsafe-inline\'; script-src \'unsafe-inline\'">',
+             # no network and no script at all: every fetch is forbidden except embedded
+             # images, and no script may run (the page has none)
+             f'<meta http-equiv="Content-Security-Policy" content="{CSP}">',
              f"<title>{escape(report.title)}</title><style>{CSS}</style></head><body>",
              f"<h1>{escape(report.title)}</h1>",
              f'<div class="subtitle">{escape(report.subtitle)}</div>']
@@ -63,7 +60,6 @@ def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
         for block in section.blocks:
             parts.append(_block(block, pngs))
         parts.append("</section>")
-    parts.append(CHECK_SCRIPT)
     parts.append("</body></html>")
     return "\n".join(parts)
 

@@ -114,8 +114,8 @@ def parse_number(value: object, style: NumberStyle = UNDECIDED) -> float:
         raise ValueError(f"expected a number, found {describe(value)}")
     if isinstance(value, int):
         if abs(value) > EXACT_INTEGER:
-            raise ValueError(f"the number {describe(value)} is beyond 2**53 and cannot be "
-                             "held exactly")
+            raise ValueError(f"the number {describe(value)} is too large (beyond 2**53 it "
+                             "cannot be held exactly)")
         return float(value)
     if isinstance(value, float):
         if not math.isfinite(value):
@@ -152,8 +152,8 @@ def parse_number(value: object, style: NumberStyle = UNDECIDED) -> float:
     if not _PLAIN.fullmatch(t):
         raise ValueError(f"expected a number, found {describe(value)}")
     if re.fullmatch(r"[+-]?\d+", t) and abs(int(t)) > EXACT_INTEGER:
-        raise ValueError(f"the number {describe(value)} is beyond 2**53 and cannot be held "
-                         "exactly")
+        raise ValueError(f"the number {describe(value)} is too large (beyond 2**53 it cannot "
+                         "be held exactly)")
     x = float(t)
     if not math.isfinite(x):
         raise ValueError(f"expected a finite number, found {describe(value)}")

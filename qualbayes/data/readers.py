@@ -31,6 +31,9 @@ DEFAULT_MAX_ROWS = 500_000
 #: Cells further right than this are refused: openpyxl pads every row to its last cell, so
 #: a cell in column XFD (16,384) on every row would cost time and memory for nothing.
 MAX_COLUMNS = 1024
+#: Cells kept for one table (rows times the column of each row's last filled cell), checked
+#: row by row before the next row is kept: 500,000 rows of 20 columns fit.
+MAX_CELLS = 10_000_000
 #: Delimiter detection looks at this many records of the start of a csv.
 _SNIFF_RECORDS = 30
 
@@ -171,38 +174,78 @@ def _too_many_rows(name: str, sheet: str, max_rows: int, declared: str = "") -> 
                       "file or raise the limit with --max-rows", file=name, sheet=sheet)
 
 
-def _iter_limited(ws, name: str, sheet: str, max_rows: int,
-                  progress: list[int]) -> Iterator[tuple[int, tuple]]:
-    """Rows as (row number, cells). ``progress[0]`` holds the last row number read.
+def _sparse_rows(ws, data_only: bool) -> Iterator[tuple[int, list[dict]]]:
+    """(row number, the cells present in the row's XML) from openpyxl's streaming sheet
+    parser: nothing is padded, so a cell far to the right costs one entry, not a row of
+    empty cells (openpyxl's read-only rows pad every row to the widest)."""
+    from openpyxl.worksheet._reader import WorkSheetParser  # noqa: PLC0415
+
+    wb = ws.parent
+    with ws._get_source() as src:
+        parser = WorkSheetParser(src, ws._shared_strings, data_only=data_only,
+                                 epoch=wb.epoch, date_formats=wb._date_formats,
+                                 timedelta_formats=wb._timedelta_formats)
+        yield from parser.parse()
+
+
+def _iter_limited(ws, name: str, sheet: str, max_rows: int, progress: list[int],
+                  data_only: bool = True) -> Iterator[tuple[int, list[dict]]]:
+    """Rows as (row number, sparse cells), within the row, column and cell limits.
+    ``progress[0]`` holds the last row number read.
 
     The sheet's size record (its ``dimension``) is used only to refuse an oversized sheet at
-    once; then it is dropped, so a wrong record can neither cut rows off nor pad them.
+    once; rows are numbered by their own ``r`` attributes, so a wrong record can neither cut
+    rows off nor pad them.
     """
     declared = ws.max_row
     if declared is not None and declared > max_rows + 1:
         raise _too_many_rows(name, sheet, max_rows, f" (its size record says {declared:,} "
                                                     "rows)")
-    ws.reset_dimensions()
-    # Without a size record openpyxl numbers the rows it yields from 1, filling gaps with
-    # empty rows, so k is the spreadsheet's row number even when column A is empty.
-    for k, row in enumerate(ws.iter_rows(), start=1):
+    kept = 0
+    last = 0
+    for k, cells in _sparse_rows(ws, data_only):
+        if k <= last:
+            raise InputError(f"row {k} comes after row {last} in the sheet's XML; the file is "
+                             "damaged. Open it in a spreadsheet program and save it again",
+                             file=name, sheet=sheet, row=k)
+        last = k
         if k > max_rows + 1:  # the header is one row
             raise _too_many_rows(name, sheet, max_rows)
-        if len(row) > MAX_COLUMNS:
+        width = max((c["column"] for c in cells if c["value"] is not None
+                     or c["data_type"] == "f"), default=0)
+        if width > MAX_COLUMNS:
             from openpyxl.utils import get_column_letter  # noqa: PLC0415
 
             raise InputError(
-                f"a cell lies in column {get_column_letter(min(len(row), 16384))} "
-                f"(column {len(row):,}); at most {MAX_COLUMNS:,} columns are read. Delete the "
+                f"a cell lies in column {get_column_letter(min(width, 16384))} "
+                f"(column {width:,}); at most {MAX_COLUMNS:,} columns are read. Delete the "
                 "cells right of the table or copy the table into a new sheet",
                 file=name, sheet=sheet, row=k)
+        kept += width
+        if kept > MAX_CELLS:
+            raise _too_many_cells(name, sheet, k)
         progress[0] = k
-        yield k, row
+        yield k, cells
+
+
+def _too_many_cells(name: str, sheet: str | None, row: int) -> InputError:
+    return InputError(f"the table holds more than {MAX_CELLS:,} cells by row {row:,} (rows "
+                      "times the column of their last filled cell); delete cells far right "
+                      "of the table, or split the file", file=name, sheet=sheet, row=row)
 
 
 def _trimmed(values: list[object]) -> list[object]:
     while values and values[-1] is None:
         values.pop()
+    return values
+
+
+def _values(cells: list[dict]) -> list[object]:
+    width = max((c["column"] for c in cells if c["value"] is not None), default=0)
+    values: list[object] = [None] * width
+    for c in cells:
+        if c["value"] is not None and c["column"] <= width:
+            values[c["column"] - 1] = c["value"]
     return values
 
 
@@ -216,8 +259,8 @@ def _read_xlsx(p: Path, name: str, sheet: str | None, max_rows: int) -> RawTable
         title = ws.title
         rows: list[list[object]] = []
         numbers: list[int] = []
-        for k, row in _iter_limited(ws, name, title, max_rows, progress):
-            values = _trimmed([getattr(c, "value", None) for c in row])
+        for k, cells in _iter_limited(ws, name, title, max_rows, progress):
+            values = _values(cells)
             if not any(v is not None and v != "" for v in values):
                 continue
             numbers.append(k)
@@ -267,15 +310,16 @@ def _find_formulas(p: Path, name: str, title: str, table: RawTable, max_rows: in
     try:
         ws = wb[title]
         index = {r: i for i, r in enumerate(table.row_numbers)}
-        for k, row in _iter_limited(ws, name, title, max_rows, progress):
-            for j, c in enumerate(row):
-                if getattr(c, "data_type", None) == "f":
+        for k, cells in _iter_limited(ws, name, title, max_rows, progress, data_only=False):
+            for c in cells:
+                if c["data_type"] == "f":
+                    j = c["column"] - 1
                     if k not in index:
                         # a formula in a row whose cached values are all empty
                         index[k] = len(table.rows)
                         table.rows.append([None] * (j + 1))
                         table.row_numbers.append(k)
-                    table.formula_cells[(index[k], j)] = str(c.value)[:60]
+                    table.formula_cells[(index[k], j)] = str(c["value"])[:60]
     except InputError:
         raise
     except Exception as err:
@@ -388,6 +432,7 @@ def _read_csv(p: Path, name: str, max_rows: int) -> RawTable:
     text, encoding = _decode(data, name)
     del data
     delimiter = _guess_delimiter(text)
+    _check_widths(text, delimiter, name)
     if text.count("\n") > max_rows:
         # Possibly too long: count the records first, keeping none of them, so that a file
         # of millions of rows is refused without building a table of them.
@@ -396,15 +441,43 @@ def _read_csv(p: Path, name: str, max_rows: int) -> RawTable:
                 raise _too_many_csv_rows(name, max_rows, line)
     rows: list[list[object]] = []
     numbers: list[int] = []
+    kept = 0
     for line, rec in _records(text, delimiter, name):
         if len(rows) > max_rows:
             raise _too_many_csv_rows(name, max_rows, line)
-        rows.append([c if c.strip() else None for c in rec])
+        if len(rec) > MAX_COLUMNS:
+            raise _too_wide(name, line, len(rec))
+        values = _trimmed([c if c.strip() else None for c in rec])
+        kept += len(values)
+        if kept > MAX_CELLS:
+            raise _too_many_cells(name, None, line)
+        rows.append(values)
         numbers.append(line)
     table = RawTable(name, None, rows, numbers, decimal_comma=delimiter in ";\t|")
     if encoding == "cp1252":
         table.notes.append("read as Windows-1252 text (not UTF-8)")
     return table
+
+
+def _too_wide(name: str, line: int, cells: int, more: bool = False) -> InputError:
+    return InputError(f"line {line:,} has {'more than ' if more else ''}{cells:,} cells; at most "
+                      f"{MAX_COLUMNS:,} columns are read. Delete the cells right of the table",
+                      file=name, row=line)
+
+
+def _check_widths(text: str, delimiter: str, name: str) -> None:
+    """Refuse a line of more than MAX_COLUMNS delimiters before the csv module splits it
+    (one 188 MB line of commas would become 188 million strings). Only lines long enough
+    to hold that many are counted, and quoted text in them is left out of the count."""
+    for m in re.finditer(rf"[^\n]{{{MAX_COLUMNS + 1},}}", text):
+        if text.count(delimiter, m.start(), m.end()) < MAX_COLUMNS:
+            continue
+        segment = m.group()
+        if '"' in segment:
+            segment = re.sub(r'"[^"]*"', "", segment)
+        if segment.count(delimiter) >= MAX_COLUMNS:
+            line = text.count("\n", 0, m.start()) + 1
+            raise _too_wide(name, line, MAX_COLUMNS, more=True)
 
 
 def _too_many_csv_rows(name: str, max_rows: int, line: int) -> InputError:

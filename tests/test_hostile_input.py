@@ -425,10 +425,15 @@ def test_long_cells_do_not_hang(tmp_path):
     refused(p, "(100,001 characters)", row=2, column="Inspected", seconds=20)
     # one long line of quote-delimiter pairs took csv.Sniffer tens of seconds per 64 KB
     q = tmp_path / "sniff.csv"
-    q.write_text("Lot,Inspected,Defects,Note\nA,50,0," + '"a,' * 20_000 + "\nB,50,1,x\n",
+    q.write_text("Lot,Inspected,Defects,Note\nA,50,0," + '"a,' * 1_000 + "\nB,50,1,x\n",
                  encoding="utf-8")
     with deadline(20):
         assert reads(q).frame["lot"].tolist() == ["A", "B"]
+    # 20,000 pairs split into 10,004 cells: over the column limit, refused at once
+    q.write_text("Lot,Inspected,Defects,Note\nA,50,0," + '"a,' * 20_000 + "\nB,50,1,x\n",
+                 encoding="utf-8")
+    refused(q, "at most 1,024 columns", row=2,
+            seconds=20)
     r = tmp_path / "field.csv"
     r.write_text('Lot,Inspected,Defects\nA,50,0\nB,"' + "z" * 200_000 + '",1\n',
                  encoding="utf-8")

@@ -165,8 +165,12 @@ def _inputs_in(path: Path) -> list[str]:
         found.append(str(path))
     if stat.S_ISDIR(st.st_mode):
         entries, _ = _walk(path)
-        found += [str(path / n) for n, est in entries if stat.S_ISREG(est.st_mode)
-                  and is_input(est)]
+        for n, est in entries:
+            if stat.S_ISLNK(est.st_mode):  # a link to an input counts as the input
+                with contextlib.suppress(OSError):
+                    est = os.stat(path / n)
+            if stat.S_ISREG(est.st_mode) and is_input(est):
+                found.append(str(path / n))
     return list(dict.fromkeys(found))
 
 

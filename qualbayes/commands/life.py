@@ -98,7 +98,8 @@ def _evidence(record: dict, args) -> dict:
     from qualbayes.evidence.life_record import life_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    files = {WORKBOOK: workbook_writer(life_sheets(record)), RECORD: record_writer(record)}
+    files = {WORKBOOK: workbook_writer(life_sheets(record)),
+             RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
     q = record["question"]
     names = figure_names([g["group"] for g in record["groups"]])
     for group, (_, prob_name, rel_name) in zip(record["groups"], names, strict=True):

@@ -72,7 +72,8 @@ def _evidence(record: dict, args) -> dict:
     from qualbayes.evidence.lots_record import lots_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    files = {WORKBOOK: workbook_writer(lots_sheets(record)), RECORD: record_writer(record)}
+    files = {WORKBOOK: workbook_writer(lots_sheets(record)),
+             RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
     if used(args):
         files[FIGURE] = figure_file(record)
     return files

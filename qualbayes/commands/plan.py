@@ -11,6 +11,8 @@ All answers are closed forms or exact sums (scipy); only ``--history`` runs the 
 from __future__ import annotations
 
 import argparse
+
+from qualbayes.commands.convert import optional_probability as _probability
 from qualbayes.commands.convert import (  # noqa: F401 - re-exported for older callers
     parse_failures,
     parse_gamma,
@@ -19,7 +21,6 @@ from qualbayes.commands.convert import (  # noqa: F401 - re-exported for older c
     parse_reliability_prior,
     parse_whole,
 )
-from qualbayes.commands.convert import optional_probability as _probability
 from qualbayes.commands.prior_options import add_prior_options
 from qualbayes.errors import OptionError
 

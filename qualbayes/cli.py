@@ -5,9 +5,17 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
-from qualbayes.errors import EXIT_INPUT, EXIT_REFUSED, InputError, OptionError, OutputExistsError
+from qualbayes.errors import (
+    EXIT_INPUT,
+    EXIT_INTERNAL,
+    EXIT_REFUSED,
+    InputError,
+    OptionError,
+    OutputExistsError,
+)
 
 #: Each module has ``register(subparsers)``; the parser it adds sets ``func(args) -> int``.
 COMMAND_MODULES = (
@@ -74,6 +82,13 @@ def main(argv: list[str] | None = None) -> int:
         _say(f"qualbayes: error: cannot write the output: {err}")
         _say("qualbayes: files are written whole or not at all; no partial file was left.")
         return EXIT_INPUT
+    except Exception as err:  # noqa: BLE001 - a bug: no traceback for the user, never exit 0-3
+        if os.environ.get("QUALBAYES_DEBUG"):
+            raise
+        _say(f"qualbayes: internal error ({type(err).__name__}: {str(err)[:300]}). Nothing "
+             "was written: files are written only once every result and page is complete. "
+             "Please report this with the command line (set QUALBAYES_DEBUG=1 for details).")
+        return EXIT_INTERNAL
     except KeyboardInterrupt:
         print("qualbayes: interrupted; no partial file was left (files are written whole "
               "or not at all).", file=sys.stderr)

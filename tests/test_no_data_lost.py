@@ -267,8 +267,9 @@ def _set_of(folder: Path) -> dict[str, bytes]:
     return {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()}
 
 
-@pytest.mark.parametrize("command", ["life", "plan"])
-@pytest.mark.parametrize("mode,lines", [("slow-zip", 3), ("slow-swap", 1)])
+@pytest.mark.parametrize("command,mode,lines", [
+    ("plan", "slow-zip", 3), ("plan", "slow-swap", 1), ("life", "slow-swap", 1),
+    pytest.param("life", "slow-zip", 3, marks=pytest.mark.slow)])
 def test_a_killed_life_or_plan_run_never_leaves_a_new_file_beside_an_old_one(
         tmp_path, examples, command, mode, lines):
     """Issue 13 item 5: every command writes through the one pipeline, so a life run and a

@@ -305,3 +305,38 @@ def test_a_killed_life_or_plan_run_never_leaves_a_new_file_beside_an_old_one(
     after = _set_of(out)
     assert after.keys() == earlier.keys() and all(after[k] != earlier[k] for k in after
                                                   if k != MARKER and not k.endswith(".png"))
+
+
+@pytest.mark.parametrize("case", ["mission far beyond the data", "times of 1e-300"])
+def test_no_crash_after_a_write_has_begun(tmp_path, examples, case):
+    """Every check and all computation come before the first byte is written, so a run that
+    fails late leaves nothing; with constant draws (R(mission) saturated at every draw) the
+    command must end with an answer or exit 2, and never a traceback."""
+    if case == "times of 1e-300":
+        src = write_life(tmp_path / "tiny.csv", ["1e-300", "2e-300", "1.5e-300"], "3e-300")
+        args = ["life", str(src), "--mission", "1e-300", "--target", "0.9"]
+    else:
+        args = ["life", str(examples / "sv30_rig_test.csv"), "--mission", "1000000",
+                "--target", "0.9", "--shape-prior", "2,4"]
+    out, rep = tmp_path / "ev", tmp_path / "rep"
+    env = {**os.environ, "CI": "true", "PYTHONPATH": str(ROOT)}
+    proc = subprocess.run([sys.executable, "-m", "qualbayes", *args, "--out", str(out),
+                           "--report", str(rep)], capture_output=True, text=True, env=env,
+                          cwd=ROOT, timeout=600)
+    assert "Traceback" not in proc.stderr
+    for folder in (out, rep):  # absent, or a complete set
+        if folder.exists():
+            listed = json.loads((folder / MARKER).read_text())["files"]
+            assert sorted(str(p.relative_to(folder)) for p in folder.rglob("*")
+                          if p.is_file() and p.name != MARKER) == sorted(listed)
+    assert not list(tmp_path.glob(".*.qualbayes-*"))
+    if proc.returncode == 70 and case == "mission far beyond the data":
+        pytest.xfail("needs the gate to judge the parameters rather than a saturated "
+                     "R(mission) (gate.py, another engineer's part of issue 12)")
+    assert proc.returncode in (0, 2), proc.stderr
+
+
+def write_life(path: Path, failures: list[str], suspension: str) -> Path:
+    rows = [f"U{i},{t},F" for i, t in enumerate(failures, 1)]
+    path.write_text("Unit,Hours,Status\n" + "\n".join(rows) + f"\nS1,{suspension},S\n")
+    return path

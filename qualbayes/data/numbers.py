@@ -71,6 +71,8 @@ def _clean(text: str) -> str:
 
 def telling(text: str) -> str | None:
     """The decimal mark a written number shows by its form, or None (plain or ambiguous)."""
+    if text.isascii() and text.isdigit():  # the common case, no mark at all
+        return None
     t = _clean(text)
     if len(t) > MAX_NUMBER_CHARS or _AMBIGUOUS.fullmatch(t):
         return None
@@ -124,6 +126,8 @@ def parse_number(value: object, style: NumberStyle = UNDECIDED) -> float:
     if not isinstance(value, str):
         raise ValueError(f"expected a number, found {describe(value)}")
     text = value.strip()
+    if text.isascii() and text.isdigit() and len(text) <= 15:  # the common case
+        return float(text)
     if len(text) > MAX_NUMBER_CHARS:
         raise ValueError(f"expected a number, found {describe(value)} "
                          f"({len(text):,} characters)")

@@ -80,6 +80,9 @@ def parse_text(value: object) -> str:
         text = str(int(value))
     else:
         text = str(value)
+    if (len(text) <= 200 and text.isascii() and text.isprintable() and text == text.strip()
+            and not text.startswith(("#", "N/", "n/"))):
+        return text  # plain ASCII: nothing to normalise, no control or format character
     if len(text) > 10_000:  # refuse before normalising megabytes of text
         raise ValueError("text is longer than 200 characters")
     text = unicodedata.normalize("NFC", _LINE_BREAKS.sub(" ", text)).strip()

@@ -24,7 +24,8 @@ def add_input_options(p: argparse.ArgumentParser) -> None:
 
 def add_output_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--confidence", default="0.95",
-                   help="confidence C for bounds and decisions (default 0.95)")
+                   help="confidence C for bounds and decisions, strictly between 0.5 and 1 "
+                        "(default 0.95)")
     p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
     p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
     p.add_argument("--out", metavar="DIR", help="write the evidence workbook into DIR")

@@ -16,7 +16,6 @@ import contextlib
 import io
 import os
 import re
-import signal
 import subprocess
 import sys
 import tempfile
@@ -31,6 +30,7 @@ from hostile_files import (
     BILLION_LAUGHS,
     EXTERNAL_ENTITY,
     SHEET,
+    deadline,
     member_data_offset,
     patch_central_size,
     rezip,
@@ -50,26 +50,6 @@ from qualbayes.errors import InputError
 
 HEADER = ["Lot", "Inspected", "Defects"]
 ROOT = Path(__file__).resolve().parent.parent
-
-
-class Hang(BaseException):
-    """Raised by the deadline; a BaseException so no `except Exception` can swallow it."""
-
-
-@contextlib.contextmanager
-def deadline(seconds: int):
-    """Fail instead of hanging. A guard against hangs, not a timing measurement."""
-
-    def on_alarm(signum, frame):
-        raise Hang(f"no answer within {seconds} s")
-
-    old = signal.signal(signal.SIGALRM, on_alarm)
-    signal.alarm(seconds)
-    try:
-        yield
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, old)
 
 
 def run_cli(args: list[str]) -> tuple[int, str, str]:

@@ -9,13 +9,12 @@ from __future__ import annotations
 
 import contextlib
 import io
-import signal
 import tracemalloc
 from pathlib import Path
 
 import pytest
 from helpers import write_csv
-from hostile_files import sheet_xml, xlsx_with_sheet
+from hostile_files import deadline, sheet_xml, xlsx_with_sheet
 
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
@@ -25,20 +24,6 @@ from qualbayes.errors import InputError
 
 HEADER = ["Lot", "Inspected", "Defects"]
 LIFE = ["Unit", "Hours", "Status"]
-
-
-@contextlib.contextmanager
-def deadline(seconds: int):
-    def on_alarm(signum, frame):
-        raise TimeoutError(f"no answer within {seconds} s")
-
-    old = signal.signal(signal.SIGALRM, on_alarm)
-    signal.alarm(seconds)
-    try:
-        yield
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, old)
 
 
 def refused(reader, path: Path, fragment: str, row=None, column=None) -> InputError:

@@ -9,8 +9,8 @@ from helpers import heavy_imports
 
 from qualbayes.caution import CAUTION
 from qualbayes.cli import main
-from qualbayes.evidence.output_set import MARKER  # written with every output set
 from qualbayes.errors import EXIT_INPUT, EXIT_REFUSED, OptionError
+from qualbayes.evidence.output_set import MARKER  # written with every output set
 
 ATTRIBUTE = ["plan", "attribute", "--reliability", "0.9", "--confidence", "0.9",
              "--failures", "2"]

@@ -71,7 +71,7 @@ def run(args) -> int:
                          max_rows=args.max_rows, units=units, groups=args.group)
         stats = {g: st for g, (_, st) in group_data(data).items()}
         check_prior_use(data, stats, prior)  # refuse before the sampler starts
-        sha = sha256_file(args.file)
+        sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
         result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
         record = life_record(result, data, sha, command_line(args.argv), versions())
         record.update(life_prior_evidence(args, result, data, prior, setup))

@@ -50,7 +50,7 @@ def run(args) -> int:
         prior, setup = lot_prior(args)  # --earlier is read here, after the target checks
         data = read_lots(args.file, sheet=args.sheet, columns=args.columns,
                          max_rows=args.max_rows)
-        sha = sha256_file(args.file)
+        sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
         result = assess_lots(data, spec, confidence, prior, seed=args.seed)
         record = lots_record(result, data, sha, command_line(args.argv), versions())
         record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))

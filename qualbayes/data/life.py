@@ -71,6 +71,7 @@ class LifeTable:
     headers: dict[str, str]
     notes: list[str]
     units: str = ""
+    sha256: str = ""  # of exactly the bytes read ("" for a table built in memory)
 
     @property
     def groups(self) -> list[str]:
@@ -180,7 +181,8 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
                 raise InputError(f"group {g!r} has no units in the file ({where}; groups "
                                  f"present: {names})", file=table.file, sheet=table.sheet)
         frame = frame[frame["group"].isin(groups)].reset_index(drop=True)
-    return LifeTable(frame, table.file, table.sheet, loc.header_row, headers, notes, units)
+    return LifeTable(frame, table.file, table.sheet, loc.header_row, headers, notes, units,
+                     table.sha256)
 
 
 def _time(raw, style, fail, key: str, allow_zero: bool) -> float | None:

@@ -40,6 +40,7 @@ class LotTable:
     header_row: int
     headers: dict[str, str]  # key -> header as written in the file
     notes: list[str]
+    sha256: str = ""  # of exactly the bytes read ("" for a table built in memory)
 
 
 def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
@@ -118,7 +119,8 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
         records, columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
                           "defectives", "row"])
     frame["lot_size"] = frame["lot_size"].astype("Int64")
-    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes)
+    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes,
+                    table.sha256)
 
 
 #: Lot ids that label a summary row rather than a lot, in the languages of plant exports

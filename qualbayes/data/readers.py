@@ -14,9 +14,11 @@ is reported as an :class:`InputError` naming the file, the sheet and the last ro
 from __future__ import annotations
 
 import csv
+import hashlib
 import io
 import os
 import re
+import stat
 import zipfile
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -49,6 +51,7 @@ class RawTable:
     decimal_comma: bool = False
     formula_cells: dict[tuple[int, int], str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
+    sha256: str = ""  # of exactly the bytes parsed
 
     def error(self, message: str, row: int | None = None, column: str | None = None):
         return InputError(message, file=self.file, sheet=self.sheet, row=row, column=column)
@@ -61,41 +64,65 @@ def read_table(path: str | os.PathLike, sheet: str | None = None,
         raise OptionError(f"--max-rows {max_rows!r}: give a whole number of at least 1")
     p = Path(path)
     name = str(path)
-    try:
-        if not p.exists():
-            raise InputError("file not found", file=name)
-        if not p.is_file():
-            raise InputError("not a regular file", file=name)
-        size = p.stat().st_size
-        if size == 0:
-            raise InputError("the file is empty", file=name)
-        if size > MAX_FILE_BYTES:
-            raise InputError(
-                f"the file is {size / 2**20:.0f} MiB; the limit is {MAX_FILE_BYTES // 2**20} MiB",
-                file=name)
-        with open(p, "rb") as fh:
-            head = fh.read(8)
-    except OSError as err:
-        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+    data = _read_bytes(p, name)
+    sha = hashlib.sha256(data).hexdigest()
+    head = data[:8]
     suffix = p.suffix.lower()
     if head.startswith(b"PK"):
         if sheet is None and suffix in (".csv", ".txt"):
             raise InputError("the file is named .csv but is a zip/xlsx file", file=name)
-        return _read_xlsx(p, name, sheet, max_rows)
-    if suffix in (".xlsx", ".xlsm"):
-        raise InputError("not a valid xlsx file (it is not a zip archive; truncated or "
-                         "another format?)", file=name)
-    if suffix == ".xls" or head.startswith(b"\xd0\xcf\x11\xe0"):
-        raise InputError("old binary .xls files are not read; save the sheet as .xlsx or .csv",
-                         file=name)
-    if sheet is not None:
-        raise InputError("--sheet applies to xlsx files only", file=name)
-    return _read_csv(p, name, max_rows)
+        table = _read_xlsx(io.BytesIO(data), name, sheet, max_rows)
+    else:
+        if suffix in (".xlsx", ".xlsm"):
+            raise InputError("not a valid xlsx file (it is not a zip archive; truncated or "
+                             "another format?)", file=name)
+        if suffix == ".xls" or head.startswith(b"\xd0\xcf\x11\xe0"):
+            raise InputError("old binary .xls files are not read; save the sheet as .xlsx or "
+                             ".csv", file=name)
+        if sheet is not None:
+            raise InputError("--sheet applies to xlsx files only", file=name)
+        table = _read_csv(data, name, max_rows)
+    table.sha256 = sha
+    return table
+
+
+def _read_bytes(p: Path, name: str) -> bytes:
+    """The file's bytes, read once (they are hashed and parsed from memory, so the
+    fingerprint is of exactly what was read). Opened without blocking and checked to be a
+    regular file after opening, so a FIFO or device put in its place is never read."""
+    try:
+        fd = os.open(p, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    except FileNotFoundError:
+        raise InputError("file not found", file=name) from None
+    except IsADirectoryError:
+        raise InputError("not a regular file", file=name) from None
+    except OSError as err:
+        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+    try:
+        st = os.fstat(fd)
+        if not stat.S_ISREG(st.st_mode):
+            raise InputError("not a regular file", file=name)
+        if st.st_size == 0:
+            raise InputError("the file is empty", file=name)
+        if st.st_size > MAX_FILE_BYTES:
+            raise InputError(f"the file is {st.st_size / 2**20:.0f} MiB; the limit is "
+                             f"{MAX_FILE_BYTES // 2**20} MiB", file=name)
+        with os.fdopen(os.dup(fd), "rb") as fh:
+            data = fh.read(st.st_size + 1)  # no larger buffer than the file
+    except OSError as err:
+        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+    finally:
+        os.close(fd)
+    if len(data) > min(st.st_size, MAX_FILE_BYTES):
+        raise InputError("the file changed while it was being read; read it again", file=name)
+    if not data:
+        raise InputError("the file is empty", file=name)
+    return data
 
 
 # ----------------------------------------------------------------------------- xlsx
 
-def _check_zip(p: Path, name: str) -> None:
+def _check_zip(p, name: str) -> None:
     try:
         with zipfile.ZipFile(p) as zf:
             infos = zf.infolist()
@@ -114,7 +141,7 @@ def _check_zip(p: Path, name: str) -> None:
                 "which no real export is (a zip bomb?)", file=name)
 
 
-def _open_workbook(p: Path, name: str, data_only: bool):
+def _open_workbook(p, name: str, data_only: bool):
     import openpyxl  # noqa: PLC0415 - heavy, only for xlsx
     import openpyxl.xml  # noqa: PLC0415
 
@@ -249,7 +276,7 @@ def _values(cells: list[dict]) -> list[object]:
     return values
 
 
-def _read_xlsx(p: Path, name: str, sheet: str | None, max_rows: int) -> RawTable:
+def _read_xlsx(p, name: str, sheet: str | None, max_rows: int) -> RawTable:
     _check_zip(p, name)
     wb = _open_workbook(p, name, data_only=True)
     title: str | None = None
@@ -280,7 +307,7 @@ def _read_xlsx(p: Path, name: str, sheet: str | None, max_rows: int) -> RawTable
 _FORMULA_TAG = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?f[\s/>]")
 
 
-def _has_formulas(p: Path, name: str) -> bool:
+def _has_formulas(p, name: str) -> bool:
     """Whether any XML part holds a formula element (a cheap streaming scan, so that the
     second, formula-keeping read is made only for workbooks that have formulas)."""
     try:
@@ -299,7 +326,7 @@ def _has_formulas(p: Path, name: str) -> bool:
     return False
 
 
-def _find_formulas(p: Path, name: str, title: str, table: RawTable, max_rows: int) -> None:
+def _find_formulas(p, name: str, title: str, table: RawTable, max_rows: int) -> None:
     """Record formula cells (row, col) -> formula text, from a second, formula-keeping read.
 
     Cached values were read already; a formula whose cached value is missing is reported by
@@ -422,11 +449,7 @@ def _records(text: str, delimiter: str, name: str) -> Iterator[tuple[int, list[s
         raise InputError(f"csv syntax error: {err}", file=name, row=reader.line_num) from None
 
 
-def _read_csv(p: Path, name: str, max_rows: int) -> RawTable:
-    try:
-        data = p.read_bytes()
-    except OSError as err:
-        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+def _read_csv(data: bytes, name: str, max_rows: int) -> RawTable:
     if b"\x00" in data[:4096] and not data.startswith((b"\xff\xfe", b"\xfe\xff")):
         raise InputError("this is a binary file, not csv text", file=name)
     text, encoding = _decode(data, name)

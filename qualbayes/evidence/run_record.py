@@ -105,11 +105,11 @@ def _read_bytes(path) -> bytes:
             raise InputError(f"the file is {st.st_size / 2**20:.0f} MiB; a run record is at "
                              f"most {MAX_RECORD_BYTES // 2**20} MiB", file=str(path))
         with os.fdopen(os.dup(fd), "rb") as fh:
-            data = fh.read(MAX_RECORD_BYTES + 1)
+            data = fh.read(st.st_size + 1)  # no larger buffer than the file
     finally:
         os.close(fd)
-    if len(data) > MAX_RECORD_BYTES:
-        raise InputError("the file grew past the size limit while being read", file=str(path))
+    if len(data) > min(st.st_size, MAX_RECORD_BYTES):
+        raise InputError("the file changed while it was being read; read it again", file=str(path))
     return data
 
 

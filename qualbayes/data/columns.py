@@ -15,7 +15,10 @@ from dataclasses import dataclass
 from qualbayes.data.readers import RawTable
 from qualbayes.errors import InputError, OptionError
 
-HEADER_SEARCH_ROWS = 20  # title rows above the header are common in exports
+#: Title rows above the header are common in exports. The header search is bounded: at most
+#: this many rows, each at most readers.MAX_COLUMNS cells wide (the readers refuse wider rows
+#: before keeping them), each cell normalised from at most 200 characters.
+HEADER_SEARCH_ROWS = 20
 
 
 @dataclass(frozen=True)

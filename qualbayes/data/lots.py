@@ -144,7 +144,7 @@ _TOTAL_FORMULAS = ("=SUM(", "=SUBTOTAL(", "=AGGREGATE(")
 
 def _refuse_totals_row(table: RawTable, loc, i: int, lot_raw, fail) -> None:
     """A totals row counted as a lot would double the evidence: refuse it by name."""
-    for key in ("inspected", "defectives"):
+    for key in ("inspected", "defectives") if table.formula_cells else ():
         j = loc.columns[key][0]
         formula = table.formula_cells.get((i, j), "")
         if formula.upper().replace(" ", "").startswith(_TOTAL_FORMULAS):

@@ -26,6 +26,8 @@ import re
 from collections.abc import Iterable
 from dataclasses import dataclass
 
+from qualbayes.data.values import describe
+
 POINT, COMMA = ".", ","
 EXACT_INTEGER = 2**53
 MAX_NUMBER_CHARS = 64
@@ -110,8 +112,6 @@ def decide(cells: Iterable[tuple[object, int, str]]) -> NumberStyle:
 
 def parse_number(value: object, style: NumberStyle = UNDECIDED) -> float:
     """A finite real number read under ``style``; ValueError with a short reason."""
-    from qualbayes.data.values import describe  # noqa: PLC0415
-
     if isinstance(value, bool):
         raise ValueError(f"expected a number, found {describe(value)}")
     if isinstance(value, int):
@@ -166,8 +166,8 @@ def parse_number(value: object, style: NumberStyle = UNDECIDED) -> float:
 
 def parse_whole(value: object, style: NumberStyle = UNDECIDED) -> int:
     """A whole number (a count of units)."""
-    from qualbayes.data.values import describe  # noqa: PLC0415
-
+    if type(value) is str and value.isascii() and value.isdigit() and len(value) <= 15:
+        return int(value)  # the common case
     x = parse_number(value, style)
     if x != math.floor(x):
         raise ValueError(f"expected a whole number of units, found {describe(value)}")

@@ -304,8 +304,10 @@ def remove_set(folder: Path) -> None:
         with contextlib.suppress(OSError):
             os.rmdir(dirpath)
     if os.path.lexists(folder):
-        print(f"qualbayes: note: the earlier set was replaced; files not written by qualbayes "
-              f"were found in it and kept in {folder}", file=sys.stderr)
+        from qualbayes.evidence.terminal import print_text  # noqa: PLC0415
+
+        print_text(f"qualbayes: note: the earlier set was replaced; files not written by "
+                   f"qualbayes were found in it and kept in {folder}", file=sys.stderr)
 
 
 def clean_leftovers(parent: Path) -> list[Path]:

@@ -18,8 +18,8 @@ import pytest
 from scipy import stats
 
 from qualbayes.cli import main
-from qualbayes.evidence.output_set import MARKER  # written with every output set
 from qualbayes.data.life import read_life
+from qualbayes.evidence.output_set import MARKER  # written with every output set
 from qualbayes.inference import SamplerSettings
 from qualbayes.life_analysis import assess_life, weibull_quantities
 from qualbayes.models.weibull import (

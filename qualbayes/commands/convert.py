@@ -61,9 +61,10 @@ def mission(text: str, option: str = "--mission") -> float:
 
     try:
         value = parse_real(str(text))
-    except ValueError:
-        raise OptionError(f"{option} {text!r}: expected a positive number such as 5000"
-                          ) from None
+    except ValueError as err:
+        why = (str(err).replace(" in the file", "") if "could be" in str(err)
+               else "expected a positive number such as 5000")
+        raise OptionError(f"{option} {text!r}: {why}") from None
     if value <= 0:
         raise OptionError(f"{option} {text!r}: the mission time must be positive")
     return value

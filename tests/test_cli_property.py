@@ -10,6 +10,7 @@ life, which always samples, gets a handful of examples.
 
 from __future__ import annotations
 
+import atexit
 import contextlib
 import io
 import os
@@ -39,6 +40,7 @@ def files() -> dict[str, str]:
     """Input files made once: good and bad lots and life data, a FIFO, a device."""
     if not _FILES:
         d = Path(tempfile.mkdtemp(prefix="qb-prop-"))
+        atexit.register(shutil.rmtree, d, True)
         _FILES["lots"] = str(write_csv(d / "lots.csv", ["Lot", "Part", "Inspected", "Defects"],
                                        [["A", "P", 125, 0], ["B", "P", 80, 1],
                                         ["C", "P", 200, 0]]))
@@ -196,6 +198,7 @@ _RECORDS: dict[str, str] = {}
 def records() -> dict[str, str]:
     if not _RECORDS:
         d = Path(tempfile.mkdtemp(prefix="qb-rec-"))
+        atexit.register(shutil.rmtree, d, True)
         assert main(["lots", files()["lots"], "--spec", "2%", "--report", str(d / "r")]) == 0
         good = (d / "r" / "run.json").read_text()
         _RECORDS["good"] = str(d / "r" / "run.json")

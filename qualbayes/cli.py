@@ -5,9 +5,17 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
-from qualbayes.errors import EXIT_INPUT, EXIT_REFUSED, InputError, OptionError, OutputExistsError
+from qualbayes.errors import (
+    EXIT_INPUT,
+    EXIT_INTERNAL,
+    EXIT_REFUSED,
+    InputError,
+    OptionError,
+    OutputExistsError,
+)
 
 #: Each module has ``register(subparsers)``; the parser it adds sets ``func(args) -> int``.
 COMMAND_MODULES = (
@@ -18,8 +26,18 @@ COMMAND_MODULES = (
 )
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with the typed text it echoes in errors escaped for the terminal."""
+
+    def _print_message(self, message, file=None):
+        if message:
+            from qualbayes.evidence.terminal import escape_controls  # noqa: PLC0415
+
+            (file or sys.stderr).write(escape_controls(message))
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="qualbayes",
         description="Bayesian lot acceptance, reliability and demonstration-test decisions "
                     "from inspection and life-test spreadsheets. Decision support only.")
@@ -53,23 +71,30 @@ def main(argv: list[str] | None = None) -> int:
 
     progress.quiet(bool(getattr(args, "json", False)))  # --json: nothing but the document
     previous = _on_sigterm(_terminated)
+    from qualbayes.commands.pipeline import input_paths  # noqa: PLC0415
     from qualbayes.evidence.files import protect_inputs, release_inputs  # noqa: PLC0415
 
-    protect_inputs(getattr(args, "file", None))
+    protect_inputs(*input_paths(args))
     try:
         return int(args.func(args) or 0)
     except (InputError, OptionError) as err:
-        print(f"qualbayes: error: {err}", file=sys.stderr)
-        print("qualbayes: nothing was written.", file=sys.stderr)
+        _say(f"qualbayes: error: {err}")
+        _say("qualbayes: nothing was written.")
         return EXIT_INPUT
     except OutputExistsError as err:
-        print(f"qualbayes: {err}", file=sys.stderr)
+        _say(f"qualbayes: {err}")
         return EXIT_REFUSED
     except OSError as err:  # writing the output failed (disk full, folder removed, ...)
-        print(f"qualbayes: error: cannot write the output: {err}", file=sys.stderr)
-        print("qualbayes: files are written whole or not at all; no partial file was left.",
-              file=sys.stderr)
+        _say(f"qualbayes: error: cannot write the output: {err}")
+        _say("qualbayes: files are written whole or not at all; no partial file was left.")
         return EXIT_INPUT
+    except Exception as err:  # noqa: BLE001 - a bug: no traceback for the user, never exit 0-3
+        if os.environ.get("QUALBAYES_DEBUG"):
+            raise
+        _say(f"qualbayes: internal error ({type(err).__name__}: {str(err)[:300]}). Nothing "
+             "was written: files are written only once every result and page is complete. "
+             "Please report this with the command line (set QUALBAYES_DEBUG=1 for details).")
+        return EXIT_INTERNAL
     except KeyboardInterrupt:
         print("qualbayes: interrupted; no partial file was left (files are written whole "
               "or not at all).", file=sys.stderr)
@@ -77,6 +102,13 @@ def main(argv: list[str] | None = None) -> int:
     finally:
         _on_sigterm(previous)
         release_inputs()
+
+
+def _say(text: str) -> None:
+    """A message on stderr, control characters escaped (file names come from users)."""
+    from qualbayes.evidence.terminal import print_text  # noqa: PLC0415
+
+    print_text(text, file=sys.stderr)
 
 
 def _on_sigterm(handler):

@@ -5,7 +5,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 EXIT_INPUT = 2  # bad input or bad option: nothing was written
-EXIT_REFUSED = 3  # output exists and --force was not given
+EXIT_REFUSED = 3  # output exists and --force was not given, or may never be replaced
+EXIT_INTERNAL = 70  # a bug (BSD EX_SOFTWARE): reported without a traceback, nothing written
 
 
 @dataclass

@@ -7,6 +7,8 @@ the template for the other parts of the package.
 
 from __future__ import annotations
 
+import contextlib
+import signal
 import struct
 import zipfile
 from pathlib import Path
@@ -144,3 +146,23 @@ EXTERNAL_ENTITY = (
 
 def strip_declaration(xml: bytes) -> bytes:
     return xml.split(b"?>", 1)[1] if xml.startswith(b"<?xml") else xml
+
+
+class Hang(BaseException):
+    """Raised by the deadline; a BaseException so no `except Exception` can swallow it."""
+
+
+@contextlib.contextmanager
+def deadline(seconds: int):
+    """Fail instead of hanging. A guard against hangs, not a timing measurement."""
+
+    def on_alarm(signum, frame):
+        raise Hang(f"no answer within {seconds} s")
+
+    old = signal.signal(signal.SIGALRM, on_alarm)
+    signal.alarm(seconds)
+    try:
+        yield
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)

@@ -15,7 +15,7 @@ from __future__ import annotations
 import contextlib
 import io
 import os
-import signal
+import re
 import subprocess
 import sys
 import tempfile
@@ -30,6 +30,7 @@ from hostile_files import (
     BILLION_LAUGHS,
     EXTERNAL_ENTITY,
     SHEET,
+    deadline,
     member_data_offset,
     patch_central_size,
     rezip,
@@ -42,33 +43,13 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from qualbayes.cli import main
-from qualbayes.data.lots import LOT_COLUMNS, LotTable, read_lots, validate_lots
+from qualbayes.data.lots import LOT_COLUMNS, TOTAL_LABELS, LotTable, read_lots, validate_lots
 from qualbayes.data.readers import MAX_COLUMNS, RawTable, read_table
 from qualbayes.data.values import parse_count, parse_real
 from qualbayes.errors import InputError
 
 HEADER = ["Lot", "Inspected", "Defects"]
 ROOT = Path(__file__).resolve().parent.parent
-
-
-class Hang(BaseException):
-    """Raised by the deadline; a BaseException so no `except Exception` can swallow it."""
-
-
-@contextlib.contextmanager
-def deadline(seconds: int):
-    """Fail instead of hanging. A guard against hangs, not a timing measurement."""
-
-    def on_alarm(signum, frame):
-        raise Hang(f"no answer within {seconds} s")
-
-    old = signal.signal(signal.SIGALRM, on_alarm)
-    signal.alarm(seconds)
-    try:
-        yield
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, old)
 
 
 def run_cli(args: list[str]) -> tuple[int, str, str]:
@@ -314,7 +295,7 @@ def test_hidden_sheet_with_another_table_is_not_read(tmp_path):
 def test_formula_with_a_saved_error_value(tmp_path):
     p = xlsx_with_sheet(tmp_path, "div0.xlsx", sheet_xml(
         [HEADER, ["A", 50, 0], ["B", ("f", "C2/0", "#DIV/0!"), 1]]))
-    refused(p, "expected a number, found '#DIV/0!'", row=3, column="Inspected")
+    refused(p, "the spreadsheet error value '#DIV/0!', not a number", row=3, column="Inspected")
 
 
 def test_formulas_read_by_their_saved_values_and_unused_ones_ignored(tmp_path):
@@ -368,19 +349,31 @@ def test_utf16_tab_separated_export_reads(tmp_path):
 
 
 def test_thousands_separators_and_decimal_commas(tmp_path):
+    # "12,000" alone could be twelve (decimal comma) or twelve thousand: refused
     p = tmp_path / "thousands.csv"
-    p.write_text('Lot,Lot Size,Inspected,Defects\nA,"12,000",315,0\nB,12\u00a0000,315,1\n'
-                 "C,12'000,315,2\nD,12\u202f000,1\u202f250,3\n", encoding="utf-8")
-    t = reads(p)
-    assert t.frame["lot_size"].tolist() == [12000] * 4
-    assert t.frame["inspected"].tolist() == [315, 315, 315, 1250]
+    rows = ('Lot,Lot Size,Inspected,Defects\nA,"12,000",315,0\nB,12\u00a0000,315,1\n'
+            "C,12'000,315,2\nD,12\u202f000,1\u202f250,3\n")
+    p.write_text(rows, encoding="utf-8")
+    refused(p, "'12,000' could be 12 or 12,000", row=2, column="Lot Size")
+    # a number written "1,234,567" shows commas group thousands: then "12,000" is 12000
+    p2 = tmp_path / "thousands2.csv"
+    p2.write_text(rows + 'E,"1,234,567",315,0\n', encoding="utf-8")
+    t = reads(p2)
+    assert t.frame["lot_size"].tolist() == [12000] * 4 + [1234567]
+    assert t.frame["inspected"].tolist() == [315, 315, 315, 1250, 315]
+    assert any("decimal point" in n and "'1,234,567'" in n for n in t.notes)
     q = tmp_path / "eu.csv"
     q.write_text("Lot;Lot Size;Inspected;Defects\nA;1.250;125;0\nB;1.250;12,5;0\n",
                  encoding="utf-8")
     refused(q, "whole number of units, found '12,5'", row=3, column="Inspected")
-    r = tmp_path / "dot.csv"  # 1.250 in a comma file is one and a quarter, not 1250
+    r = tmp_path / "dot.csv"  # 1.250 alone: one and a quarter or 1250; never guessed
     r.write_text("Lot,Inspected,Defects\nA,1.250,0\n", encoding="utf-8")
-    refused(r, "whole number of units, found '1.250'", row=2)
+    refused(r, "'1.250' could be 1.25 or 1,250", row=2)
+    # "1.000" is refused just the same (it used to be read as 1), and the delimiter is no
+    # evidence of the decimal mark
+    s = tmp_path / "one.csv"
+    s.write_text("Lot;Inspected;Defects\nA;1.000;0\nB;50;1\n", encoding="utf-8")
+    refused(s, "'1.000' could be 1 or 1,000", row=2, column="Inspected")
 
 
 def test_a_million_rows_are_refused_by_the_row_limit_in_bounded_memory(tmp_path):
@@ -412,10 +405,15 @@ def test_long_cells_do_not_hang(tmp_path):
     refused(p, "(100,001 characters)", row=2, column="Inspected", seconds=20)
     # one long line of quote-delimiter pairs took csv.Sniffer tens of seconds per 64 KB
     q = tmp_path / "sniff.csv"
-    q.write_text("Lot,Inspected,Defects,Note\nA,50,0," + '"a,' * 20_000 + "\nB,50,1,x\n",
+    q.write_text("Lot,Inspected,Defects,Note\nA,50,0," + '"a,' * 1_000 + "\nB,50,1,x\n",
                  encoding="utf-8")
     with deadline(20):
         assert reads(q).frame["lot"].tolist() == ["A", "B"]
+    # 20,000 pairs split into 10,004 cells: over the column limit, refused at once
+    q.write_text("Lot,Inspected,Defects,Note\nA,50,0," + '"a,' * 20_000 + "\nB,50,1,x\n",
+                 encoding="utf-8")
+    refused(q, "at most 1,024 columns", row=2,
+            seconds=20)
     r = tmp_path / "field.csv"
     r.write_text('Lot,Inspected,Defects\nA,50,0\nB,"' + "z" * 200_000 + '",1\n',
                  encoding="utf-8")
@@ -602,12 +600,16 @@ def test_property_validate_lots_returns_valid_lots_or_input_error(table):
     sized = f["lot_size"].notna()
     assert (f.loc[sized, "lot_size"] >= f.loc[sized, "inspected"]).all()
     assert f["row"].is_monotonic_increasing and f["row"].min() > lots.header_row
+    from qualbayes.data.columns import locate, number_style
+
+    style = number_style(table, locate(table, LOT_COLUMNS),
+                         ("inspected", "defectives", "lot_size"))
     header = table.rows[table.row_numbers.index(lots.header_row)]
     col = {k: header.index(v) if v in header else None for k, v in lots.headers.items()}
     for _, rec in f.iterrows():
         raw = table.rows[table.row_numbers.index(rec["row"])]
         for key in ("inspected", "defectives"):
-            assert rec[key] == parse_count(raw[col[key]], table.decimal_comma)
+            assert rec[key] == parse_count(raw[col[key]], style)
 
 
 @settings(max_examples=2000, deadline=None, database=None)
@@ -622,6 +624,14 @@ def test_property_number_parsers_raise_only_value_error(text):
             assert x == x and abs(x) < float("inf")
             if parse is parse_count:
                 assert isinstance(x, int) and abs(x) <= 2**53
+
+
+def _looks_like_totals(lots) -> bool:
+    """The last lot's counts equal the sums over at least three lots above it: the reader
+    refuses it as a totals row (tested in test_totals_row_by_arithmetic)."""
+    *others, last = lots
+    return len(others) >= 3 and last[1] == sum(o[1] for o in others) and (
+        last[2] == sum(o[2] for o in others))
 
 
 def _format_count(value: int, style: str) -> str:
@@ -639,8 +649,8 @@ LOT_ID = st.text(st.characters(categories=("L", "N", "Pd", "Zs"), exclude_charac
 
 @st.composite
 def lot_lists(draw):
-    ids = draw(st.lists(LOT_ID.filter(lambda s: s and s.casefold() not in
-                                      {"total", "totals", "sum", "subtotal", "overall"}),
+    ids = draw(st.lists(LOT_ID.filter(lambda s: s and " ".join(s.split()).casefold() not in
+                                      TOTAL_LABELS),
                         min_size=1, max_size=12, unique=True))
     out = []
     for lot in ids:
@@ -669,6 +679,11 @@ def test_property_csv_round_trip(lots, delimiter, style, encoding, crlf):
     header = ["Lot No.", "Qty Inspected", "Nonconforming", "Lot Size"]
     rows = [[lot, _format_count(n, style), str(x), "" if s is None else _format_count(s, style)]
             for lot, n, x, s in lots]
+    from qualbayes.data.numbers import telling
+
+    cells = [c for r in rows for c in r[1:]]
+    ambiguous = [c for c in cells if re.fullmatch(r"[1-9]\d{0,2}[.,]\d{3}", c)]
+    told = any(telling(c) for c in cells)
     with tempfile.TemporaryDirectory() as d:
         p = Path(d) / "gen.csv"
         with open(p, "w", encoding=encoding, newline="") as fh:
@@ -676,6 +691,14 @@ def test_property_csv_round_trip(lots, delimiter, style, encoding, crlf):
 
             csv.writer(fh, delimiter=delimiter, lineterminator="\r\n" if crlf else "\n"
                        ).writerows([header, *rows])
+        if ambiguous and not told:  # "1,250" with nothing telling the decimal mark
+            with pytest.raises(InputError, match="could be"):
+                read_lots(p)
+            return
+        if _looks_like_totals(lots):
+            with pytest.raises(InputError, match="exactly the sums"):
+                read_lots(p)
+            return
         t = read_lots(p)
     f = t.frame
     assert f["lot"].tolist() == [lot for lot, *_ in lots]
@@ -704,6 +727,10 @@ def test_property_xlsx_round_trip(lots, title_rows, blank_rows):
     with tempfile.TemporaryDirectory() as d:
         p = Path(d) / "gen.xlsx"
         wb.save(p)
+        if _looks_like_totals(lots):
+            with pytest.raises(InputError, match="exactly the sums"):
+                read_lots(p)
+            return
         t = read_lots(p)
     assert t.header_row == title_rows + 1
     assert t.frame["lot"].tolist() == [lot for lot, *_ in lots]

@@ -51,11 +51,21 @@ def test_title_rows_above_header_hidden_sheet_and_sheet_option(tmp_path):
 
 
 def test_semicolon_csv_with_bom_and_thousands_separators(tmp_path):
+    # "12.000" alone could be twelve or twelve thousand: with no other number telling the
+    # decimal mark, it is refused with its row and column (issue 12: never guess)
     p = tmp_path / "eu.csv"
     p.write_bytes("\ufeffLot;Lot Size;Inspected;Defects\nA;\"12.000\";315;0\nB;1 250;125;1\n"
                   .encode())
-    t = read_lots(p)
-    assert t.frame["lot_size"].tolist() == [12000, 1250]
+    with pytest.raises(InputError, match="could be 12 or 12,000") as info:
+        read_lots(p)
+    assert info.value.row == 2 and info.value.column == "Lot Size"
+    # "1.250.000" can only group thousands with dots: the file's decimal mark is the comma
+    q = tmp_path / "eu2.csv"
+    q.write_bytes("\ufeffLot;Lot Size;Inspected;Defects\nA;\"12.000\";315;0\nB;1 250;125;1\n"
+                  "C;1.250.000;315;0\n".encode())
+    t = read_lots(q)
+    assert t.frame["lot_size"].tolist() == [12000, 1250, 1250000]
+    assert any("decimal comma" in n and "'1.250.000' in row 4" in n for n in t.notes)
 
 
 def test_windows_1252_csv_is_read(tmp_path):

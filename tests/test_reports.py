@@ -133,8 +133,10 @@ b.setAttribute('data-overflow',String(d.scrollWidth-d.clientWidth));});
 def _probed_copy(html: Path, tmp_path: Path) -> Path:
     text = html.read_text(encoding="utf-8")
     assert "<script" not in text.lower()
-    assert "script-src" not in text and "default-src 'none'" in text  # so no script runs
-    text = text.replace("default-src 'none';", "default-src 'none'; script-src 'unsafe-inline';")
+    from qualbayes.evidence.html import CSP
+
+    assert CSP in text and "script-src 'none'" in CSP  # so no script runs
+    text = text.replace(CSP, CSP.replace("script-src 'none'", "script-src 'unsafe-inline'"))
     copy = tmp_path / "probed.html"
     copy.write_text(text.replace("</body>", PROBE + "</body>"), encoding="utf-8")
     return copy
@@ -147,6 +149,14 @@ def _white_right_margin(shot: Path, width: int) -> bool:
 
     img = mpimg.imread(shot)
     return img.shape[1] == width and bool((img[:, -8:, :3] > 0.97).all())
+
+
+def test_report_has_no_script_and_its_policy_forbids_any(history_report):
+    html = (history_report / "report.html").read_text()
+    assert "<script" not in html.lower()
+    policy = re.search(r'Content-Security-Policy" content="([^"]*)"', html)[1]
+    assert re.search(r"(^|; )script-src 'none'(;|$)", policy)
+    assert "default-src 'none'" in policy
 
 
 @needs_browser

@@ -1,9 +1,12 @@
-"""Options shared by the commands, and emitting a finished run."""
+"""Options shared by the commands, and emitting a finished run.
+
+Commands run through :mod:`qualbayes.commands.pipeline`; the helpers below stay for callers
+written against the earlier layout and go through the same safe target checks and writes.
+"""
 
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
 from qualbayes.caution import CAUTION
@@ -36,7 +39,7 @@ def add_input_options(p: argparse.ArgumentParser,
 
 def add_output_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--confidence", default="0.95",
-                   help="confidence C for bounds and decisions")
+                   help="confidence C for bounds and decisions, strictly between 0.5 and 1")
     p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
     p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
     p.add_argument("--out", metavar="DIR", help="write the evidence workbook into DIR")
@@ -82,7 +85,10 @@ def write_report(args, record: dict) -> str | None:
 
 
 def print_text(text: str) -> None:
-    sys.stdout.write(text.rstrip("\n") + "\n")
+    """Print to the terminal with control characters escaped."""
+    from qualbayes.evidence.terminal import print_text as _print  # noqa: PLC0415
+
+    _print(text)
 
 
 def caution_line() -> str:
@@ -96,11 +102,12 @@ def out_path(args, filename: str) -> Path | None:
 def emit(args, record: dict, text: str, written: list) -> None:
     """Finish a run: write the report if asked, then print the JSON document (without the
     posterior draws) or the text with the files written."""
-    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
+    from qualbayes.evidence.jsonout import dumps_for_terminal, without_draws  # noqa: PLC0415
+    from qualbayes.evidence.terminal import print_text as _print  # noqa: PLC0415
 
     report_note = write_report(args, record)
     if args.json:
-        print_text(dumps(without_draws(record)))
+        _print(dumps_for_terminal(without_draws(record)), raw=True)
         return
     print_text(text)
     if written:

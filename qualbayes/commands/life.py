@@ -3,15 +3,7 @@ requirement at the mission time?"""
 
 from __future__ import annotations
 
-from qualbayes.commands.common import (
-    HelpFormatter,
-    add_input_options,
-    add_output_options,
-    check_report,
-    emit,
-    out_targets,
-    stamp,
-)
+from qualbayes.commands.common import HelpFormatter, add_input_options, add_output_options
 from qualbayes.commands.prior_options import add_prior_options
 
 LIFE_COLUMNS_EXAMPLE = "time=Op Hours,status=Condition,unit=Tag No"
@@ -50,78 +42,70 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-def _mission(text: str) -> float:
-    from qualbayes.data.values import parse_real  # noqa: PLC0415
-    from qualbayes.errors import OptionError  # noqa: PLC0415
-
-    try:
-        value = parse_real(str(text))
-    except ValueError:
-        raise OptionError(f"--mission {text!r}: expected a positive number such as 5000"
-                          ) from None
-    if value <= 0:
-        raise OptionError(f"--mission {text!r}: the mission time must be positive")
-    return value
-
-
 def run(args) -> int:
-    from qualbayes.commands.prior_options import life_prior, life_prior_evidence  # noqa: PLC0415
-    from qualbayes.data.life import parse_units, read_life  # noqa: PLC0415
-    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
-    from qualbayes.evidence.life_record import life_record, life_text  # noqa: PLC0415
-    from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
+    from qualbayes.commands import convert  # noqa: PLC0415
+    from qualbayes.commands.pipeline import Command, execute  # noqa: PLC0415
     from qualbayes.models.weibull import make_prior  # noqa: PLC0415
-    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
-    from qualbayes.questions import parse_probability  # noqa: PLC0415
 
-    mission = _mission(args.mission)
-    target = parse_probability(args.target, "--target")
-    confidence = parse_probability(args.confidence, "--confidence")
-    prior = make_prior(args.shape_prior, args.blife_prior, args.reliability_prior)
-    units = parse_units(args.units)
-    prior, setup = life_prior(args, prior)  # --believe, --earlier (file read here)
-    targets = _targets(args)
-    check_targets(targets, args.force)
-    check_report(args)
-    data = read_life(args.file, sheet=args.sheet, columns=args.columns,
-                     max_rows=args.max_rows, units=units, groups=args.group)
-    stats = {g: st for g, (_, st) in group_data(data).items()}
-    check_prior_use(data, stats, prior)  # refuse before the sampler starts
-    figures = []
-    if targets:
-        from pathlib import Path  # noqa: PLC0415
+    mission = convert.mission(args.mission)
+    target = convert.probability(args.target, "--target")
+    confidence = convert.confidence(args.confidence)
+    convert.seed(args.seed)
+    convert.max_rows(args.max_rows)
+    base_prior = make_prior(args.shape_prior, args.blife_prior, args.reliability_prior)
+    units = convert.units(args.units)
 
-        for _, prob_name, rel_name in figure_names(data.groups):
-            figures += [Path(args.out) / prob_name, Path(args.out) / rel_name]
-        check_targets(figures, args.force)
-    sha = sha256_file(args.file)
-    result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
-    record = life_record(result, data, sha, command_line(args.argv), versions())
-    record.update(life_prior_evidence(args, result, data, prior, setup))
-    stamp(record, args)
-    written = _write(record, data, targets, args.force) if targets else []
-    emit(args, record, "" if args.json else life_text(record), written)
-    return 0
+    def compute() -> dict:
+        from qualbayes.commands.prior_options import (  # noqa: PLC0415
+            life_prior,
+            life_prior_evidence,
+        )
+        from qualbayes.data.life import read_life  # noqa: PLC0415
+        from qualbayes.evidence.life_record import life_record  # noqa: PLC0415
+        from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
+        from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+
+        prior, setup = life_prior(args, base_prior)  # --earlier read after the target checks
+        data = read_life(args.file, sheet=args.sheet, columns=args.columns,
+                         max_rows=args.max_rows, units=units, groups=args.group)
+        stats = {g: st for g, (_, st) in group_data(data).items()}
+        check_prior_use(data, stats, prior)  # refuse before the sampler starts
+        sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
+        result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
+        record = life_record(result, data, sha, command_line(args.argv), versions())
+        record.update(life_prior_evidence(args, result, data, prior, setup))
+        return record
+
+    def text(record: dict) -> str:
+        from qualbayes.evidence.life_record import life_text  # noqa: PLC0415
+
+        return life_text(record)
+
+    return execute(args, Command(compute, text, lambda record: _evidence(record, args)))
 
 
-def _targets(args):
-    return out_targets(args, WORKBOOK, RECORD, FIGURE)
-
-
-def _write(record, data, targets, force) -> list:
-    from qualbayes.evidence.files import write_text_atomic  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
-    from qualbayes.evidence.life_plots import draw_all  # noqa: PLC0415
+def _evidence(record: dict, args) -> dict:
+    """The files of --out DIR: workbook, run record, both figures of every group with an
+    answer and, with a prior option, the prior figure; written as one group."""
+    from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
+    from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
+    from qualbayes.evidence.life_plots import (  # noqa: PLC0415
+        draw_probability,
+        draw_reliability,
+        figure_names,
+    )
     from qualbayes.evidence.life_record import life_sheets  # noqa: PLC0415
-    from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
+    from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    figures = draw_all(record, targets[0].parent, force)
-    if len(targets) > 2:  # the prior figure
-        from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
-        from qualbayes.evidence.files import write_atomic  # noqa: PLC0415
-
-        write_atomic(targets[2], figure_file(record), force)
-    write_workbook(targets[0], life_sheets(record, data), force=force)
-    write_text_atomic(targets[1], dumps(without_draws(record)), force=force)
-    return [*targets, *figures]
+    files = {WORKBOOK: workbook_writer(life_sheets(record)),
+             RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
+    q = record["question"]
+    names = figure_names([g["group"] for g in record["groups"]])
+    for group, (_, prob_name, rel_name) in zip(record["groups"], names, strict=True):
+        if group["plot"] is None:
+            continue
+        files[prob_name] = lambda p, g=group: draw_probability(g, q, p, force=True)
+        files[rel_name] = lambda p, g=group: draw_reliability(g, q, p, force=True)
+    if used(args):
+        files[FIGURE] = figure_file(record)
+    return files

@@ -2,15 +2,7 @@
 
 from __future__ import annotations
 
-from qualbayes.commands.common import (
-    HelpFormatter,
-    add_input_options,
-    add_output_options,
-    check_report,
-    emit,
-    out_targets,
-    stamp,
-)
+from qualbayes.commands.common import HelpFormatter, add_input_options, add_output_options
 from qualbayes.commands.prior_options import add_prior_options
 
 WORKBOOK = "lot_decisions.xlsx"
@@ -35,56 +27,53 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    from qualbayes.acceptance import assess_lots  # noqa: PLC0415
-    from qualbayes.commands.prior_options import lot_prior, lot_prior_evidence  # noqa: PLC0415
-    from qualbayes.data.lots import read_lots  # noqa: PLC0415
-    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.evidence.lots_record import (  # noqa: PLC0415
-        lots_record,
-        lots_text,
-    )
-    from qualbayes.evidence.numbers import rate_unit_of  # noqa: PLC0415
-    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
-    from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
+    from qualbayes.commands import convert  # noqa: PLC0415
+    from qualbayes.commands.pipeline import Command, execute  # noqa: PLC0415
 
-    spec = parse_rate(args.spec)
-    confidence = parse_probability(args.confidence, "--confidence")
-    prior, setup = lot_prior(args)
-    targets = _targets(args)
-    check_targets(targets, args.force)
-    check_report(args)
-    data = read_lots(args.file, sheet=args.sheet, columns=args.columns, max_rows=args.max_rows)
-    sha = sha256_file(args.file)
-    result = assess_lots(data, spec, confidence, prior, seed=args.seed)
-    record = lots_record(result, data, sha, command_line(args.argv), versions())
-    record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
-    record["question"]["rate_unit"] = rate_unit_of(args.spec)
-    stamp(record, args)
-    if targets:
-        _write(record, data, targets, args.force)
-    emit(args, record, "" if args.json else lots_text(record), targets)
-    return 0
+    spec = convert.rate(args.spec)
+    confidence = convert.confidence(args.confidence)
+    convert.seed(args.seed)
+    convert.max_rows(args.max_rows)
+
+    def compute() -> dict:
+        from qualbayes.acceptance import assess_lots  # noqa: PLC0415
+        from qualbayes.commands.prior_options import (  # noqa: PLC0415
+            lot_prior,
+            lot_prior_evidence,
+        )
+        from qualbayes.data.lots import read_lots  # noqa: PLC0415
+        from qualbayes.evidence.lots_record import lots_record  # noqa: PLC0415
+        from qualbayes.evidence.numbers import rate_unit_of  # noqa: PLC0415
+        from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+
+        prior, setup = lot_prior(args)  # --earlier is read here, after the target checks
+        data = read_lots(args.file, sheet=args.sheet, columns=args.columns,
+                         max_rows=args.max_rows)
+        sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
+        result = assess_lots(data, spec, confidence, prior, seed=args.seed)
+        record = lots_record(result, data, sha, command_line(args.argv), versions())
+        record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
+        record["question"]["rate_unit"] = rate_unit_of(args.spec)
+        return record
+
+    def text(record: dict) -> str:
+        from qualbayes.evidence.lots_record import lots_text  # noqa: PLC0415
+
+        return lots_text(record)
+
+    return execute(args, Command(compute, text, lambda record: _evidence(record, args)))
 
 
-def _targets(args):
-    return out_targets(args, WORKBOOK, RECORD, FIGURE)
-
-
-def _write(record, data, targets, force) -> None:
-    """The workbook and its run record are written as one group: both complete under
-    temporary names, then renamed into place, so a killed run never leaves a new workbook
-    beside an old record."""
-    from qualbayes.evidence.files import write_group  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
-    from qualbayes.evidence.lots_record import lots_sheets, without_draws  # noqa: PLC0415
+def _evidence(record: dict, args) -> dict:
+    """The files of --out DIR: the workbook, its run record and, with a prior option, the
+    prior figure (all rendered from the record; written as one group)."""
+    from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
+    from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
+    from qualbayes.evidence.lots_record import lots_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    text = dumps(without_draws(record))
-    figure = []
-    if len(targets) > 2:
-        from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
-
-        figure = [(targets[2], figure_file(record))]
-    write_group([(targets[0], workbook_writer(lots_sheets(record, data))),
-                 (targets[1], lambda p: p.write_text(text, encoding="utf-8")), *figure],
-                force=force)
+    files = {WORKBOOK: workbook_writer(lots_sheets(record)),
+             RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
+    if used(args):
+        files[FIGURE] = figure_file(record)
+    return files

@@ -10,10 +10,7 @@ All answers are closed forms or exact sums (scipy); only ``--history`` runs the 
 
 from __future__ import annotations
 
-from pathlib import Path
-
-from qualbayes.commands.common import check_report, write_report
-from qualbayes.commands.plan_text import (  # noqa: F401 - importable from here as before
+from qualbayes.commands.convert import (  # noqa: F401 - importable from here as before
     optional_probability,
     parse_failures,
     parse_gamma,
@@ -39,28 +36,41 @@ def register(sub) -> None:
 # --------------------------------------------------------------------------- running
 
 def run(args) -> int:
-    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
+    from qualbayes.commands import convert  # noqa: PLC0415
+    from qualbayes.commands.pipeline import Command, check_outputs, execute  # noqa: PLC0415
 
     kind = args.plan_kind
+    convert.seed(args.seed)
+    check_outputs(args)  # before --earlier / --history are read
     build = _BUILDERS[kind](args)  # parses and checks every option: nothing computed yet
-    targets = _targets(args, kind, build["curves"])
-    check_targets(targets.values(), args.force)
-    check_report(args)
-    history = None
-    if build.get("history_file"):
-        from qualbayes.planning.history import learn_prior  # noqa: PLC0415
 
-        history = learn_prior(build["history_file"], part=args.part, sheet=args.sheet,
-                              columns=args.columns, seed=args.seed)
-    record = build["make"](history)
-    if "prior_setup" in build:
-        from qualbayes.commands.prior_options import plan_prior_evidence  # noqa: PLC0415
+    def compute() -> dict:
+        from qualbayes.provenance import command_line, versions  # noqa: PLC0415
 
-        analysis = build["analysis"]
-        analysis = history.prior if analysis == "history" and history else analysis
-        record.update(plan_prior_evidence(args, kind, record, build["prior_setup"], analysis))
-    _finish(record, args, targets)
-    return 0
+        history = None
+        if build.get("history_file"):
+            from qualbayes.planning.history import learn_prior  # noqa: PLC0415
+
+            history = learn_prior(build["history_file"], part=args.part, sheet=args.sheet,
+                                  columns=args.columns, seed=args.seed)
+        record = build["make"](history)
+        if "prior_setup" in build:
+            from qualbayes.commands.prior_options import plan_prior_evidence  # noqa: PLC0415
+
+            analysis = build["analysis"]
+            analysis = history.prior if analysis == "history" and history else analysis
+            record.update(plan_prior_evidence(args, kind, record, build["prior_setup"],
+                                              analysis))
+        record["command"] = command_line(args.argv)
+        record["versions"] = versions()
+        return record
+
+    def text(record: dict) -> str:
+        from qualbayes.evidence.plan_record import plan_text  # noqa: PLC0415
+
+        return plan_text(record)
+
+    return execute(args, Command(compute, text, lambda record: _evidence(record, args)))
 
 
 def _history_use(args, prior_text, option, on_reliability=True):
@@ -241,62 +251,20 @@ def _sampling(args) -> dict:
 _BUILDERS = {"attribute": _attribute, "life": _life, "mtbf": _mtbf, "sampling": _sampling}
 
 
-def _targets(args, kind: str, curves: list[str]) -> dict[str, Path]:
-    if not args.out:
-        return {}
-    out = Path(args.out)
-    t = {"record": out / RECORD.format(kind=kind), "workbook": out / WORKBOOK.format(kind=kind)}
-    for c in curves:
-        t[c] = out / FIGURE.format(kind=kind, curve=c)
-    from qualbayes.commands.prior_options import used  # noqa: PLC0415
-
-    if used(args):
-        t["prior"] = out / FIGURE.format(kind=kind, curve="prior")
-    return t
-
-
-def _finish(record: dict, args, targets: dict[str, Path]) -> None:
-    from qualbayes.commands.common import print_text, stamp  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
-    from qualbayes.evidence.plan_record import plan_text  # noqa: PLC0415
-    from qualbayes.provenance import command_line, versions  # noqa: PLC0415
-
-    record["command"] = command_line(args.argv)
-    record["versions"] = versions()
-    stamp(record, args)
-    written = []
-    if targets:
-        written = _write(record, targets, args.force)
-    report_note = write_report(args, record)
-    if report_note:
-        written.append(report_note)
-    if args.json:
-        print_text(dumps(record))
-    else:
-        print_text(plan_text(record))
-        if written:
-            print_text("evidence written: " + ", ".join(str(p) for p in written))
-
-
-def _write(record: dict, targets: dict[str, Path], force: bool) -> list[Path]:
-    from qualbayes.evidence.files import write_atomic, write_text_atomic  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
+def _evidence(record: dict, args) -> dict:
+    """The files of --out DIR: run record, workbook, curve figures (drawn in memory) and,
+    with a prior option, the prior figure; written as one group."""
+    from qualbayes.commands.pipeline import figure_writer, record_writer  # noqa: PLC0415
+    from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
     from qualbayes.evidence.plan_plots import plan_figures  # noqa: PLC0415
     from qualbayes.evidence.plan_record import plan_sheets  # noqa: PLC0415
-    from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
+    from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    figures = plan_figures(record)  # drawn in memory first: nothing half-written on failure
-    sheets = plan_sheets(record)
-    text = dumps(record)
-    written = []
-    for name, png in figures.items():
-        path = targets[name]
-        write_atomic(path, lambda p, png=png: p.write_bytes(png), force)
-        written.append(path)
-    if "prior" in targets:
-        from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
-
-        written.append(write_atomic(targets["prior"], figure_file(record), force))
-    written.append(write_workbook(targets["workbook"], sheets, force=force))
-    written.append(write_text_atomic(targets["record"], text, force=force))
-    return written
+    kind = args.plan_kind
+    files = {RECORD.format(kind=kind): record_writer(record, draws=True),
+             WORKBOOK.format(kind=kind): workbook_writer(plan_sheets(record))}
+    for name, png in plan_figures(record).items():
+        files[FIGURE.format(kind=kind, curve=name)] = figure_writer(png)
+    if used(args):
+        files[FIGURE.format(kind=kind, curve="prior")] = figure_file(record)
+    return files

@@ -1,5 +1,5 @@
 """The options of ``qualbayes plan ...`` (argparse only; the texts are read by
-:mod:`qualbayes.commands.plan_text`)."""
+:mod:`qualbayes.commands.convert`)."""
 
 from __future__ import annotations
 

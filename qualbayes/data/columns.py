@@ -15,7 +15,10 @@ from dataclasses import dataclass
 from qualbayes.data.readers import RawTable
 from qualbayes.errors import InputError, OptionError
 
-HEADER_SEARCH_ROWS = 20  # title rows above the header are common in exports
+#: Title rows above the header are common in exports. The header search is bounded: at most
+#: this many rows, each at most readers.MAX_COLUMNS cells wide (the readers refuse wider rows
+#: before keeping them), each cell normalised from at most 200 characters.
+HEADER_SEARCH_ROWS = 20
 
 
 @dataclass(frozen=True)
@@ -146,3 +149,24 @@ def cell(table: RawTable, located: Located, i: int, key: str) -> object:
                          file=table.file, sheet=table.sheet, row=table.row_numbers[i],
                          column=located.columns[key][1])
     return row[j] if j < len(row) else None
+
+
+def number_style(table: RawTable, located: Located, keys: tuple[str, ...]):
+    """The decimal mark of the file, decided from every cell of its number columns
+    (:func:`qualbayes.data.numbers.decide`); two that disagree are refused."""
+    from qualbayes.data.numbers import decide  # noqa: PLC0415
+
+    cols = [(located.columns[k][0], located.columns[k][1]) for k in keys
+            if k in located.columns]
+
+    def cells():
+        for i in range(located.first_data, len(table.rows)):
+            row = table.rows[i]
+            for j, name in cols:
+                if j < len(row) and isinstance(row[j], str):
+                    yield row[j], table.row_numbers[i], name
+
+    try:
+        return decide(cells())
+    except ValueError as err:
+        raise table.error(str(err)) from None

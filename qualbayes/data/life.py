@@ -25,7 +25,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from qualbayes.data.columns import Column, cell, locate, parse_mapping
+from qualbayes.data.columns import Column, cell, locate, number_style, parse_mapping
 from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
 from qualbayes.data.values import describe, is_blank, parse_real, parse_text
 from qualbayes.errors import InputError, OptionError
@@ -71,6 +71,7 @@ class LifeTable:
     headers: dict[str, str]
     notes: list[str]
     units: str = ""
+    sha256: str = ""  # of exactly the bytes read ("" for a table built in memory)
 
     @property
     def groups(self) -> list[str]:
@@ -117,6 +118,7 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
                   groups: list[str] | None = None) -> LifeTable:
     loc = locate(table, LIFE_COLUMNS, mapping)
     headers = {k: v[1] for k, v in loc.columns.items()}
+    style = number_style(table, loc, ("time", "seen_working", "found_failed"))
     has_group = "group" in loc.columns
     records = []
     seen: dict[tuple[str, str], int] = {}
@@ -161,7 +163,7 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
             status = parse_status(status_raw)
         except ValueError as err:
             raise fail(str(err), "status") from None
-        times = {k: _time(get(k), table.decimal_comma, fail, k, allow_zero=k == "seen_working")
+        times = {k: _time(get(k), style, fail, k, allow_zero=k == "seen_working")
                  for k in ("time", "seen_working", "found_failed")}
         kind, lower, upper = _classify(status, times, fail)
         records.append((unit, group, kind, lower, upper, rownum))
@@ -169,7 +171,7 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
         raise table.error("no units found below the header", row=loc.header_row)
     frame = pd.DataFrame.from_records(
         records, columns=["unit", "group", "kind", "lower", "upper", "row"])
-    notes = list(table.notes)
+    notes = list(table.notes) + ([style.note()] if style.note() else [])
     if groups:
         present = set(frame["group"])
         for g in groups:
@@ -179,14 +181,15 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
                 raise InputError(f"group {g!r} has no units in the file ({where}; groups "
                                  f"present: {names})", file=table.file, sheet=table.sheet)
         frame = frame[frame["group"].isin(groups)].reset_index(drop=True)
-    return LifeTable(frame, table.file, table.sheet, loc.header_row, headers, notes, units)
+    return LifeTable(frame, table.file, table.sheet, loc.header_row, headers, notes, units,
+                     table.sha256)
 
 
-def _time(raw, decimal_comma: bool, fail, key: str, allow_zero: bool) -> float | None:
+def _time(raw, style, fail, key: str, allow_zero: bool) -> float | None:
     if is_blank(raw):
         return None
     try:
-        t = parse_real(raw, decimal_comma)
+        t = parse_real(raw, style)
     except ValueError as err:
         raise fail(str(err), key) from None
     if t < 0:

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from qualbayes.data.columns import Column, cell, locate, parse_mapping
+from qualbayes.data.columns import Column, cell, locate, number_style, parse_mapping
 from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
 from qualbayes.data.values import describe, is_blank, parse_count, parse_date, parse_text
 from qualbayes.errors import InputError
@@ -40,6 +40,7 @@ class LotTable:
     header_row: int
     headers: dict[str, str]  # key -> header as written in the file
     notes: list[str]
+    sha256: str = ""  # of exactly the bytes read ("" for a table built in memory)
 
 
 def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
@@ -53,6 +54,7 @@ def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
 def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> LotTable:
     loc = locate(table, LOT_COLUMNS, mapping)
     headers = {k: v[1] for k, v in loc.columns.items()}
+    style = number_style(table, loc, ("inspected", "defectives", "lot_size"))
     records = []
     seen: dict[str, int] = {}
     for i in range(loc.first_data, len(table.rows)):
@@ -86,7 +88,7 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
                     continue
                 raise fail(f"{key} is empty", key)
             try:
-                value = parse_count(raw, table.decimal_comma)
+                value = parse_count(raw, style)
             except ValueError as err:
                 raise fail(str(err), key) from None
             if value < 0:
@@ -111,27 +113,45 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
         records.append((lot, part, supplier, date, big_n, n, x, rownum))
     if not records:
         raise table.error("no lots found below the header", row=loc.header_row)
+    _refuse_arithmetic_total(table, records, headers)
+    notes = list(table.notes) + ([style.note()] if style.note() else [])
     frame = pd.DataFrame.from_records(
         records, columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
                           "defectives", "row"])
     frame["lot_size"] = frame["lot_size"].astype("Int64")
-    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, list(table.notes))
+    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes,
+                    table.sha256)
 
 
-#: Lot ids that label a summary row rather than a lot (common practice in exports; no source).
-TOTAL_LABELS = frozenset({"total", "totals", "grand total", "subtotal", "sum", "overall"})
+#: Lot ids that label a summary row rather than a lot, in the languages of plant exports
+#: (common practice in exports; no source). Compared case-folded, spaces collapsed.
+TOTAL_LABELS = frozenset({
+    "total", "totals", "grand total", "subtotal", "sub-total", "sum", "overall", "all lots",
+    "sum total", "total lots",
+    "summe", "gesamt", "gesamtsumme", "zwischensumme", "insgesamt", "alle lose",  # de
+    "total général", "total general", "sous-total", "somme", "tous les lots",  # fr, es
+    "totale", "totale generale", "subtotale", "somma",  # it
+    "suma", "suma total", "subtotal general", "todos los lotes",  # es
+    "totaal", "subtotaal", "som",  # nl
+    "razem", "suma częściowa", "ogółem",  # pl
+    "celkem", "součet", "összesen", "összeg",  # cs, hu
+    "summa", "yhteensä", "i alt", "totalt", "samtals",  # sv, fi, da, no, is
+    "итого", "всего", "сумма",  # ru
+    "toplam", "σύνολο", "合計", "小計", "总计", "合计", "小计", "總計", "합계", "총계",
+})
 _TOTAL_FORMULAS = ("=SUM(", "=SUBTOTAL(", "=AGGREGATE(")
 
 
 def _refuse_totals_row(table: RawTable, loc, i: int, lot_raw, fail) -> None:
     """A totals row counted as a lot would double the evidence: refuse it by name."""
-    for key in ("inspected", "defectives"):
+    for key in ("inspected", "defectives") if table.formula_cells else ():
         j = loc.columns[key][0]
         formula = table.formula_cells.get((i, j), "")
         if formula.upper().replace(" ", "").startswith(_TOTAL_FORMULAS):
             raise fail(f"the cell holds {formula!r}, a total over other rows, not a lot's "
                        "count; delete the totals row", key)
-    if isinstance(lot_raw, str) and lot_raw.strip().casefold() in TOTAL_LABELS:
+    if isinstance(lot_raw, str) and " ".join(lot_raw.split()).casefold().rstrip(":") in (
+            TOTAL_LABELS):
         raise fail(f"lot id {lot_raw.strip()!r} looks like a totals row, not a lot; delete "
                    "the row", "lot")
 
@@ -143,3 +163,20 @@ def _optional_text(raw, fail, key: str) -> str | None:
         return parse_text(raw)
     except ValueError as err:
         raise fail(str(err), key) from None
+
+
+def _refuse_arithmetic_total(table: RawTable, records: list, headers: dict) -> None:
+    """The last row is a totals row when its units inspected and defectives equal the sums
+    over all the rows above it (at least three): counted as a lot it would double the
+    evidence, whatever its label says."""
+    if len(records) < 4:
+        return
+    *others, last = records
+    n_sum = sum(r[5] for r in others)
+    x_sum = sum(r[6] for r in others)
+    if last[5] == n_sum and last[6] == x_sum:
+        raise table.error(
+            f"lot {last[0]!r} has {last[5]:,} units inspected and {last[6]:,} defectives, "
+            f"exactly the sums over the {len(others)} rows above it: a totals row, not a lot. "
+            "Delete the row (a real lot that happens to match is safer listed above the others)",
+            row=last[7], column=headers.get("inspected", "inspected"))

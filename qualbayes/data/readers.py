@@ -13,10 +13,11 @@ is reported as an :class:`InputError` naming the file, the sheet and the last ro
 
 from __future__ import annotations
 
-import csv
+import hashlib
 import io
 import os
 import re
+import stat
 import zipfile
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -31,8 +32,9 @@ DEFAULT_MAX_ROWS = 500_000
 #: Cells further right than this are refused: openpyxl pads every row to its last cell, so
 #: a cell in column XFD (16,384) on every row would cost time and memory for nothing.
 MAX_COLUMNS = 1024
-#: Delimiter detection looks at this many records of the start of a csv.
-_SNIFF_RECORDS = 30
+#: Cells kept for one table (rows times the column of each row's last filled cell), checked
+#: row by row before the next row is kept: 500,000 rows of 20 columns fit.
+MAX_CELLS = 10_000_000
 
 
 @dataclass
@@ -46,6 +48,7 @@ class RawTable:
     decimal_comma: bool = False
     formula_cells: dict[tuple[int, int], str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
+    sha256: str = ""  # of exactly the bytes parsed
 
     def error(self, message: str, row: int | None = None, column: str | None = None):
         return InputError(message, file=self.file, sheet=self.sheet, row=row, column=column)
@@ -58,41 +61,67 @@ def read_table(path: str | os.PathLike, sheet: str | None = None,
         raise OptionError(f"--max-rows {max_rows!r}: give a whole number of at least 1")
     p = Path(path)
     name = str(path)
-    try:
-        if not p.exists():
-            raise InputError("file not found", file=name)
-        if not p.is_file():
-            raise InputError("not a regular file", file=name)
-        size = p.stat().st_size
-        if size == 0:
-            raise InputError("the file is empty", file=name)
-        if size > MAX_FILE_BYTES:
-            raise InputError(
-                f"the file is {size / 2**20:.0f} MiB; the limit is {MAX_FILE_BYTES // 2**20} MiB",
-                file=name)
-        with open(p, "rb") as fh:
-            head = fh.read(8)
-    except OSError as err:
-        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+    data = _read_bytes(p, name)
+    sha = hashlib.sha256(data).hexdigest()
+    head = data[:8]
     suffix = p.suffix.lower()
     if head.startswith(b"PK"):
         if sheet is None and suffix in (".csv", ".txt"):
             raise InputError("the file is named .csv but is a zip/xlsx file", file=name)
-        return _read_xlsx(p, name, sheet, max_rows)
-    if suffix in (".xlsx", ".xlsm"):
-        raise InputError("not a valid xlsx file (it is not a zip archive; truncated or "
-                         "another format?)", file=name)
-    if suffix == ".xls" or head.startswith(b"\xd0\xcf\x11\xe0"):
-        raise InputError("old binary .xls files are not read; save the sheet as .xlsx or .csv",
-                         file=name)
-    if sheet is not None:
-        raise InputError("--sheet applies to xlsx files only", file=name)
-    return _read_csv(p, name, max_rows)
+        table = _read_xlsx(io.BytesIO(data), name, sheet, max_rows)
+    else:
+        if suffix in (".xlsx", ".xlsm"):
+            raise InputError("not a valid xlsx file (it is not a zip archive; truncated or "
+                             "another format?)", file=name)
+        if suffix == ".xls" or head.startswith(b"\xd0\xcf\x11\xe0"):
+            raise InputError("old binary .xls files are not read; save the sheet as .xlsx or "
+                             ".csv", file=name)
+        if sheet is not None:
+            raise InputError("--sheet applies to xlsx files only", file=name)
+        from qualbayes.data.csv_table import read_csv_bytes  # noqa: PLC0415
+
+        table = read_csv_bytes(data, name, max_rows)
+    table.sha256 = sha
+    return table
+
+
+def _read_bytes(p: Path, name: str) -> bytes:
+    """The file's bytes, read once (they are hashed and parsed from memory, so the
+    fingerprint is of exactly what was read). Opened without blocking and checked to be a
+    regular file after opening, so a FIFO or device put in its place is never read."""
+    try:
+        fd = os.open(p, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+    except FileNotFoundError:
+        raise InputError("file not found", file=name) from None
+    except IsADirectoryError:
+        raise InputError("not a regular file", file=name) from None
+    except OSError as err:
+        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+    try:
+        st = os.fstat(fd)
+        if not stat.S_ISREG(st.st_mode):
+            raise InputError("not a regular file", file=name)
+        if st.st_size == 0:
+            raise InputError("the file is empty", file=name)
+        if st.st_size > MAX_FILE_BYTES:
+            raise InputError(f"the file is {st.st_size / 2**20:.0f} MiB; the limit is "
+                             f"{MAX_FILE_BYTES // 2**20} MiB", file=name)
+        with os.fdopen(os.dup(fd), "rb") as fh:
+            data = fh.read(st.st_size + 1)  # no larger buffer than the file
+    except OSError as err:
+        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
+    finally:
+        os.close(fd)
+    if len(data) > min(st.st_size, MAX_FILE_BYTES):
+        raise InputError("the file changed while it was being read; read it again", file=name)
+    if not data:
+        raise InputError("the file is empty", file=name)
+    return data
 
 
 # ----------------------------------------------------------------------------- xlsx
 
-def _check_zip(p: Path, name: str) -> None:
+def _check_zip(p, name: str) -> None:
     try:
         with zipfile.ZipFile(p) as zf:
             infos = zf.infolist()
@@ -111,7 +140,7 @@ def _check_zip(p: Path, name: str) -> None:
                 "which no real export is (a zip bomb?)", file=name)
 
 
-def _open_workbook(p: Path, name: str, data_only: bool):
+def _open_workbook(p, name: str, data_only: bool):
     import openpyxl  # noqa: PLC0415 - heavy, only for xlsx
     import openpyxl.xml  # noqa: PLC0415
 
@@ -171,42 +200,82 @@ def _too_many_rows(name: str, sheet: str, max_rows: int, declared: str = "") -> 
                       "file or raise the limit with --max-rows", file=name, sheet=sheet)
 
 
-def _iter_limited(ws, name: str, sheet: str, max_rows: int,
-                  progress: list[int]) -> Iterator[tuple[int, tuple]]:
-    """Rows as (row number, cells). ``progress[0]`` holds the last row number read.
+def _sparse_rows(ws, data_only: bool) -> Iterator[tuple[int, list[dict]]]:
+    """(row number, the cells present in the row's XML) from openpyxl's streaming sheet
+    parser: nothing is padded, so a cell far to the right costs one entry, not a row of
+    empty cells (openpyxl's read-only rows pad every row to the widest)."""
+    from openpyxl.worksheet._reader import WorkSheetParser  # noqa: PLC0415
+
+    wb = ws.parent
+    with ws._get_source() as src:
+        parser = WorkSheetParser(src, ws._shared_strings, data_only=data_only,
+                                 epoch=wb.epoch, date_formats=wb._date_formats,
+                                 timedelta_formats=wb._timedelta_formats)
+        yield from parser.parse()
+
+
+def _iter_limited(ws, name: str, sheet: str, max_rows: int, progress: list[int],
+                  data_only: bool = True) -> Iterator[tuple[int, list[dict]]]:
+    """Rows as (row number, sparse cells), within the row, column and cell limits.
+    ``progress[0]`` holds the last row number read.
 
     The sheet's size record (its ``dimension``) is used only to refuse an oversized sheet at
-    once; then it is dropped, so a wrong record can neither cut rows off nor pad them.
+    once; rows are numbered by their own ``r`` attributes, so a wrong record can neither cut
+    rows off nor pad them.
     """
     declared = ws.max_row
     if declared is not None and declared > max_rows + 1:
         raise _too_many_rows(name, sheet, max_rows, f" (its size record says {declared:,} "
                                                     "rows)")
-    ws.reset_dimensions()
-    # Without a size record openpyxl numbers the rows it yields from 1, filling gaps with
-    # empty rows, so k is the spreadsheet's row number even when column A is empty.
-    for k, row in enumerate(ws.iter_rows(), start=1):
+    kept = 0
+    last = 0
+    for k, cells in _sparse_rows(ws, data_only):
+        if k <= last:
+            raise InputError(f"row {k} comes after row {last} in the sheet's XML; the file is "
+                             "damaged. Open it in a spreadsheet program and save it again",
+                             file=name, sheet=sheet, row=k)
+        last = k
         if k > max_rows + 1:  # the header is one row
             raise _too_many_rows(name, sheet, max_rows)
-        if len(row) > MAX_COLUMNS:
+        width = max((c["column"] for c in cells if c["value"] is not None
+                     or c["data_type"] == "f"), default=0)
+        if width > MAX_COLUMNS:
             from openpyxl.utils import get_column_letter  # noqa: PLC0415
 
             raise InputError(
-                f"a cell lies in column {get_column_letter(min(len(row), 16384))} "
-                f"(column {len(row):,}); at most {MAX_COLUMNS:,} columns are read. Delete the "
+                f"a cell lies in column {get_column_letter(min(width, 16384))} "
+                f"(column {width:,}); at most {MAX_COLUMNS:,} columns are read. Delete the "
                 "cells right of the table or copy the table into a new sheet",
                 file=name, sheet=sheet, row=k)
+        kept += width
+        if kept > MAX_CELLS:
+            raise too_many_cells(name, sheet, k)
         progress[0] = k
-        yield k, row
+        yield k, cells
 
 
-def _trimmed(values: list[object]) -> list[object]:
+def too_many_cells(name: str, sheet: str | None, row: int) -> InputError:
+    return InputError(f"the table holds more than {MAX_CELLS:,} cells by row {row:,} (rows "
+                      "times the column of their last filled cell); delete cells far right "
+                      "of the table, or split the file", file=name, sheet=sheet, row=row)
+
+
+def trimmed(values: list[object]) -> list[object]:
     while values and values[-1] is None:
         values.pop()
     return values
 
 
-def _read_xlsx(p: Path, name: str, sheet: str | None, max_rows: int) -> RawTable:
+def _values(cells: list[dict]) -> list[object]:
+    width = max((c["column"] for c in cells if c["value"] is not None), default=0)
+    values: list[object] = [None] * width
+    for c in cells:
+        if c["value"] is not None and c["column"] <= width:
+            values[c["column"] - 1] = c["value"]
+    return values
+
+
+def _read_xlsx(p, name: str, sheet: str | None, max_rows: int) -> RawTable:
     _check_zip(p, name)
     wb = _open_workbook(p, name, data_only=True)
     title: str | None = None
@@ -216,8 +285,8 @@ def _read_xlsx(p: Path, name: str, sheet: str | None, max_rows: int) -> RawTable
         title = ws.title
         rows: list[list[object]] = []
         numbers: list[int] = []
-        for k, row in _iter_limited(ws, name, title, max_rows, progress):
-            values = _trimmed([getattr(c, "value", None) for c in row])
+        for k, cells in _iter_limited(ws, name, title, max_rows, progress):
+            values = _values(cells)
             if not any(v is not None and v != "" for v in values):
                 continue
             numbers.append(k)
@@ -237,7 +306,7 @@ def _read_xlsx(p: Path, name: str, sheet: str | None, max_rows: int) -> RawTable
 _FORMULA_TAG = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?f[\s/>]")
 
 
-def _has_formulas(p: Path, name: str) -> bool:
+def _has_formulas(p, name: str) -> bool:
     """Whether any XML part holds a formula element (a cheap streaming scan, so that the
     second, formula-keeping read is made only for workbooks that have formulas)."""
     try:
@@ -256,7 +325,7 @@ def _has_formulas(p: Path, name: str) -> bool:
     return False
 
 
-def _find_formulas(p: Path, name: str, title: str, table: RawTable, max_rows: int) -> None:
+def _find_formulas(p, name: str, title: str, table: RawTable, max_rows: int) -> None:
     """Record formula cells (row, col) -> formula text, from a second, formula-keeping read.
 
     Cached values were read already; a formula whose cached value is missing is reported by
@@ -267,15 +336,16 @@ def _find_formulas(p: Path, name: str, title: str, table: RawTable, max_rows: in
     try:
         ws = wb[title]
         index = {r: i for i, r in enumerate(table.row_numbers)}
-        for k, row in _iter_limited(ws, name, title, max_rows, progress):
-            for j, c in enumerate(row):
-                if getattr(c, "data_type", None) == "f":
+        for k, cells in _iter_limited(ws, name, title, max_rows, progress, data_only=False):
+            for c in cells:
+                if c["data_type"] == "f":
+                    j = c["column"] - 1
                     if k not in index:
                         # a formula in a row whose cached values are all empty
                         index[k] = len(table.rows)
                         table.rows.append([None] * (j + 1))
                         table.row_numbers.append(k)
-                    table.formula_cells[(index[k], j)] = str(c.value)[:60]
+                    table.formula_cells[(index[k], j)] = str(c["value"])[:60]
     except InputError:
         raise
     except Exception as err:
@@ -288,126 +358,3 @@ def _find_formulas(p: Path, name: str, title: str, table: RawTable, max_rows: in
         table.rows = [table.rows[i] for i in order]
         table.row_numbers = [table.row_numbers[i] for i in order]
         table.formula_cells = {(where[i], j): f for (i, j), f in table.formula_cells.items()}
-
-
-# ----------------------------------------------------------------------------- csv
-
-def _decode(data: bytes, name: str) -> tuple[str, str]:
-    if data.startswith(b"\xef\xbb\xbf"):
-        return _decode_utf8(data[3:], name), "utf-8 (BOM)"
-    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
-        try:
-            return data.decode("utf-16"), "utf-16"
-        except UnicodeDecodeError:
-            raise InputError("the file starts with a UTF-16 mark but is not UTF-16",
-                             file=name) from None
-    try:
-        return data.decode("utf-8"), "utf-8"
-    except UnicodeDecodeError as err:
-        if _has_utf8_multibyte(data):
-            line = data[: err.start].count(b"\n") + 1
-            raise InputError(
-                f"mixed text encodings: valid UTF-8 elsewhere but byte 0x{data[err.start]:02x} "
-                "here is not; save the file again as UTF-8", file=name, row=line) from None
-        return data.decode("cp1252", errors="replace"), "cp1252"
-
-
-def _decode_utf8(data: bytes, name: str) -> str:
-    try:
-        return data.decode("utf-8")
-    except UnicodeDecodeError as err:
-        line = data[: err.start].count(b"\n") + 1
-        raise InputError(f"byte 0x{data[err.start]:02x} is not UTF-8 although the file "
-                         "starts with a UTF-8 mark; save it again as UTF-8",
-                         file=name, row=line) from None
-
-
-def _has_utf8_multibyte(data: bytes) -> bool:
-    import re  # noqa: PLC0415
-
-    return re.search(rb"[\xc2-\xf4][\x80-\xbf]+", data) is not None and _valid_pairs(data)
-
-
-def _valid_pairs(data: bytes) -> bool:
-    import re  # noqa: PLC0415
-
-    for m in re.finditer(rb"[\xc2-\xdf][\x80-\xbf]|[\xe0-\xef][\x80-\xbf]{2}", data):
-        try:
-            m.group().decode("utf-8")
-            return True
-        except UnicodeDecodeError:
-            continue
-    return False
-
-
-def _guess_delimiter(text: str) -> str:
-    """The delimiter that splits the first records into the most consistent number of
-    fields (at least two). Linear in the sample; csv.Sniffer's patterns can take minutes on
-    one long line, so it is not used."""
-    best, best_score = ",", (0, 0)
-    for delimiter in (",", ";", "\t", "|"):
-        counts: dict[int, int] = {}
-        try:
-            reader = csv.reader(io.StringIO(text[:65536], newline=""), delimiter=delimiter)
-            for k, rec in enumerate(reader):
-                if k >= _SNIFF_RECORDS:
-                    break
-                if any(c.strip() for c in rec):
-                    counts[len(rec)] = counts.get(len(rec), 0) + 1
-        except csv.Error:
-            continue
-        wide = {n: c for n, c in counts.items() if n >= 2}
-        if not wide:
-            continue
-        fields, freq = max(wide.items(), key=lambda item: (item[1], item[0]))
-        if (freq, fields) > best_score:
-            best, best_score = delimiter, (freq, fields)
-    return best
-
-
-def _records(text: str, delimiter: str, name: str) -> Iterator[tuple[int, list[str]]]:
-    """Non-blank records with the line number each starts on."""
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, quotechar='"')
-    start = 1
-    try:
-        for rec in reader:
-            if any(c.strip() for c in rec):
-                yield start, rec
-            start = reader.line_num + 1
-    except csv.Error as err:
-        raise InputError(f"csv syntax error: {err}", file=name, row=reader.line_num) from None
-
-
-def _read_csv(p: Path, name: str, max_rows: int) -> RawTable:
-    try:
-        data = p.read_bytes()
-    except OSError as err:
-        raise InputError(f"cannot read the file ({err.strerror or err})", file=name) from None
-    if b"\x00" in data[:4096] and not data.startswith((b"\xff\xfe", b"\xfe\xff")):
-        raise InputError("this is a binary file, not csv text", file=name)
-    text, encoding = _decode(data, name)
-    del data
-    delimiter = _guess_delimiter(text)
-    if text.count("\n") > max_rows:
-        # Possibly too long: count the records first, keeping none of them, so that a file
-        # of millions of rows is refused without building a table of them.
-        for k, (line, _) in enumerate(_records(text, delimiter, name)):
-            if k > max_rows:
-                raise _too_many_csv_rows(name, max_rows, line)
-    rows: list[list[object]] = []
-    numbers: list[int] = []
-    for line, rec in _records(text, delimiter, name):
-        if len(rows) > max_rows:
-            raise _too_many_csv_rows(name, max_rows, line)
-        rows.append([c if c.strip() else None for c in rec])
-        numbers.append(line)
-    table = RawTable(name, None, rows, numbers, decimal_comma=delimiter in ";\t|")
-    if encoding == "cp1252":
-        table.notes.append("read as Windows-1252 text (not UTF-8)")
-    return table
-
-
-def _too_many_csv_rows(name: str, max_rows: int, line: int) -> InputError:
-    return InputError(f"the file has more than {max_rows:,} data rows (line {line:,} is "
-                      "past the limit); split the file or raise the limit with --max-rows",
-                      file=name)

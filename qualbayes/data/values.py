@@ -13,7 +13,7 @@ import re
 import unicodedata
 
 #: No number needs more characters than this; longer text is refused before any pattern is
-#: tried (the patterns below backtrack quadratically on long digit runs).
+#: tried (see qualbayes.data.numbers, where the one number parser lives).
 MAX_NUMBER_CHARS = 64
 #: Line breaks and tabs inside a label (a wrapped cell) read as one space.
 _LINE_BREAKS = re.compile(r"[\t\n\r\v\f\x85\u2028\u2029]+")
@@ -21,12 +21,6 @@ _LINE_BREAKS = re.compile(r"[\t\n\r\v\f\x85\u2028\u2029]+")
 #: (so two lot ids could look alike or a label could display in a misleading order).
 _BIDI_CONTROLS = frozenset("\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069")
 
-_THOUSANDS = re.compile(r"^[+-]?\d{1,3}([,\u00a0\u202f' ]\d{3})+$")
-_THOUSANDS_DOT = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+,\d+$")  # 1.234,5
-_THOUSANDS_COMMA = re.compile(r"^[+-]?\d{1,3}(,\d{3})+\.\d+$")  # 1,234.5
-_THOUSANDS_DOTS = re.compile(r"^[+-]?\d{1,3}(\.\d{3})+$")  # 12.000 in a decimal-comma file
-_DECIMAL_COMMA = re.compile(r"^[+-]?\d*,\d+$")
-_PLAIN = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
 
 def is_blank(value: object) -> bool:
@@ -46,62 +40,29 @@ def describe(value: object) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
-def parse_real(value: object, decimal_comma: bool = False) -> float:
-    """A finite real number; ``decimal_comma`` reads an ambiguous ``1,234`` as 1.234."""
-    if isinstance(value, bool):
-        raise ValueError(f"expected a number, found {describe(value)}")
-    if isinstance(value, int | float):
-        try:
-            x = float(value)
-        except OverflowError:  # an integer cell with hundreds of digits
-            raise ValueError(f"the number ({describe(value)}) is too large") from None
-    elif isinstance(value, str):
-        text = value.strip()
-        if len(text) > MAX_NUMBER_CHARS:
-            raise ValueError(f"expected a number, found {describe(value)} "
-                             f"({len(text):,} characters)")
-        x = _parse_real_text(text, decimal_comma)
-    else:
-        raise ValueError(f"expected a number, found {describe(value)}")
-    if not math.isfinite(x):
-        raise ValueError(f"expected a finite number, found {describe(value)}")
-    return x
+def _style(decimal_comma):
+    """The number style of the older keyword: True a decimal comma, False not decided (an
+    ambiguous value is then refused), or a NumberStyle given as is."""
+    from qualbayes.data.numbers import COMMA, UNDECIDED, NumberStyle  # noqa: PLC0415
+
+    if isinstance(decimal_comma, NumberStyle):
+        return decimal_comma
+    return NumberStyle(COMMA, "the caller") if decimal_comma else UNDECIDED
 
 
-def _parse_real_text(text: str, decimal_comma: bool) -> float:
-    t = text.replace("\u2212", "-")
-    if _PLAIN.match(t):
-        return float(t)
-    if _THOUSANDS_DOT.match(t):
-        return float(t.replace(".", "").replace(",", "."))
-    if _THOUSANDS_COMMA.match(t):
-        return float(t.replace(",", ""))
-    if decimal_comma and _DECIMAL_COMMA.match(t):
-        return float(t.replace(",", "."))
-    if _THOUSANDS.match(t):
-        return float(re.sub(r"[,\u00a0\u202f' ]", "", t))
-    if _DECIMAL_COMMA.match(t):
-        return float(t.replace(",", "."))
-    raise ValueError(f"expected a number, found {describe(text)}")
+def parse_real(value: object, decimal_comma=False) -> float:
+    """A finite real number (see :mod:`qualbayes.data.numbers`); ``decimal_comma`` is True
+    for a decimal comma, False when the file's style is not known, or a NumberStyle."""
+    from qualbayes.data.numbers import parse_number  # noqa: PLC0415
+
+    return parse_number(value, _style(decimal_comma))
 
 
-def parse_count(value: object, decimal_comma: bool = False) -> int:
+def parse_count(value: object, decimal_comma=False) -> int:
     """A whole number of units (not checked for sign here)."""
-    text = value.strip() if isinstance(value, str) else ""
-    if len(text) > MAX_NUMBER_CHARS:
-        x = parse_real(value)  # refuses it, naming the length
-    elif _THOUSANDS.match(text):
-        # "1,200" in a count column is a thousands separator, whatever the decimal mark
-        x = float(re.sub(r"[,\u00a0\u202f' ]", "", text))
-    elif decimal_comma and _THOUSANDS_DOTS.match(text):
-        x = float(text.replace(".", ""))  # "12.000" or "1.000.000" in a decimal-comma file
-    else:
-        x = parse_real(value, decimal_comma=decimal_comma and isinstance(value, str))
-    if x != math.floor(x):
-        raise ValueError(f"expected a whole number of units, found {describe(value)}")
-    if abs(x) > 2**53:
-        raise ValueError(f"count {describe(value)} is too large")
-    return int(x)
+    from qualbayes.data.numbers import parse_whole  # noqa: PLC0415
+
+    return parse_whole(value, _style(decimal_comma))
 
 
 def parse_text(value: object) -> str:
@@ -119,21 +80,31 @@ def parse_text(value: object) -> str:
         text = str(int(value))
     else:
         text = str(value)
+    if (len(text) <= 200 and text.isascii() and text.isprintable() and text == text.strip()
+            and not text.startswith(("#", "N/", "n/"))):
+        return text  # plain ASCII: nothing to normalise, no control or format character
     if len(text) > 10_000:  # refuse before normalising megabytes of text
         raise ValueError("text is longer than 200 characters")
     text = unicodedata.normalize("NFC", _LINE_BREAKS.sub(" ", text)).strip()
     for ch in text:
         if ch == "\x00":
             raise ValueError("text contains a NUL character")
-        if unicodedata.category(ch) == "Cc" or ch in _BIDI_CONTROLS:
-            raise ValueError(f"text contains an invisible control character "
-                             f"(U+{ord(ch):04X}); retype the cell")
+        if unicodedata.category(ch) in ("Cc", "Cf") or ch in _BIDI_CONTROLS:
+            raise ValueError(f"text contains an invisible control or format character "
+                             f"(U+{ord(ch):04X}), so two different labels could look the same; "
+                             "retype the cell")
+    from qualbayes.data.numbers import ERROR_VALUES  # noqa: PLC0415
+
+    if text.upper() in ERROR_VALUES:
+        raise ValueError(f"the cell holds the spreadsheet error value {text!r}, not a label; "
+                         "correct the formula or type the label")
     if len(text) > 200:
         raise ValueError("text is longer than 200 characters")
     return text
 
 
-_ISO = re.compile(r"^(\d{4})-(\d{1,2})-(\d{1,2})([ T].*)?$")
+_ISO = re.compile(r"^(\d{4})-(\d{1,2})-(\d{1,2})"
+                  r"([ T]\d{1,2}:\d{2}(:\d{2}(\.\d{1,6})?)?(Z|[+-]\d{2}:?\d{2})?)?$")
 _DOTTED = re.compile(r"^(\d{1,2})\.(\d{1,2})\.(\d{4})$")
 _SLASHED = re.compile(r"^(\d{1,2})/(\d{1,2})/(\d{4})$")
 

@@ -30,19 +30,39 @@ def public_mode(path: Path, directory: bool = False) -> None:
 #: (device, inode) of this run's input files: no output is ever written over them, whatever
 #: --out and --force say (``qualbayes lots lot_decisions.xlsx --out . --force``).
 _INPUTS: set[tuple[int, int]] = set()
+#: The same inputs as resolved paths, so a folder holding one is never replaced.
+_INPUT_PATHS: dict[Path, str] = {}
 
 
 def protect_inputs(*paths) -> None:
     """Mark input files as never to be replaced (symlinks and hard links included)."""
     for p in paths:
-        if p is not None:
-            with contextlib.suppress(OSError):
-                st = os.stat(p)
-                _INPUTS.add((st.st_dev, st.st_ino))
+        if p is None:
+            continue
+        with contextlib.suppress(OSError, ValueError):
+            st = os.stat(p)
+            _INPUTS.add((st.st_dev, st.st_ino))
+            _INPUT_PATHS[Path(p).resolve()] = str(p)
 
 
 def release_inputs() -> None:
     _INPUTS.clear()
+    _INPUT_PATHS.clear()
+
+
+def is_input(st: os.stat_result) -> bool:
+    """Whether a file (by its stat) is one of this run's inputs."""
+    return (st.st_dev, st.st_ino) in _INPUTS
+
+
+def inputs_inside(folder: Path) -> list[str]:
+    """Inputs of this run that lie inside ``folder`` (as given on the command line)."""
+    try:
+        root = Path(folder).resolve()
+    except (OSError, RuntimeError):
+        return []
+    return [given for path, given in _INPUT_PATHS.items()
+            if path == root or root in path.parents]
 
 
 def _refuse_input(path: Path) -> None:
@@ -51,8 +71,8 @@ def _refuse_input(path: Path) -> None:
     except OSError:
         return
     if (st.st_dev, st.st_ino) in _INPUTS:
-        raise OptionError(f"--out: {path} is an input file of this run; it is never "
-                          "overwritten. Choose another --out folder")
+        raise OutputExistsError(f"--out: {path} is an input file of this run; it is never "
+                                "overwritten. Choose another --out folder")
 
 
 def check_targets(paths: Iterable[Path], force: bool) -> None:

@@ -65,6 +65,11 @@ def page_css(report: Report) -> str:
             "font-weight:bold;color:#111;width:100%;text-align:left}}}")
 
 
+#: The page's content-security policy: nothing fetched but embedded images, no script.
+CSP = ("default-src 'none'; img-src data:; style-src 'unsafe-inline'; script-src 'none'; "
+       "object-src 'none'; base-uri 'none'; form-action 'none'")
+
+
 def png_bytes(fig) -> bytes:
     """PNG of a matplotlib figure (a figure given as PNG bytes already is passed through)."""
     if isinstance(fig, bytes):
@@ -87,9 +92,9 @@ def render_html(report: Report, pngs: dict[str, bytes] | None = None) -> str:
     pngs = pngs if pngs is not None else {f.id: png_bytes(f.figure) for f in report.figures()}
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
              '<meta name="viewport" content="width=device-width, initial-scale=1">',
-             # no network and no script: the policy forbids every fetch but embedded data
-             '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
-             'img-src data:; style-src \'unsafe-inline\'">',
+             # no network and no script at all: every fetch is forbidden except embedded
+             # images, and no script may run (the page has none)
+             f'<meta http-equiv="Content-Security-Policy" content="{CSP}">',
              f"<title>{escape(report.title)}</title>"
              f"<style>{CSS}{page_css(report)}</style></head><body>",
              f"<h1>{escape(report.title)}</h1>",

@@ -46,3 +46,16 @@ def without_draws(record: dict) -> dict:
     """A run record for --json: everything but the posterior draws (kept in run.json, where
     the report's figures need them)."""
     return {k: v for k, v in record.items() if k != "posterior_draws"}
+
+
+def _json_escape(m) -> str:
+    b = m.group().encode("utf-16-be")
+    return "".join(f"\\u{int.from_bytes(b[i:i + 2], 'big'):04x}" for i in range(0, len(b), 2))
+
+
+def dumps_for_terminal(document: dict) -> str:
+    """JSON for stdout: like :func:`dumps`, with C1 controls, bidirectional controls and
+    other invisible format characters written as \\u escapes (the same JSON value)."""
+    from qualbayes.evidence.terminal import _CONTROLS  # noqa: PLC0415
+
+    return _CONTROLS.sub(_json_escape, dumps(document))

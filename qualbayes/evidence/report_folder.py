@@ -1,21 +1,13 @@
 """Writing a report folder: HTML, PDF, evidence workbook, run record and figure PNGs.
 
-The folder is assembled under a temporary name beside its target and renamed into place at
-the end, so an interrupted run leaves no half folder; an existing folder is replaced only
-with ``force`` (and then only once the new one is complete).
+Everything is rendered in memory (figures, HTML, workbook, record) before any file is
+written; the folder is then written as one set (see :mod:`qualbayes.evidence.output_set`).
 """
 
 from __future__ import annotations
 
-import contextlib
 import importlib
-import os
-import shutil
-import tempfile
 from pathlib import Path
-
-from qualbayes.errors import OutputExistsError
-from qualbayes.evidence.files import public_mode
 
 #: run-record kind -> (report builder, workbook sheets builder), "module:function"
 KINDS = {
@@ -32,44 +24,68 @@ def _load(ref: str):
     return getattr(importlib.import_module(module), func)
 
 
-def check_report_target(out_dir: Path, force: bool) -> None:
-    out_dir = Path(out_dir)
-    if out_dir.exists() and (not out_dir.is_dir() or any(out_dir.iterdir())) and not force:
-        raise OutputExistsError(f"refusing to overwrite the report folder {out_dir} (give "
-                                "--force to replace it, or choose another folder)")
+def check_report_target(out_dir: Path, force: bool, option: str = "--report") -> None:
+    """Refuse before any work unless the folder may be written (see output_set)."""
+    from qualbayes.evidence.output_set import check_target  # noqa: PLC0415
+
+    check_target(Path(out_dir), force, option)
 
 
-def write_report_folder(out_dir: Path, record: dict, force: bool = False) -> dict:
-    """Build and write the report of ``record``; returns {"folder", "pages", "figures"}."""
+UNVERIFIED = ("UNVERIFIED RECORD: this report was rebuilt from a run record written before "
+              "records carried a digest, so edits made to it after the run cannot be ruled "
+              "out. Check its numbers against the original run before acting on them.")
+
+
+def report_files(record: dict, banner: str | None = None) -> tuple[dict, dict]:
+    """The files of the report of ``record`` (relative name -> writer), all rendered in
+    memory first, and {"pages", "figures"}. ``banner`` is shown above everything."""
     from qualbayes.evidence.html import png_bytes, render_html  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
     from qualbayes.evidence.pdf import write_pdf  # noqa: PLC0415
-    from qualbayes.evidence.workbook import write_workbook  # noqa: PLC0415
+    from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    out_dir = Path(out_dir)
-    check_report_target(out_dir, force)
     if record.get("kind") not in KINDS:
         raise ValueError(f"no report for a run of kind {record.get('kind')!r}")
     build, sheets = (_load(r) for r in KINDS[record["kind"]])
     report = build(record)
-    pngs = {f.id: png_bytes(f.figure) for f in report.figures()}
-    out_dir.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.partial-", dir=out_dir.parent))
-    public_mode(tmp, directory=True)
+    if banner:
+        report.alert = banner + (f" {report.alert}" if report.alert else "")
     try:
-        (tmp / "report.html").write_text(render_html(report, pngs), encoding="utf-8")
-        pages = write_pdf(report, tmp / "report.pdf", pngs)
-        write_workbook(tmp / "evidence.xlsx", sheets(record))
-        (tmp / "run.json").write_text(dumps(record), encoding="utf-8")
-        (tmp / "figures").mkdir()
-        for name, data in pngs.items():
-            (tmp / "figures" / f"{name}.png").write_bytes(data)
-        _close_figures(report)
-        _swap_into_place(tmp, out_dir, force)
+        pngs = {f.id: png_bytes(f.figure) for f in report.figures()}
     finally:
-        if tmp.exists():
-            shutil.rmtree(tmp, ignore_errors=True)
-    return {"folder": out_dir, "pages": pages, "figures": len(pngs)}
+        _close_figures(report)
+    html = render_html(report, pngs)
+    book = workbook_writer(sheets(record))
+    text = dumps(record)
+    info = {"figures": len(pngs), "pages": 0}
+
+    def pdf(path: Path) -> None:
+        info["pages"] = write_pdf(report, path, pngs)
+
+    files = {"report.html": lambda p: p.write_text(html, encoding="utf-8"),
+             "report.pdf": pdf, "evidence.xlsx": book,
+             "run.json": lambda p: p.write_text(text, encoding="utf-8")}
+    for name, data in pngs.items():
+        files[f"figures/{name}.png"] = lambda p, data=data: p.write_bytes(data)
+    return files, info
+
+
+def write_report_folder(out_dir: Path, record: dict, force: bool = False,
+                        banner: str | None = None) -> dict:
+    """Build and write the report of ``record``; returns {"folder", "pages", "figures"}.
+
+    The folder is written by :func:`qualbayes.evidence.output_set.write_set`: complete in a
+    staging folder first, then put in place in one step; an existing folder is replaced only
+    with ``force`` and only if it is an earlier qualbayes set holding no input of the run.
+    """
+    from qualbayes.evidence.output_set import write_set  # noqa: PLC0415
+
+    out_dir = Path(out_dir)
+    check_report_target(out_dir, force)
+    files, info = report_files(record, banner)
+    write_set(out_dir, files, force=force, option="--report", kind="report",
+              stamp={"report_id": record.get("report_id")})
+    return {"folder": out_dir, **info}
 
 
 def _close_figures(report) -> None:
@@ -78,17 +94,3 @@ def _close_figures(report) -> None:
     for f in report.figures():
         if not isinstance(f.figure, bytes):
             plt.close(f.figure)
-
-
-def _swap_into_place(tmp: Path, out_dir: Path, force: bool) -> None:
-    if not out_dir.exists():
-        os.replace(tmp, out_dir)
-        return
-    if not force:  # appeared meanwhile
-        raise OutputExistsError(f"refusing to overwrite the report folder {out_dir}")
-    old = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.old-", dir=out_dir.parent))
-    old.rmdir()
-    os.replace(out_dir, old)
-    os.replace(tmp, out_dir)
-    with contextlib.suppress(OSError):
-        shutil.rmtree(old)

@@ -1,0 +1,116 @@
+"""The shape of a run record, checked key by key when a record is read back.
+
+A spec is a type name, a dict of key -> spec (keys ending in ``?`` may be missing), or a
+one-item list ``[spec]`` for a list of such items. Type names: ``str``, ``int``, ``num``
+(int or float), ``prob`` (a number in [0, 1]), ``conf`` (in (0, 1)), ``pos`` (> 0),
+``count`` (an int >= 0), ``bool``, ``dict``, ``list``, ``any``; a trailing ``|none``
+allows null. Only what the renderers rely on is listed; other keys pass unchecked.
+"""
+
+from __future__ import annotations
+
+from qualbayes.errors import InputError
+
+COMMON = {"kind": "str", "caution": "str", "command?": "str", "versions?": "dict",
+          "notes?": ["str"], "standards?": ["str"], "schema_version?": "int",
+          "created_utc?": "str", "report_id?": "str", "tool_version?": "str"}
+
+GATE = {"passed": "bool", "max_rhat?": "num|none", "min_ess_bulk?": "num|none",
+        "min_ess_tail?": "num|none", "divergences?": "int|none", "reasons?": ["str"],
+        "parameters?": "list"}
+
+SCHEMAS = {
+    "lots": {
+        **COMMON,
+        "question": {"spec": "conf", "confidence": "conf", "asked": "str", "interval": "str",
+                     "upper_bound": "str"},
+        "input": {"file": "str", "sheet?": "str|none", "sha256": "str", "header_row": "int",
+                  "rows_read": "count", "columns": "dict", "notes": ["str"]},
+        "model": "str", "prior": "str", "seed?": "int|none", "diagnostics": "dict",
+        "next_lot": "dict", "decision_counts": "dict",
+        "lots": [{"lot": "str", "part?": "str|none", "row": "int", "inspected": "count",
+                  "defectives": "count", "lot_size?": "count|none",
+                  "posterior_mean": "prob|none", "interval": ["prob|none"],
+                  "upper_bound": "prob|none", "prob_within_spec": "prob|none",
+                  "decision": "str"}],
+    },
+    "life": {
+        **COMMON,
+        "question": {"mission": "pos", "target": "conf", "confidence": "conf", "units": "str",
+                     "asked": "str", "interval": "str", "lower_bound": "str"},
+        "input": {"file": "str", "sheet?": "str|none", "sha256": "str", "header_row": "int",
+                  "rows_read": "count", "columns": "dict", "notes": ["str"]},
+        "model": "str", "prior": ["str"], "decision_counts": "dict",
+        "groups": [{"group": "str", "units": "count", "failures": "count",
+                    "suspensions": "count", "prob_meets_target": "prob|none",
+                    "decision": "str", "diagnostics": GATE, "notes": ["str"]}],
+    },
+    "plan": {
+        **COMMON,
+        "summary": ["str"], "assumptions": ["str"], "notes": ["str"],
+        "tables": [{"title": "str", "columns": ["str"], "rows": [["any"]]}],
+    },
+}
+
+
+def _fail(path, key: str, message: str) -> InputError:
+    return InputError(f"run record key {key!r}: {message}", file=str(path))
+
+
+def _shown(value) -> str:
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _check_type(path, key: str, name: str, value) -> None:
+    kinds = name.split("|")
+    if value is None:
+        if "none" in kinds:
+            return
+        raise _fail(path, key, f"is null; expected {kinds[0]}")
+    base = kinds[0]
+    number = isinstance(value, int | float) and not isinstance(value, bool)
+    ok = {"str": isinstance(value, str), "bool": isinstance(value, bool),
+          "dict": isinstance(value, dict), "list": isinstance(value, list), "any": True,
+          "int": isinstance(value, int) and not isinstance(value, bool),
+          "count": isinstance(value, int) and not isinstance(value, bool) and value >= 0,
+          "num": number, "prob": number and 0.0 <= value <= 1.0,
+          "conf": number and 0.0 < value < 1.0, "pos": number and value > 0}[base]
+    if not ok:
+        words = {"prob": "a number in [0, 1]", "conf": "a number strictly between 0 and 1",
+                 "pos": "a positive number", "count": "a whole number >= 0",
+                 "num": "a number", "int": "a whole number"}.get(base, base)
+        raise _fail(path, key, f"expected {words}, found {_shown(value)}")
+
+
+def _check(path, key: str, spec, value) -> None:
+    if isinstance(spec, str):
+        _check_type(path, key, spec, value)
+    elif isinstance(spec, list):
+        if not isinstance(value, list):
+            raise _fail(path, key, f"expected a list, found {_shown(value)}")
+        for i, item in enumerate(value):
+            _check(path, f"{key}[{i}]", spec[0], item)
+    else:
+        if not isinstance(value, dict):
+            raise _fail(path, key, f"expected an object, found {_shown(value)}")
+        for name, sub in spec.items():
+            optional = name.endswith("?")
+            name = name.rstrip("?")
+            where = f"{key}.{name}" if key else name
+            if name not in value:
+                if optional:
+                    continue
+                raise _fail(path, where, "is missing")
+            _check(path, where, sub, value[name])
+
+
+def check_schema(path, record: dict) -> None:
+    """Refuse (InputError, exit 2) the first key whose value is missing or malformed."""
+    _check(path, "", SCHEMAS[record["kind"]], record)
+    if record["kind"] == "lots":
+        for part, gate in record["diagnostics"].items():
+            _check(path, f"diagnostics.{part}", GATE, gate)
+        for i, lot in enumerate(record["lots"]):
+            if lot["defectives"] > lot["inspected"]:
+                raise _fail(path, f"lots[{i}].defectives", "exceeds the units inspected")

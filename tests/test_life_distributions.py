@@ -183,8 +183,8 @@ def test_lognormal_prior_is_uniform_on_the_fraction_failed_at_t_ref():
     assert stats.kstest(f, "uniform").pvalue > 1e-3
     # and the density integrates to one over (mu, s)
     total = integrate.dblquad(lambda mu_, s_: math.exp(logn.log_prior(mu_, s_, 5.7, prior)),
-                              -5, 5, lambda s_: 5.7 - 12 * math.exp(s_),
-                              lambda s_: 5.7 + 12 * math.exp(s_))[0]
+                              -7, 7, lambda s_: 5.7 - 12 * math.exp(s_),
+                              lambda s_: 5.7 + 12 * math.exp(s_), epsabs=1e-10)[0]
     assert total == pytest.approx(1.0, abs=1e-6)
 
 

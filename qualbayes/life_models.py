@@ -154,6 +154,20 @@ def lognormal_mode(obs: Observations, prior: logn.LognormalPrior | None):
     return laplace(_guarded(f), np.array(_log_start(obs)))
 
 
+def lognormal_sampling_mode(obs: Observations, prior: logn.LognormalPrior):
+    """(x, cov, ok) at the posterior mode on the sampled scale (v, s) of
+    :func:`qualbayes.models.lognormal.lognormal_life_model`."""
+    data, ltr = arrays(obs), math.log(obs.t_ref)
+
+    def f(x):
+        mu = ltr - math.exp(x[1]) * x[0]
+        return (logn.log_likelihood(np.array(mu), np.array(x[1]), data)
+                + logn.log_prior(mu, x[1], ltr, prior) + x[1])
+
+    mu0, s0 = _log_start(obs)
+    return laplace(_guarded(f), np.array([(ltr - mu0) / math.exp(s0), s0]))
+
+
 def exponential_mode(obs: Observations, flat_prior: bool = False):
     """(x, cov, ok) at the mode of the posterior (or of the likelihood) on u."""
     data, ltr = arrays(obs), math.log(obs.t_ref)
@@ -175,10 +189,15 @@ def max_likelihood(obs: Observations, arrays_by_kind: dict, mission: float) -> d
     if obs.failures == 0:
         why = "no maximum-likelihood answer: with zero failures the likelihood has no maximum"
         return {f: {"fitted": False, "why": why} for f in FAMILIES}
-    shape, scale = reported_mode(group_stats(**arrays_by_kind), FLAT)
-    d = {"log_shape": np.array(math.log(shape)), "log_scale": np.array(math.log(scale))}
-    out["weibull"] = {"shape": shape, "scale": scale} | _ml_answers("weibull", d, mission)
-    if shape > SETTLE_SHAPE:
+    try:
+        with np.errstate(all="ignore"):
+            shape, scale = reported_mode(group_stats(**arrays_by_kind), FLAT)
+    except (OverflowError, ValueError, np.linalg.LinAlgError):
+        shape, scale = math.inf, math.nan
+    if shape <= SETTLE_SHAPE:
+        d = {"log_shape": np.array(math.log(shape)), "log_scale": np.array(math.log(scale))}
+        out["weibull"] = {"shape": shape, "scale": scale} | _ml_answers("weibull", d, mission)
+    else:
         out["weibull"] = {"fitted": False, "why": f"the maximum-likelihood shape runs off "
                                                   f"(> {SETTLE_SHAPE:g}): it has not settled"}
     x, _, ok = lognormal_mode(obs, None)
@@ -217,7 +236,7 @@ def fit_alternatives(obs_list: list[Observations], names: list[str], mission: fl
     rng = np.random.default_rng(settings.seed)
     out: dict = {"lognormal": {}, "exponential": {}}
 
-    modes = [lognormal_mode(o, lognormal_prior) for o in obs_list]
+    modes = [lognormal_sampling_mode(o, lognormal_prior) for o in obs_list]
     center = np.array([m[0] for m in modes])
     chol = np.stack([np.linalg.cholesky(m[1]) for m in modes])
     init = {"z": jnp.asarray(rng.uniform(-1, 1, (settings.num_chains, len(obs_list), 2)))}

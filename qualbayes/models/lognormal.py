@@ -122,19 +122,26 @@ def reliability(t, mu, s):
 
 
 def lognormal_life_model(obs, log_tref, center, chol, *, prior: LognormalPrior):
-    r"""numpyro model of every group at once: ``obs`` the padded (groups, width) arrays,
-    ``center`` (G, 2) the posterior mode of (mu, log sigma) and ``chol`` (G, 2, 2) its Laplace
-    Cholesky factor; the sampled site z is whitened, :math:`(\mu, s) = m + L z` (a constant
-    Jacobian: the posterior is unchanged)."""
+    r"""numpyro model of every group at once, sampled on :math:`(v, s)` with
+    :math:`v = (\log t_{ref} - \mu)/\sigma` (so :math:`F(t_{ref}) = \Phi(v)`) and
+    :math:`s = \log\sigma`. The default prior is then simply :math:`v \sim N(0, 1)`,
+    :math:`s \sim N(m_s, d_s)` (the density on :math:`(\mu, s)` times the Jacobian
+    :math:`\sigma`), and v is far less tied to s than :math:`\mu` is when failures are few.
+
+    ``obs``: the padded (groups, width) arrays; ``center`` (G, 2) the posterior mode of
+    (v, s) and ``chol`` (G, 2, 2) its Laplace Cholesky factor; the sampled site z is
+    whitened, :math:`(v, s) = m + L z` (a constant Jacobian: the posterior is unchanged).
+    """
     import jax.numpy as jnp  # noqa: PLC0415
     import numpyro  # noqa: PLC0415
     import numpyro.distributions as dist  # noqa: PLC0415
 
     z = numpyro.sample("z", dist.ImproperUniform(dist.constraints.real, (),
                                                  (center.shape[0], 2)))
-    mu = center[:, 0] + chol[:, 0, 0] * z[:, 0]
+    v = center[:, 0] + chol[:, 0, 0] * z[:, 0]
     s = center[:, 1] + chol[:, 1, 0] * z[:, 0] + chol[:, 1, 1] * z[:, 1]
+    mu = log_tref - jnp.exp(s) * v
     numpyro.deterministic("mu", mu)
     numpyro.deterministic("log_sigma", s)
-    lp = log_prior(mu, s, log_tref, prior, jnp) + log_likelihood(mu, s, obs, jnp)
+    lp = log_prior(mu, s, log_tref, prior, jnp) + s + log_likelihood(mu, s, obs, jnp)
     numpyro.factor("log_posterior", jnp.sum(lp))

@@ -110,6 +110,7 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     with ``compare_models`` the lognormal and exponential fits and their PSIS-LOO comparison,
     with ``check_fit`` the posterior predictive check of failures in time bins.
     """
+    from qualbayes.life_compare import pairs  # noqa: PLC0415
     from qualbayes.life_extras import add_extras  # noqa: PLC0415
     from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.models.life import fit_life  # noqa: PLC0415
@@ -120,6 +121,7 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     stats = {g: st for g, (_, st) in data.items()}
     check_prior_use(table, stats, prior)
     names = list(stats)
+    pairs(names, compare)  # a bad --compare is refused before any sampling
     modes = [posterior_mode(stats[g], prior) for g in names]
     settings = settings or SamplerSettings(seed=seed)
     fit = fit_life([stats[g] for g in names], modes, prior, settings, names, mission)

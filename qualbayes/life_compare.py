@@ -62,7 +62,9 @@ def compare_pair(a: str, b: str, chains_a: dict, chains_b: dict, mission: float,
     p, mc = float(better.mean()), float(mcse_mean(better))
     log_ratio = (chains_a["log_scale"] + LN_R10 / ba) - (chains_b["log_scale"] + LN_R10 / bb)
     ratio_gt = (log_ratio > 0).astype(float)
-    verdict = decide_within_error(p, mc, confidence)
+    call = decide_within_error(p, mc, confidence)
+    verdict = {"accept": f"{a} better", "reject": f"{b} better", "undecided": "not told apart",
+               "too-close": "too close to call"}[call]
     words = {
         "accept": f"{a} is more reliable than {b} at the mission time "
                   f"(P = {p:.4f} >= {confidence:g})",
@@ -72,7 +74,7 @@ def compare_pair(a: str, b: str, chains_a: dict, chains_b: dict, mission: float,
                      f"{confidence:g} (P({a} better) = {p:.4f})",
         "too-close": f"{a} against {b}: P = {p:.4f} is too close to call at this Monte Carlo "
                      f"precision (MCSE {mc:.4f})",
-    }[verdict]
+    }[call]
     ratio = _interval(np.exp(log_ratio), confidence)
     return {
         "a": a, "b": b,

@@ -225,11 +225,11 @@ def fit_alternatives(obs_list: list[Observations], names: list[str], mission: fl
                      settings, lognormal_prior: logn.LognormalPrior) -> dict:
     """Lognormal (NUTS) and exponential (exact Gamma draws when conjugate, else NUTS) fits of
     every group: {family: {group: (draws, gate dict)}}."""
+    import jax.numpy as jnp  # noqa: PLC0415
+
+    from qualbayes.inference import run_nuts  # noqa: PLC0415
     from qualbayes.models.censored import pad  # noqa: PLC0415
     from qualbayes.models.life import pad_groups  # noqa: F401, PLC0415 - configures jax
-
-    import jax.numpy as jnp  # noqa: PLC0415
-    from qualbayes.inference import run_nuts  # noqa: PLC0415
 
     log_tref = np.log([o.t_ref for o in obs_list])
     padded = {k: jnp.asarray(v) for k, v in pad(obs_list).items()}

@@ -44,6 +44,19 @@ def register(sub) -> None:
     p.add_argument("--units", default="", help="time units for display: h, cycles, km, ...")
     p.add_argument("--group", action="append", metavar="NAME",
                    help="analyse only this group (repeat for several)")
+    p.add_argument("--compare", action="append", metavar="A,B",
+                   help="compare group A with group B (repeat for several pairs; default: "
+                        "every pair): P(R_A(mission) > R_B(mission)), the ratio of B10 "
+                        "lives and the shape difference")
+    p.add_argument("--new-units", type=int, metavar="N",
+                   help="for an undecided group, the further test time N new units would "
+                        "need without failure (default: the suspended units kept running)")
+    p.add_argument("--compare-models", action="store_true",
+                   help="also fit lognormal and exponential lives: PSIS-LOO comparison in "
+                        "words and the decision under each distribution (slower)")
+    p.add_argument("--check-fit", action="store_true",
+                   help="posterior predictive check: observed against predicted failures "
+                        "in time bins, respecting censoring, with a figure per group")
     add_prior_options(p, "life", "life")
     add_output_options(p)
     p.set_defaults(func=run)
@@ -66,6 +79,7 @@ def _mission(text: str) -> float:
 def run(args) -> int:
     from qualbayes.commands.prior_options import life_prior, life_prior_evidence  # noqa: PLC0415
     from qualbayes.data.life import parse_units, read_life  # noqa: PLC0415
+    from qualbayes.errors import OptionError  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
     from qualbayes.evidence.life_record import life_record, life_text  # noqa: PLC0415
@@ -91,11 +105,15 @@ def run(args) -> int:
     if targets:
         from pathlib import Path  # noqa: PLC0415
 
-        for _, prob_name, rel_name in figure_names(data.groups):
-            figures += [Path(args.out) / prob_name, Path(args.out) / rel_name]
+        for _, prob_name, rel_name, *more in figure_names(data.groups, args.check_fit):
+            figures += [Path(args.out) / name for name in (prob_name, rel_name, *more)]
         check_targets(figures, args.force)
     sha = sha256_file(args.file)
-    result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
+    if args.new_units is not None and args.new_units < 1:
+        raise OptionError(f"--new-units {args.new_units}: give a positive number of units")
+    result = assess_life(data, mission, target, confidence, prior, seed=args.seed,
+                         compare=args.compare, compare_models=args.compare_models,
+                         check_fit=args.check_fit, new_units=args.new_units)
     record = life_record(result, data, sha, command_line(args.argv), versions())
     record.update(life_prior_evidence(args, result, data, prior, setup))
     written = _write(record, data, targets, args.force) if targets else []

@@ -6,6 +6,7 @@ import tempfile
 from pathlib import Path
 
 from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.life_extras_record import extras_sections
 from qualbayes.evidence.prior_record import prior_sections
 from qualbayes.evidence.report_common import (
     caution_section,
@@ -19,19 +20,26 @@ def _mi(s: dict | None, key: str = "median"):
     return None if not s else s.get(key)
 
 
-def _figures(record: dict) -> list[Figure]:
-    from qualbayes.evidence.life_plots import draw_all  # noqa: PLC0415 - matplotlib
+FIGURE_KINDS = (("life_probability_", "Weibull probability plot",
+                 "Posterior median line with its credible band; points: median ranks "
+                 "(adjusted for suspensions, Bernard's approximation)"),
+                ("life_reliability_", "Reliability R(t)",
+                 "Posterior median line with its credible band"),
+                ("life_fit_check_", "Check of fit",
+                 "Observed failures per time bin against each distribution's posterior "
+                 "predictive median and range (units count only while on test)"))
 
+
+def _figures(record: dict) -> list[Figure]:
+    from qualbayes.evidence.life_plots import draw_all, figure_names  # noqa: PLC0415
+
+    owner = {name: g for g, *files in figure_names([g["group"] for g in record["groups"]],
+                                                   True) for name in files}
     with tempfile.TemporaryDirectory() as tmp:
-        paths = draw_all(record, Path(tmp))
-        names = [g["group"] for g in record["groups"] if g["plot"] is not None]
         out = []
-        for k, p in enumerate(paths):
-            kind = "Weibull probability plot" if k % 2 == 0 else "Reliability R(t)"
-            out.append(Figure(f"{kind}: {names[k // 2]}", p.read_bytes(),
-                              "Posterior median line with its credible band"
-                              + ("; points: median ranks (adjusted for suspensions, "
-                                 "Bernard's approximation)" if k % 2 == 0 else ""),
+        for k, p in enumerate(draw_all(record, Path(tmp))):
+            kind, caption = next(f[1:] for f in FIGURE_KINDS if p.name.startswith(f[0]))
+            out.append(Figure(f"{kind}: {owner.get(p.name, '')}", p.read_bytes(), caption,
                               f"fig-life-{k}"))
     return out
 
@@ -101,6 +109,7 @@ def build(record: dict) -> Report:
         *prior_sections(record),
         diagnostics_section(record_d),
         Section("Results", [results, intervals]),
+        *extras_sections(record),
         Section("Figures", (_figures(record) + _rank_figures(record)) or [
             Paragraph("No figures: no group has a result.")]),
         caution_section(record),

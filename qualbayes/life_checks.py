@@ -68,7 +68,7 @@ def loo(family: str, draws: dict, obs: Observations) -> dict:
     w = obs.weights()
     n = w.sum()
     elpd = float(w @ elpd_i)
-    var = float(w @ (elpd_i - elpd / n) ** 2) / max(n - 1, 1)
+    var = float(w @ (elpd_i - elpd / n) ** 2) / n  # as arviz.loo: population variance
     k_max = min(1.0 - 1.0 / math.log10(take.size), 0.7)
     return {"family": family, "elpd": elpd, "se": math.sqrt(n * var), "pointwise": elpd_i,
             "pareto_k_max": float(np.max(k)), "pareto_k_threshold": k_max,
@@ -84,7 +84,7 @@ def compare(loos: dict[str, dict], weights: np.ndarray) -> dict:
     for f in order:
         diff_i = loos[best]["pointwise"] - loos[f]["pointwise"]
         diff = float(weights @ diff_i)
-        var = float(weights @ (diff_i - diff / n) ** 2) / max(n - 1, 1)
+        var = float(weights @ (diff_i - diff / n) ** 2) / n
         se = math.sqrt(n * var)
         close = diff < ELPD_SMALL or diff < SE_FACTOR * se
         rows.append({"family": f, "elpd": loos[f]["elpd"], "se": loos[f]["se"],
@@ -120,17 +120,18 @@ def check_fit(family: str, draws: dict, obs: Observations, confidence: float,
         return None
     bins = int(min(8, max(2, w[failed].sum() // 3)))
     ft, fw = x[failed], w[failed]
-    order = np.argsort(ft)
-    cum = np.cumsum(fw[order]) / fw.sum()
-    edges = np.unique([ft[order][np.searchsorted(cum, k / bins)] for k in range(1, bins)])
-    edges = edges[edges < ft.max()]
-    cuts = np.concatenate([[0.0], edges, [np.inf]])
-    observed = np.array([fw[(ft > lo) & (ft <= hi)].sum() for lo, hi in
-                         zip(cuts[:-1], cuts[1:], strict=True)])
     chains = next(np.shape(v) for k, v in draws.items() if k != "t_ref")
     per_chain = max(PPC_DRAWS // chains[0], 8)
     cols = thin_index(chains[1], per_chain)
     d = {k: (np.asarray(v)[:, cols] if k != "t_ref" else v) for k, v in draws.items()}
+    # bins of equal expected failures (from the model, not from where the failures fell:
+    # bins cut at the observed failures would make every observed count look alike)
+    grid = np.geomspace(x.min(), x.max(), 200)
+    cum = np.cumsum(_expected(family, d, x, w, grid).reshape(-1, grid.size + 1).mean(0))
+    edges = np.unique(np.interp(np.arange(1, bins) / bins * cum[-1], cum[:-1], grid))
+    cuts = np.concatenate([[0.0], edges, [np.inf]])
+    observed = np.array([fw[(ft > lo) & (ft <= hi)].sum() for lo, hi in
+                         zip(cuts[:-1], cuts[1:], strict=True)])
     expected = _expected(family, d, x, w, edges)  # (chain, draw, K)
     rep = rng.poisson(expected)
     with np.errstate(divide="ignore", invalid="ignore"):

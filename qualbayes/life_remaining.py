@@ -89,8 +89,8 @@ def remaining_time(chains: dict, suspensions, mission: float, target: float,
     wts = _Weights(chains, times, counts.astype(float))
     good = (wts.beta * (math.log(mission) - wts.log_eta)
             <= math.log(-math.log(target))).astype(float)
-    basis = (f"{new_units} new unit(s) on test from zero" if new_units else
-             f"each of the {ts.size} suspended unit(s) kept running (assumed still on test)")
+    basis = (f"{new_units} new unit(s) put on test" if new_units else
+             f"the {ts.size} suspended unit(s) (assumed still on test)")
     top = REACH * max(mission, longest or (ts.max() if ts.size else mission))
     grid = np.geomspace(top * 1e-4, top, GRID)
 
@@ -110,7 +110,7 @@ def remaining_time(chains: dict, suspensions, mission: float, target: float,
     if hit is None:
         return {"found": False, "basis": basis,
                 "words": f"survival alone does not bring P(R >= target) to {confidence:g} "
-                         f"within {top:,.0f} more time ({basis}): the running units cannot "
+                         f"within {_t(top)} more time ({basis}): the running units cannot "
                          "settle this; more units or a design change are needed"}
     lo = prev[0] if prev else 0.0
     hi = hit
@@ -125,18 +125,22 @@ def remaining_time(chains: dict, suspensions, mission: float, target: float,
     r = at(hi)
     return {"found": True, "basis": basis, "extra_time": hi, "prob_at_extra_time": r["p"],
             "prob_mcse": r["mcse"], "pareto_k": r["pareto_k"], "weights_ess": r["ess"],
-            "words": f"P(R >= target) reaches {confidence:g} if {basis} survive(s) a further "
-                     f"{hi:,.0f} without failure (P = {r['p']:.4f}, Monte Carlo error "
+            "words": f"P(R >= target) reaches {confidence:g} if {basis} each survive a "
+                     f"further {_t(hi)} without failure (P = {r['p']:.4f}, Monte Carlo error "
                      f"{r['mcse']:.4f}; by reweighting the posterior draws, Pareto k "
                      f"{r['pareto_k']:.2f}, {r['ess']:.0f} effective draws)"}
 
 
+def _t(x: float) -> str:
+    return f"{x:,.0f}" if x >= 1000 else f"{x:.4g}"
+
+
 def _refused(x, r, prev, basis, confidence) -> dict:
-    reached = (f"; up to {prev[0]:,.0f} more, P(R >= target) only reaches {prev[1]['p']:.4f}"
+    reached = (f"; up to {_t(prev[0])} more, P(R >= target) only reaches {prev[1]['p']:.4f}"
                if prev else "")
     return {"found": False, "basis": basis, "refused": True, "pareto_k": r["pareto_k"],
             "weights_ess": r["ess"],
-            "words": f"cannot say how much longer to test by reweighting: beyond {x:,.0f} more "
+            "words": f"cannot say how much longer to test by reweighting: beyond {_t(x)} more "
                      f"the weights degenerate (Pareto k {r['pareto_k']:.2f}, "
                      f"{r['ess']:.0f} effective draws; needed k <= {K_MAX}, >= "
                      f"{ESS_MIN:.0f}){reached}. The extra evidence would outweigh the present "

@@ -168,9 +168,9 @@ def test_named_pair_and_bad_pair(examples, capsys):
 
 # ------------------------------------------------------------------ other distributions
 
-def lognormal_parts(seed, n=40, mu=math.log(500.0), sigma=0.6):
+def lognormal_parts(seed, n=40, median=500.0, sigma=0.6):
     rng = np.random.default_rng(seed)
-    life = np.exp(rng.normal(mu, sigma, n))
+    life = np.exp(rng.normal(math.log(median), sigma, n))
     stop = 700.0
     return {"failures": life[life < stop], "suspensions": np.full((life >= stop).sum(), stop)}
 

@@ -17,6 +17,7 @@ from scipy import special
 
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
+from qualbayes.mcse import mcse_mean
 from qualbayes.models.weibull import (
     GroupStats,
     LifePrior,
@@ -181,8 +182,10 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
     q = weibull_quantities(beta, eta, mission)
     r = q["reliability_at_mission"]
     prob = float(np.mean(r >= target))
-    ess = diagnostics["min_ess_bulk"]
-    mcse = math.sqrt(max(prob * (1 - prob), 1e-300) / max(ess, 1.0))
+    # MCSE of the indicator's mean with its own autocorrelation (qualbayes.mcse); the draws
+    # are flattened chain by chain
+    chains = diagnostics.get("settings", {}).get("chains") or 1
+    mcse = float(mcse_mean((r >= target).astype(float).reshape(chains, -1)))
     decision = decide(prob, confidence, ok, labels=(MEETS, DOES_NOT_MEET))
     out = {
         "group": name,

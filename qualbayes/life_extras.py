@@ -13,7 +13,7 @@ from qualbayes.life_checks import compare, extrapolation, loo
 from qualbayes.life_compare import compare_groups, pairs
 from qualbayes.life_models import FAMILIES, LABELS, fit_alternatives, max_likelihood, reliability
 from qualbayes.life_remaining import remaining_time
-from qualbayes.mcse import mcse_mean
+from qualbayes.mcse import is_close_call, mcse_mean
 from qualbayes.models.censored import observations
 from qualbayes.models.lognormal import LognormalPrior, sigma_from_shape_range
 from qualbayes.questions import DOES_NOT_MEET, MEETS, UNDECIDED, decide
@@ -146,6 +146,12 @@ def _models(g: dict, per_family: dict, gates: dict, obs, result) -> dict:
                 diff = other["reliability_at_mission"]["median"] - rb
                 words.append(f"R(mission) differs by {diff:+.4f} between {LABELS[best]} "
                              f"and {LABELS[row['family']]} (posterior medians)")
+    for r in rows:
+        if r["passed"] and is_close_call(r["prob_meets_target"],
+                                         r["prob_meets_target_mc_error"], result.confidence):
+            words.append(f"under {LABELS[r['family']]} P(R >= target) = "
+                         f"{r['prob_meets_target']:.4f} is within 3 Monte Carlo standard errors "
+                         f"of {result.confidence:g}: too close to call at this precision")
     decisions = {r["decision"] for r in rows}
     if len(decisions) > 1:
         words.append("the decision depends on the distribution: " + ", ".join(

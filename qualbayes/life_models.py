@@ -224,64 +224,85 @@ def _ml_answers(family: str, d: dict, mission: float) -> dict:
 def fit_alternatives(obs_list: list[Observations], names: list[str], mission: float,
                      settings, lognormal_prior: logn.LognormalPrior) -> dict:
     """Lognormal (NUTS) and exponential (exact Gamma draws when conjugate, else NUTS) fits of
-    every group: {family: {group: (draws, gate dict)}}."""
+    every group: {family: {group: (draws as (chain, draw) arrays, gate dict)}}. As for the
+    Weibull, a joint fit that fails its gate is redone group by group, so that one difficult
+    group does not take the others' answers with it."""
+    from qualbayes.models.life import pad_groups  # noqa: F401, PLC0415 - configures jax
+
+    rng = np.random.default_rng(settings.seed)
+    out: dict = {"lognormal": _each_if_failed(
+        lambda o, n: _fit_lognormal(o, n, mission, settings, lognormal_prior, rng),
+        obs_list, names)}
+    shape = (settings.num_chains, settings.num_samples)
+    out["exponential"] = {}
+    for o, g in zip(obs_list, names, strict=True):
+        if o.conjugate:
+            total = float(o.exact @ o.w_exact + o.right @ o.w_right)
+            u = expo.conjugate_draws(o.failures, total, o.t_ref, shape[0] * shape[1], rng)
+            out["exponential"][g] = ({"u": u.reshape(shape), "t_ref": o.t_ref},
+                                     {"passed": True, "method": "exact Gamma draws "
+                                      "(conjugate)", "reasons": []})
+    rest = [(o, g) for o, g in zip(obs_list, names, strict=True) if not o.conjugate]
+    if rest:
+        out["exponential"].update(_each_if_failed(
+            lambda o, n: _fit_exponential(o, n, settings, rng),
+            [o for o, _ in rest], [g for _, g in rest]))
+    return out
+
+
+def _each_if_failed(fit, obs_list, names) -> dict:
+    result, passed = fit(obs_list, names)
+    if not passed and len(names) > 1:
+        for o, g in zip(obs_list, names, strict=True):
+            result.update(fit([o], [g])[0])
+    return result
+
+
+def _fit_lognormal(obs_list, names, mission, settings, prior, rng):
+    from functools import partial  # noqa: PLC0415
+
     import jax.numpy as jnp  # noqa: PLC0415
 
     from qualbayes.inference import run_nuts  # noqa: PLC0415
     from qualbayes.models.censored import pad  # noqa: PLC0415
-    from qualbayes.models.life import pad_groups  # noqa: F401, PLC0415 - configures jax
 
-    log_tref = np.log([o.t_ref for o in obs_list])
-    padded = {k: jnp.asarray(v) for k, v in pad(obs_list).items()}
-    rng = np.random.default_rng(settings.seed)
-    out: dict = {"lognormal": {}, "exponential": {}}
-
-    modes = [lognormal_sampling_mode(o, lognormal_prior) for o in obs_list]
+    modes = [lognormal_sampling_mode(o, prior) for o in obs_list]
     center = np.array([m[0] for m in modes])
     chol = np.stack([np.linalg.cholesky(m[1]) for m in modes])
     init = {"z": jnp.asarray(rng.uniform(-1, 1, (settings.num_chains, len(obs_list), 2)))}
 
-    def gate_ln(draws):
+    def gate_on(draws):
         r = reliability("lognormal", draws, mission)
         return {f"{k}[{g}]": v[:, :, j] for j, g in enumerate(names)
                 for k, v in (("mu", draws["mu"]), ("log_sigma", draws["log_sigma"]),
                              ("R_mission", r))}
 
-    from functools import partial  # noqa: PLC0415
+    args = ({k: jnp.asarray(v) for k, v in pad(obs_list).items()},
+            jnp.asarray(np.log([o.t_ref for o in obs_list])), jnp.asarray(center),
+            jnp.asarray(chol))
+    fit = run_nuts(partial(logn.lognormal_life_model, prior=prior), args, settings,
+                   gate_on=gate_on, init_params=init)
+    return {g: ({"mu": fit.draws["mu"][:, :, j], "log_sigma": fit.draws["log_sigma"][:, :, j]},
+                fit.gate.select(g).to_dict()) for j, g in enumerate(names)}, fit.gate.passed
 
-    fit = run_nuts(partial(logn.lognormal_life_model, prior=lognormal_prior),
-                   (padded, jnp.asarray(log_tref), jnp.asarray(center), jnp.asarray(chol)),
-                   settings, gate_on=gate_ln, init_params=init)
-    for j, g in enumerate(names):
-        out["lognormal"][g] = ({"mu": fit.draws["mu"][:, :, j],
-                                "log_sigma": fit.draws["log_sigma"][:, :, j]},
-                               fit.gate.select(g).to_dict())
 
-    need_nuts = [j for j, o in enumerate(obs_list) if not o.conjugate]
-    shape = (settings.num_chains, settings.num_samples)
-    for j, o in enumerate(obs_list):
-        if o.conjugate:
-            total = float(o.exact @ o.w_exact + o.right @ o.w_right)
-            u = expo.conjugate_draws(o.failures, total, o.t_ref, shape[0] * shape[1], rng)
-            out["exponential"][names[j]] = ({"u": u.reshape(shape), "t_ref": o.t_ref},
-                                            {"passed": True, "method": "exact Gamma draws "
-                                             "(conjugate)", "reasons": []})
-    if need_nuts:
-        sub = [obs_list[j] for j in need_nuts]
-        sub_names = [names[j] for j in need_nuts]
-        ms = [exponential_mode(o) for o in sub]
-        c = jnp.asarray([m[0][0] for m in ms])
-        sd = jnp.asarray([math.sqrt(m[1][0, 0]) for m in ms])
-        data = {k: jnp.asarray(v) for k, v in pad(sub).items()}
+def _fit_exponential(obs_list, names, settings, rng):
+    import jax.numpy as jnp  # noqa: PLC0415
 
-        def gate_ex(draws):
-            return {f"u[{g}]": draws["u"][:, :, j] for j, g in enumerate(sub_names)}
+    from qualbayes.inference import run_nuts  # noqa: PLC0415
+    from qualbayes.models.censored import pad  # noqa: PLC0415
 
-        init = {"z": jnp.asarray(rng.uniform(-1, 1, (settings.num_chains, len(sub))))}
-        fit = run_nuts(expo.exponential_life_model,
-                       (data, jnp.asarray(np.log([o.t_ref for o in sub])), c, sd),
-                       settings, gate_on=gate_ex, init_params=init)
-        for j, g in enumerate(sub_names):
-            out["exponential"][g] = ({"u": fit.draws["u"][:, :, j], "t_ref": sub[j].t_ref},
-                                     fit.gate.select(g).to_dict())
-    return out
+    modes = [exponential_mode(o) for o in obs_list]
+    center = jnp.asarray([m[0][0] for m in modes])
+    sd = jnp.asarray([math.sqrt(m[1][0, 0]) for m in modes])
+    init = {"z": jnp.asarray(rng.uniform(-1, 1, (settings.num_chains, len(obs_list))))}
+
+    def gate_on(draws):
+        return {f"u[{g}]": draws["u"][:, :, j] for j, g in enumerate(names)}
+
+    args = ({k: jnp.asarray(v) for k, v in pad(obs_list).items()},
+            jnp.asarray(np.log([o.t_ref for o in obs_list])), center, sd)
+    fit = run_nuts(expo.exponential_life_model, args, settings, gate_on=gate_on,
+                   init_params=init)
+    return {g: ({"u": fit.draws["u"][:, :, j], "t_ref": obs_list[j].t_ref},
+                fit.gate.select(g).to_dict()) for j, g in enumerate(names)}, fit.gate.passed

@@ -59,6 +59,14 @@ def _wy(p: float) -> float:
     return math.log(-math.log1p(-p))
 
 
+def _save(fig, path: Path, force: bool) -> None:
+    import matplotlib.pyplot as plt  # noqa: PLC0415
+
+    fig.tight_layout()
+    write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
+    plt.close(fig)
+
+
 def draw_probability(group: dict, question: dict, path: Path, force: bool = False) -> Path:
     import matplotlib  # noqa: PLC0415
 
@@ -102,9 +110,7 @@ def draw_probability(group: dict, question: dict, path: Path, force: bool = Fals
                      f"median ranks (adjusted ranks, Bernard); {p['units']} units, "
                      f"{group['failures']} failures", fontsize=9)
         ax.legend(loc="upper left", fontsize=8)
-        fig.tight_layout()
-        write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
-        plt.close(fig)
+        _save(fig, path, force)
     return path
 
 
@@ -139,9 +145,7 @@ def draw_reliability(group: dict, question: dict, path: Path, force: bool = Fals
         ax.set_title(f"Reliability - {group['group']}: decision {group['decision']}",
                      fontsize=9)
         ax.legend(loc="lower left", fontsize=8)
-        fig.tight_layout()
-        write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
-        plt.close(fig)
+        _save(fig, path, force)
     return path
 
 
@@ -180,9 +184,7 @@ def draw_fit_check(group: dict, question: dict, path: Path, force: bool = False)
                      "failures\n(units on test until their failure or suspension)",
                      fontsize=9)
         ax.legend(loc="upper right", fontsize=7)
-        fig.tight_layout()
-        write_atomic(path, lambda tmp: fig.savefig(tmp, format="png"), force)
-        plt.close(fig)
+        _save(fig, path, force)
     return path
 
 

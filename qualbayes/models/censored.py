@@ -129,3 +129,11 @@ def pad(many: list[Observations]) -> dict[str, np.ndarray]:
 def arrays(obs: Observations) -> dict[str, np.ndarray]:
     """One group's observations in the keys of :func:`pad` (1-D arrays)."""
     return {k: v[0] for k, v in pad([obs]).items()}
+
+
+def weighted_sum(terms: dict, obs: dict, xp=np):
+    """The log-likelihood: each kind's terms (..., n_kind) times its counts, summed."""
+    return (xp.sum(obs["e_w_exact"] * terms["exact"], axis=-1)
+            + xp.sum(obs["r_w_right"] * terms["right"], axis=-1)
+            + xp.sum(obs["i_w_int"] * terms["interval"], axis=-1)
+            + xp.sum(obs["l_w_left"] * terms["left"], axis=-1))

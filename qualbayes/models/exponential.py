@@ -31,6 +31,7 @@ import math
 
 import numpy as np
 
+from qualbayes.models.censored import weighted_sum
 from qualbayes.models.weibull import log1mexp_from_log
 
 PRIOR_TEXT = ("mean life: uniform on the cumulative hazard t_ref/theta at t_ref (the "
@@ -53,11 +54,7 @@ def terms(u, log_tref, obs: dict, xp=np) -> dict:
 
 def log_likelihood(u, log_tref, obs: dict, xp=np):
     """The weighted sum of :func:`terms` over the last axis."""
-    t = terms(u, log_tref, obs, xp)
-    return (xp.sum(obs["e_w_exact"] * t["exact"], axis=-1)
-            + xp.sum(obs["r_w_right"] * t["right"], axis=-1)
-            + xp.sum(obs["i_w_int"] * t["interval"], axis=-1)
-            + xp.sum(obs["l_w_left"] * t["left"], axis=-1))
+    return weighted_sum(terms(u, log_tref, obs, xp), obs, xp)
 
 
 def log_prior(u):
@@ -94,4 +91,3 @@ def exponential_life_model(obs, log_tref, center, scale):
     numpyro.factor("log_posterior", jnp.sum(lp))
 
 
-LN_R10 = -math.log(0.9)  # -ln(1 - 0.10)

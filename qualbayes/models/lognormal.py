@@ -35,6 +35,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from qualbayes.models.censored import weighted_sum
+
 LOG_2PI = math.log(2.0 * math.pi)
 GUMBEL_SD = math.pi / math.sqrt(6.0)  # sd of log life of a Weibull with shape 1 (1.2825)
 
@@ -99,11 +101,7 @@ def terms(mu, s, obs: dict, xp=np) -> dict:
 
 def log_likelihood(mu, s, obs: dict, xp=np):
     """The weighted sum of :func:`terms` over the last axis."""
-    t = terms(mu, s, obs, xp)
-    return (xp.sum(obs["e_w_exact"] * t["exact"], axis=-1)
-            + xp.sum(obs["r_w_right"] * t["right"], axis=-1)
-            + xp.sum(obs["i_w_int"] * t["interval"], axis=-1)
-            + xp.sum(obs["l_w_left"] * t["left"], axis=-1))
+    return weighted_sum(terms(mu, s, obs, xp), obs, xp)
 
 
 def log_prior(mu, s, log_tref, prior: LognormalPrior, xp=np):

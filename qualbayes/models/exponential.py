@@ -27,8 +27,6 @@ independent; otherwise NUTS samples u (:func:`exponential_life_model`).
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from qualbayes.models.censored import weighted_sum

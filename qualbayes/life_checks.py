@@ -42,6 +42,7 @@ from qualbayes.models.censored import Observations
 ELPD_SMALL = 4.0  # an elpd difference below this is small (Sivula et al. 2022)
 SE_FACTOR = 2.0
 MAX_CELLS = 20_000_000  # draws x observations for LOO (draws are thinned beyond this)
+LOO_DRAWS = 2000  # at most this many draws for PSIS (evenly thinned; ArviZ's loop is slow)
 PPC_DRAWS = 1000
 PPC_MISFIT = 0.05
 
@@ -58,7 +59,7 @@ def loo(family: str, draws: dict, obs: Observations) -> dict:
 
     n_obs = obs.weights().size
     size = next(np.size(v) for k, v in draws.items() if k != "t_ref")
-    take = thin_index(size, max(MAX_CELLS // max(n_obs, 1), 200))
+    take = thin_index(size, min(LOO_DRAWS, max(MAX_CELLS // max(n_obs, 1), 200)))
     d = {k: (np.asarray(v).reshape(-1)[take] if k != "t_ref" else v) for k, v in draws.items()}
     ll = log_lik_pointwise(family, d, obs).T  # (n, S)
     with warnings.catch_warnings():

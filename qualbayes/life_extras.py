@@ -71,7 +71,9 @@ def add_extras(result, arrays: dict[str, dict], *, compare: list[str] | None = N
             _extrapolation_words(g, obs[name], result)
             g["notes"].append(g["extrapolation"]["words"])
         if check_fit:
-            g["fit_check"] = [c for f, d in per_family.items()
+            converged = {f: d for f, d in per_family.items()
+                         if f == "weibull" or alt[f][name][1]["passed"]}
+            g["fit_check"] = [c for f, d in converged.items()
                               if (c := fit_check(f, d, obs[name], result.confidence, rng))]
             if not g["fit_check"]:
                 g["notes"].append("check of fit: fewer than 3 failures, nothing to check")
@@ -126,9 +128,10 @@ def _models(g: dict, per_family: dict, gates: dict, obs, result) -> dict:
         p, mc = float(good.mean()), float(mcse_mean(good))
         tail = (1.0 - result.confidence) / 2.0
         lo, med, hi = np.quantile(r.reshape(-1), [tail, 0.5, 1.0 - tail])
-        rows.append({"family": f, "passed": passed,
+        rows.append({"family": f, "passed": passed,  # no numbers from a failed gate
                      "reliability_at_mission": {"median": float(med),
-                                                "interval": [float(lo), float(hi)]},
+                                                "interval": [float(lo), float(hi)]}
+                     if passed else None,
                      "prob_meets_target": p if passed else None,
                      "prob_meets_target_mc_error": mc if passed else None,
                      "decision": decide(p, result.confidence, passed,
@@ -157,5 +160,4 @@ def _models(g: dict, per_family: dict, gates: dict, obs, result) -> dict:
         words.append("the decision depends on the distribution: " + ", ".join(
             f"{r['decision']} under {LABELS[r['family']]}" for r in rows))
     g["notes"] += words
-    return {"by_model": rows, "loo": comparison and {k: v for k, v in comparison.items()},
-            "words": words}
+    return {"by_model": rows, "loo": comparison, "words": words}

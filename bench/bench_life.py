@@ -37,6 +37,9 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--units", type=int, default=100_000)
     ap.add_argument("--mission", type=float, default=500.0)
+    ap.add_argument("--extra", action="append", default=[],
+                    help="keyword of assess_life to switch on for the end-to-end timing "
+                         "(e.g. compare_models, check_fit)")
     args = ap.parse_args()
     os.environ.setdefault("CI", "true")
 
@@ -87,6 +90,30 @@ def main() -> None:
     print(f"posterior median shape {np.median(beta):.4f}, scale {np.median(eta):.1f}; "
           f"scipy MLE shape {c:.4f}, scale {scale:.1f}; true shape 2, scale 1000")
     print("target: wall < 8 s, min bulk ESS >= 1,000")
+    print(assess_timing(t, failed, args.mission, args.extra))
+
+
+def assess_timing(t, failed, mission: float, extra: list[str]) -> str:
+    """Wall time of the whole ``life`` question (``assess_life``: fit, summaries, notes and
+    the default add-ons) on the same units, read from a CSV as the command reads them."""
+    import tempfile
+
+    import pandas as pd
+
+    from qualbayes.data.life import read_life
+    from qualbayes.life_analysis import assess_life
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "units.csv"
+        pd.DataFrame({"unit": np.arange(t.size), "time": t,
+                      "status": np.where(failed, "F", "S")}).to_csv(path, index=False)
+        table = read_life(path)
+    kwargs = {name: True for name in extra}
+    t0 = time.perf_counter()
+    res = assess_life(table, mission, 0.9, 0.9, **kwargs)
+    wall = time.perf_counter() - t0
+    return (f"assess_life end to end ({', '.join(extra) or 'default options'}): {wall:.2f} s, "
+            f"decision {res.groups[0]['decision']}")
 
 
 if __name__ == "__main__":

@@ -17,6 +17,7 @@ from scipy import special
 
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
+from qualbayes.mcse import mcse_mean
 from qualbayes.models.weibull import (
     GroupStats,
     LifePrior,
@@ -52,6 +53,7 @@ class LifeAssessment:
     model: str = MODEL_TEXT
     draws: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
+    comparisons: list[dict] = field(default_factory=list)  # see qualbayes.life_compare
 
     @property
     def converged(self) -> bool:
@@ -98,9 +100,20 @@ def check_prior_use(table: LifeTable, stats: dict[str, GroupStats], prior: LifeP
 
 def assess_life(table: LifeTable, mission: float, target: float, confidence: float = 0.9,
                 prior: LifePrior | None = None, seed: int = 20261202,
-                settings=None) -> LifeAssessment:
-    """Answer "is P(R(mission) >= target | data) >= confidence?" for every group."""
+                settings=None, *, compare: list[str] | None = None,
+                compare_models: bool = False, check_fit: bool = False,
+                new_units: int | None = None) -> LifeAssessment:
+    """Answer "is P(R(mission) >= target | data) >= confidence?" for every group.
+
+    Then (:mod:`qualbayes.life_extras`): comparisons of every pair of groups (or the named
+    pairs ``compare=["A,B"]``), the remaining test time of undecided groups (of the running
+    units, or of ``new_units`` new ones), the extrapolation warning and the data-alone answer;
+    with ``compare_models`` the lognormal and exponential fits and their PSIS-LOO comparison,
+    with ``check_fit`` the posterior predictive check of failures in time bins.
+    """
     from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.life_compare import pairs  # noqa: PLC0415
+    from qualbayes.life_extras import add_extras  # noqa: PLC0415
     from qualbayes.models.life import fit_life  # noqa: PLC0415
 
     prior = prior or LifePrior()
@@ -109,6 +122,7 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     stats = {g: st for g, (_, st) in data.items()}
     check_prior_use(table, stats, prior)
     names = list(stats)
+    pairs(names, compare)  # a bad --compare is refused before any sampling
     modes = [posterior_mode(stats[g], prior) for g in names]
     settings = settings or SamplerSettings(seed=seed)
     fit = fit_life([stats[g] for g in names], modes, prior, settings, names, mission)
@@ -133,8 +147,12 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     if not all(r["diagnostics"]["passed"] for r in groups):
         notes.append("the convergence gate failed for at least one group: it carries "
                      "'not-converged' and no decision")
-    return LifeAssessment(groups, mission, target, confidence, prior, table.units,
-                          settings.seed, draws=draws, notes=notes)
+    result = LifeAssessment(groups, mission, target, confidence, prior, table.units,
+                            settings.seed, draws=draws, notes=notes)
+    add_extras(result, {g: data[g][0] for g in names}, compare=compare,
+               compare_models=compare_models, check_fit=check_fit, new_units=new_units,
+               settings=settings)
+    return result
 
 
 # --------------------------------------------------------------------------- summaries
@@ -164,8 +182,10 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
     q = weibull_quantities(beta, eta, mission)
     r = q["reliability_at_mission"]
     prob = float(np.mean(r >= target))
-    ess = diagnostics["min_ess_bulk"]
-    mcse = math.sqrt(max(prob * (1 - prob), 1e-300) / max(ess, 1.0))
+    # MCSE of the indicator's mean with its own autocorrelation (qualbayes.mcse); the draws
+    # are flattened chain by chain
+    chains = diagnostics.get("settings", {}).get("chains") or 1
+    mcse = float(mcse_mean((r >= target).astype(float).reshape(chains, -1)))
     decision = decide(prob, confidence, ok, labels=(MEETS, DOES_NOT_MEET))
     out = {
         "group": name,

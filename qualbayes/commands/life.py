@@ -37,6 +37,19 @@ def register(sub) -> None:
     p.add_argument("--units", default="", help="time units for display: h, cycles, km, ...")
     p.add_argument("--group", action="append", metavar="NAME",
                    help="analyse only this group (repeat for several)")
+    p.add_argument("--compare", action="append", metavar="A,B",
+                   help="compare group A with group B (repeat for several pairs; default: "
+                        "every pair): P(R_A(mission) > R_B(mission)), the ratio of B10 "
+                        "lives and the shape difference")
+    p.add_argument("--new-units", type=int, metavar="N",
+                   help="for an undecided group, the further test time N new units would "
+                        "need without failure (default: the suspended units kept running)")
+    p.add_argument("--compare-models", action="store_true",
+                   help="also fit lognormal and exponential lives: PSIS-LOO comparison in "
+                        "words and the decision under each distribution (slower)")
+    p.add_argument("--check-fit", action="store_true",
+                   help="posterior predictive check: observed against predicted failures "
+                        "in time bins, respecting censoring, with a figure per group")
     add_prior_options(p, "life", "life")
     add_output_options(p)
     p.set_defaults(func=run)
@@ -45,6 +58,7 @@ def register(sub) -> None:
 def run(args) -> int:
     from qualbayes.commands import convert  # noqa: PLC0415
     from qualbayes.commands.pipeline import Command, execute  # noqa: PLC0415
+    from qualbayes.errors import OptionError  # noqa: PLC0415
     from qualbayes.models.weibull import make_prior  # noqa: PLC0415
 
     mission = convert.mission(args.mission)
@@ -54,6 +68,8 @@ def run(args) -> int:
     convert.max_rows(args.max_rows)
     base_prior = make_prior(args.shape_prior, args.blife_prior, args.reliability_prior)
     units = convert.units(args.units)
+    if args.new_units is not None and args.new_units < 1:
+        raise OptionError(f"--new-units {args.new_units}: give a positive number of units")
 
     def compute() -> dict:
         from qualbayes.commands.prior_options import (  # noqa: PLC0415
@@ -71,7 +87,9 @@ def run(args) -> int:
         stats = {g: st for g, (_, st) in group_data(data).items()}
         check_prior_use(data, stats, prior)  # refuse before the sampler starts
         sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
-        result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
+        result = assess_life(data, mission, target, confidence, prior, seed=args.seed,
+                             compare=args.compare, compare_models=args.compare_models,
+                             check_fit=args.check_fit, new_units=args.new_units)
         record = life_record(result, data, sha, command_line(args.argv), versions())
         record.update(life_prior_evidence(args, result, data, prior, setup))
         return record
@@ -90,6 +108,7 @@ def _evidence(record: dict, args) -> dict:
     from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
     from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
     from qualbayes.evidence.life_plots import (  # noqa: PLC0415
+        draw_fit_check,
         draw_probability,
         draw_reliability,
         figure_names,
@@ -100,12 +119,15 @@ def _evidence(record: dict, args) -> dict:
     files = {WORKBOOK: workbook_writer(life_sheets(record)),
              RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
     q = record["question"]
-    names = figure_names([g["group"] for g in record["groups"]])
-    for group, (_, prob_name, rel_name) in zip(record["groups"], names, strict=True):
+    checked = any(g.get("fit_check") for g in record["groups"])
+    names = figure_names([g["group"] for g in record["groups"]], checked)
+    for group, (_, prob_name, rel_name, *more) in zip(record["groups"], names, strict=True):
         if group["plot"] is None:
             continue
         files[prob_name] = lambda p, g=group: draw_probability(g, q, p, force=True)
         files[rel_name] = lambda p, g=group: draw_reliability(g, q, p, force=True)
+        if group.get("fit_check"):
+            files[more[0]] = lambda p, g=group: draw_fit_check(g, q, p, force=True)
     if used(args):
         files[FIGURE] = figure_file(record)
     return files

@@ -33,8 +33,9 @@ def safe_name(group: str) -> str:
     return (text or "group")[:40]
 
 
-def figure_names(record_groups: list[str]) -> list[tuple[str, str, str]]:
-    """(group, probability-plot file, R(t) file) for each group, names made unique."""
+def figure_names(record_groups: list[str], fit_check: bool = False) -> list[tuple]:
+    """(group, probability-plot file, R(t) file[, check-of-fit file]) for each group, names
+    made unique."""
     out, used = [], set()
     for g in record_groups:
         base = safe_name(g)
@@ -42,7 +43,8 @@ def figure_names(record_groups: list[str]) -> list[tuple[str, str, str]]:
         while name in used:
             name, k = f"{base}_{k}", k + 1
         used.add(name)
-        out.append((g, f"life_probability_{name}.png", f"life_reliability_{name}.png"))
+        files = (f"life_probability_{name}.png", f"life_reliability_{name}.png")
+        out.append((g, *files, f"life_fit_check_{name}.png") if fit_check else (g, *files))
     return out
 
 
@@ -159,6 +161,46 @@ def reliability_figure(group: dict, question: dict):
     return fig
 
 
+def fit_check_figure(group: dict, question: dict):
+    """Observed failures per time bin (filled circles) against the posterior predictive
+    median (short bar) and central range (vertical line) of each fitted distribution."""
+    plt = _pyplot()
+    checks = group["fit_check"]
+    u = question["units"]
+    edges = checks[0]["edges"]
+    labels = []
+    for lo, hi in zip(edges[:-1], edges[1:], strict=True):
+        right = "end" if hi is None or hi == float("inf") else f"{hi:,.4g}"
+        labels.append(f"{lo:,.4g} - {right}")
+    shades = ("black", "#666666", "#999999")
+    with plt.rc_context(STYLE):
+        fig, ax = plt.subplots(figsize=(6.4, 4.2))
+        width = 0.6 / len(checks)
+        for j, c in enumerate(checks):
+            xs = [k - 0.3 + width * (j + 0.5) for k in range(len(labels))]
+            ax.vlines(xs, c["predicted_low"], c["predicted_high"], color=shades[j % 3],
+                      linewidth=2.0, label=f"{c['family']}: {c['band']}, p = "
+                                           f"{c['p_value']:.3f}")
+            ax.scatter(xs, c["predicted_median"], marker="_", s=120, color=shades[j % 3])
+        ax.scatter(range(len(labels)), checks[0]["observed"], marker="o", color="black",
+                   zorder=3, s=30, label="observed failures")
+        ax.set_xticks(range(len(labels)))
+        ax.set_xticklabels(labels, rotation=20, fontsize=8)
+        ax.set_xlabel(f"time bin{f' ({u})' if u else ''}")
+        ax.set_ylabel("failures in the bin")
+        ax.set_title(f"Check of fit - {group['group']}: observed against predicted "
+                     "failures\n(units on test until their failure or suspension)",
+                     fontsize=9)
+        ax.legend(loc="upper right", fontsize=7)
+        fig.tight_layout()
+    return fig
+
+
+
+def draw_fit_check(group: dict, question: dict, path: Path, force: bool = False) -> Path:
+    return _save(fit_check_figure(group, question), path, force)
+
+
 def group_figures(record: dict) -> list[tuple[str, str, object]]:
     """(group, kind, Figure) for both figures of every group that has an answer; kind is
     'probability' or 'reliability'."""
@@ -169,16 +211,23 @@ def group_figures(record: dict) -> list[tuple[str, str, object]]:
                         probability_figure(group, record["question"])))
             out.append((group["group"], "reliability",
                         reliability_figure(group, record["question"])))
+        if group.get("fit_check"):
+            out.append((group["group"], "fit check",
+                        fit_check_figure(group, record["question"])))
     return out
 
 
 def draw_all(record: dict, folder: Path, force: bool = False) -> list[Path]:
-    """Both figures of every group that has an answer."""
+    """Both figures of every group that has an answer, and its check-of-fit figure when the
+    run made one."""
     written = []
-    names = figure_names([g["group"] for g in record["groups"]])
-    for group, (_, prob_name, rel_name) in zip(record["groups"], names, strict=True):
+    checked = any(g.get("fit_check") for g in record["groups"])
+    names = figure_names([g["group"] for g in record["groups"]], checked)
+    for group, (_, prob_name, rel_name, *more) in zip(record["groups"], names, strict=True):
         if group["plot"] is None:
             continue
         written.append(draw_probability(group, record["question"], folder / prob_name, force))
         written.append(draw_reliability(group, record["question"], folder / rel_name, force))
+        if group.get("fit_check"):
+            written.append(draw_fit_check(group, record["question"], folder / more[0], force))
     return written

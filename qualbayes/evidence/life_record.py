@@ -12,6 +12,7 @@ from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.life import LifeTable
 from qualbayes.evidence.explain import NEXT_STEP, gate_line, life_columns
 from qualbayes.evidence.jsonout import plain
+from qualbayes.evidence.life_extras_record import extras_lines, extras_sheets
 from qualbayes.evidence.numbers import plural, probability, quantity
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
@@ -41,6 +42,7 @@ def life_record(result: LifeAssessment, data: LifeTable, sha256: str, command: s
         "model": result.model, "prior": result.prior.describe(result.units),
         "seed": result.seed,
         "groups": result.groups, "notes": result.notes,
+        "comparisons": result.comparisons,
         "posterior_draws": {g: d["chains"] for g, d in (result.draws or {}).items()
                             if "chains" in d},
         "decision_counts": decisions,
@@ -104,8 +106,9 @@ def life_text(record: dict) -> str:
     tail = [f"decisions: {counts}", *record["notes"], NEXT_STEP, CAUTION]
     head += prior_lines(record)
     detail += sensitivity_lines(record)
-    return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrl"), "", *detail, "",
-                      *tail])
+    more = extras_lines(record)
+    return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrl"), *more, "", *detail,
+                      "", *tail])
 
 
 def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
@@ -186,5 +189,5 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
     prov += [[f"column {k}", v] for k, v in record["input"]["columns"].items()]
     prov += [[f"version {k}", v] for k, v in record["versions"].items()]
     sheets.update({"Model and prior": model, "Diagnostics": diag, "Cautions": cautions,
-                   "Provenance": prov, **prior_sheets(record)})
+                   "Provenance": prov, **prior_sheets(record), **extras_sheets(record)})
     return sheets

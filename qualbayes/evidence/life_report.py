@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from qualbayes.evidence.document import Figure, Paragraph, Report, Section, Table
+from qualbayes.evidence.life_extras_record import extras_sections
 from qualbayes.evidence.numbers import probability
 from qualbayes.evidence.prior_record import prior_sections
 from qualbayes.evidence.report_common import (
@@ -19,17 +20,24 @@ def _mi(s: dict | None, key: str = "median"):
     return None if not s else s.get(key)
 
 
+CAPTIONS = {
+    "probability": ("Weibull probability plot",
+                    "Posterior median line with its credible band; points: median ranks "
+                    "(adjusted for suspensions, Bernard's approximation)"),
+    "reliability": ("Reliability R(t)", "Posterior median line with its credible band"),
+    "fit check": ("Check of fit",
+                  "Observed failures per time bin against each distribution's posterior "
+                  "predictive median and range (units count only while on test)"),
+}
+
+
 def _figures(record: dict) -> list[Figure]:
     from qualbayes.evidence.life_plots import group_figures  # noqa: PLC0415 - matplotlib
 
     out = []
     for k, (name, kind, fig) in enumerate(group_figures(record)):
-        title = "Weibull probability plot" if kind == "probability" else "Reliability R(t)"
-        out.append(Figure(f"{title}: {name}", fig,
-                          "Posterior median line with its credible band"
-                          + ("; points: median ranks (adjusted for suspensions, "
-                             "Bernard's approximation)" if kind == "probability" else ""),
-                          f"fig-life-{k}"))
+        title, caption = CAPTIONS[kind]
+        out.append(Figure(f"{title}: {name}", fig, caption, f"fig-life-{k}"))
     return out
 
 
@@ -102,6 +110,7 @@ def build(record: dict) -> Report:
         *prior_sections(record),
         diagnostics_section(record_d),
         Section("Results", [results, intervals]),
+        *extras_sections(record),
         Section("Figures", (_figures(record) + _rank_figures(record)) or [
             Paragraph("No figures: no group has a result.")]),
         caution_section(record),

@@ -66,9 +66,11 @@ def stress_levels(stress: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return levels, index.reshape(-1)
 
 
-def check_identified(table: StressLifeTable, terms, failed: np.ndarray) -> None:
-    """Refuse what the data and priors cannot answer, before any fitting."""
-    if not failed.any():
+def check_identified(table: StressLifeTable, terms, kind: np.ndarray) -> None:
+    """Refuse what the data and priors cannot answer, before any fitting: no failures at
+    all; a flat-prior coefficient that the failures (exact or interval) cannot show."""
+    failed = np.isin(kind, ("failure", "interval"))
+    if not np.isin(kind, ("failure", "interval", "left")).any():
         raise InputError("no failures at any stress level: an accelerated test without "
                          "failures says nothing about the life-stress relation; test longer "
                          "or at higher stress", file=table.life.file, sheet=table.life.sheet)
@@ -97,34 +99,14 @@ def assess_at_use(table: StressLifeTable, terms, mission: float, target: float,
     check_question(mission, target, confidence)
     terms = tuple(terms)
     prior = prior or ls.StressPrior()
+    settings = settings or SamplerSettings(seed=seed)
+    design, laplace = prepare(table, terms, distribution, prior)
+    gate_on = gate_quantities(design, terms, mission)
+    s_use = use_transform(terms)
     f = table.life.frame
     kind = f["kind"].to_numpy()
     failed = np.isin(kind, ("failure", "interval", "left"))
-    check_identified(table, terms, np.isin(kind, ("failure", "interval")) | failed)
-    s = np.column_stack([ls.transform(t.relation, table.stress[:, j])
-                         for j, t in enumerate(terms)])
     lower, upper = f["lower"].to_numpy(float), f["upper"].to_numpy(float)
-    design = ls.build_design(kind, lower, upper, s, distribution)
-    laplace = ls.posterior_mode(design, prior, terms)
-    if not laplace.converged:
-        raise InputError("the posterior mode could not be found: the data do not pin down "
-                         "the life-stress relation (too few failures, or failures at one "
-                         "level only); state the coefficient's range or test at more levels",
-                         file=table.life.file, sheet=table.life.sheet)
-    s_use = use_transform(terms)
-    log_t = math.log(mission)
-
-    def gate_on(draws):
-        th = draws["theta"]
-        nat = ls.natural(th, design)
-        mu_u = ls.location(th, design, s_use)[..., 0]
-        out = {"log_sigma[model]": th[..., 0], "gamma0[model]": nat["gamma0"]}
-        for j, t in enumerate(terms):
-            out[f"coefficient {t.column}[model]"] = nat["coef"][..., j]
-        out["z_use_mission[model]"] = (log_t - mu_u) / nat["sigma"]
-        return out
-
-    settings = settings or SamplerSettings(seed=seed)
     fit = fit_accelerated(design, laplace, prior, terms, settings, gate_on)
     theta = fit.draws["theta"]
     decision_info = _decision(theta, design, s_use, mission, target, confidence, distribution,
@@ -174,6 +156,61 @@ def assess_at_use(table: StressLifeTable, terms, mission: float, target: float,
     result["notes"] = notes
     return AcceleratedAssessment(result, mission, target, confidence, distribution, terms,
                                  prior, settings.seed, theta if ok else None, design, notes)
+
+
+def prepare(table: StressLifeTable, terms, distribution: str, prior: ls.StressPrior):
+    """Refuse what cannot be answered, build the design and find the posterior mode."""
+    kind = table.life.frame["kind"].to_numpy()
+    check_identified(table, terms, kind)
+    s = np.column_stack([ls.transform(t.relation, table.stress[:, j])
+                         for j, t in enumerate(terms)])
+    f = table.life.frame
+    design = ls.build_design(kind, f["lower"].to_numpy(float), f["upper"].to_numpy(float), s,
+                             distribution)
+    laplace = ls.posterior_mode(design, prior, terms)
+    if not laplace.converged:
+        raise InputError("the posterior mode could not be found: the data do not pin down "
+                         "the life-stress relation (too few failures, or failures at one "
+                         "level only); state the coefficient's range or test at more levels",
+                         file=table.life.file, sheet=table.life.sheet)
+    return design, laplace
+
+
+def gate_quantities(design: ls.Design, terms, time_at_use: float):
+    """The gate's quantities: log sigma, gamma0, each coefficient and the standardised log
+    time z = (log t - mu_use)/sigma at use (a monotone, non-saturating image of R(t))."""
+    s_use = use_transform(terms)
+    log_t = math.log(time_at_use)
+
+    def gate_on(draws):
+        th = draws["theta"]
+        nat = ls.natural(th, design)
+        mu_u = ls.location(th, design, s_use)[..., 0]
+        out = {"log_sigma[model]": th[..., 0], "gamma0[model]": nat["gamma0"]}
+        for j, t in enumerate(terms):
+            out[f"coefficient {t.column}[model]"] = nat["coef"][..., j]
+        out["z_use_mission[model]"] = (log_t - mu_u) / nat["sigma"]
+        return out
+
+    return gate_on
+
+
+def posterior_at_use(table: StressLifeTable, terms, distribution: str = "weibull",
+                     prior: ls.StressPrior | None = None, settings=None,
+                     time_at_use: float = 1.0):
+    """Draws of (mu_use, sigma) as a forecast needs them: returns (LifeDraws, gate dict)."""
+    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.models.accelerated import fit_accelerated  # noqa: PLC0415
+    from qualbayes.models.forecast import LifeDraws  # noqa: PLC0415
+
+    terms = tuple(terms)
+    prior = prior or ls.StressPrior()
+    design, laplace = prepare(table, terms, distribution, prior)
+    fit = fit_accelerated(design, laplace, prior, terms, settings or SamplerSettings(),
+                          gate_quantities(design, terms, time_at_use))
+    th = fit.draws["theta"]
+    mu = ls.location(th, design, use_transform(terms))[..., 0]
+    return LifeDraws(mu, np.exp(th[..., 0]), distribution), fit.gate.to_dict()
 
 
 def _decision(theta, design, s_use, mission, target, confidence, distribution, ok) -> dict:

@@ -23,8 +23,9 @@ from qualbayes.data.values import describe, is_blank, parse_real
 from qualbayes.errors import InputError, OptionError
 from qualbayes.models.life_stress import KELVIN_OFFSET
 
-_TEMP_UNIT = re.compile(r"(?:[\(\[]\s*(?:°|deg\s*)?([CK])\s*[\)\]])|(?:°\s*([CK]))|(?:deg\s*([CK]))\b",
-                        re.IGNORECASE)
+_TEMP_UNIT = re.compile(
+    r"(?:[\(\[]\s*(?:°|deg\s*)?([CK])\s*[\)\]])|(?:°\s*([CK]))|(?:deg\s*([CK]))\b",
+    re.IGNORECASE)
 _USE_TEMP = re.compile(r"^\s*([+-]?\d+(?:\.\d+)?)\s*(?:°|deg\s*)?\s*([CK])\s*$", re.IGNORECASE)
 
 

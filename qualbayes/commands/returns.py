@@ -171,6 +171,7 @@ def _accelerated_life(args, terms, prior, gate_time: float) -> dict:
 
     from qualbayes.accelerated_analysis import extrapolation, posterior_at_use  # noqa: PLC0415
     from qualbayes.commands.at_use import read_stress_data  # noqa: PLC0415
+    from qualbayes.evidence.accelerated_record import show_stress  # noqa: PLC0415
     from qualbayes.inference import SamplerSettings  # noqa: PLC0415
 
     data = read_stress_data(args, args.life, args.life_sheet, args.life_columns, 500_000, "",
@@ -180,7 +181,8 @@ def _accelerated_life(args, terms, prior, gate_time: float) -> dict:
     extra = extrapolation(data.stress, terms)
     return {"file": data.life.file,
             "source": f"accelerated fit ({args.distribution}) at the use condition "
-                      + ", ".join(f"{t.column} {t.use:g}" for t in terms),
+                      + ", ".join(f"{t.column} {show_stress(t.use, t.relation, tu)}"
+                                  for t, tu in zip(terms, data.temperature_units, strict=True)),
             "prior": [prior.describe(args.distribution), *[t.describe_prior() for t in terms]],
             "diagnostics": gate,
             "summary": {"median log-life location at use": float(np.median(draws.mu)),

@@ -109,8 +109,8 @@ def assess_at_use(table: StressLifeTable, terms, mission: float, target: float,
     lower, upper = f["lower"].to_numpy(float), f["upper"].to_numpy(float)
     fit = fit_accelerated(design, laplace, prior, terms, settings, gate_on)
     theta = fit.draws["theta"]
-    decision_info = _decision(theta, design, s_use, mission, target, confidence, distribution,
-                              fit.gate.passed)
+    decision_info = decide_at_use(theta, design, s_use, mission, target, confidence,
+                                  distribution, fit.gate.passed)
     if decision_info["close"] and fit.gate.passed:
         more = SamplerSettings(settings.num_chains, settings.num_warmup,
                                MORE_DRAWS * settings.num_samples, settings.target_accept,
@@ -118,8 +118,8 @@ def assess_at_use(table: StressLifeTable, terms, mission: float, target: float,
         fit2 = fit_accelerated(design, laplace, prior, terms, more, gate_on)
         if fit2.gate.passed:
             fit, theta = fit2, fit2.draws["theta"]
-            decision_info = _decision(theta, design, s_use, mission, target, confidence,
-                                      distribution, True)
+            decision_info = decide_at_use(theta, design, s_use, mission, target,
+                                          confidence, distribution, True)
             decision_info["drew_more"] = True
     gate = fit.gate.to_dict()
     levels, level_of = stress_levels(table.stress)
@@ -213,7 +213,10 @@ def posterior_at_use(table: StressLifeTable, terms, distribution: str = "weibull
     return LifeDraws(mu, np.exp(th[..., 0]), distribution), fit.gate.to_dict()
 
 
-def _decision(theta, design, s_use, mission, target, confidence, distribution, ok) -> dict:
+def decide_at_use(theta, design, s_use, mission, target, confidence, distribution,
+                  ok) -> dict:
+    """P(R_use(mission) >= target) from draws (chain, draw, k), its MCSE, and the decision
+    within Monte Carlo error (``too-close-to-call`` within 3 MCSE of a threshold)."""
     nat = ls.natural(theta, design)
     mu_u = ls.location(theta, design, s_use)[..., 0]
     rel = ls.reliability(mission, mu_u, nat["sigma"], distribution)

@@ -361,3 +361,54 @@ def test_cli_bad_input_names_row_and_column(tmp_path, capsys):
     assert main(["at-use", str(g), "--stress-column", "Temperature", "--relation",
                  "arrhenius", "--use", "40", "--mission", "100", "--target", "0.9"]) == 2
     assert "40C or 313.15K" in capsys.readouterr().err
+
+
+def test_close_call_is_not_decided_by_the_seed():
+    """Draws whose P(R >= target) sits within 3 MCSE of C give 'too-close-to-call'; far
+    from C the same rule decides."""
+    from qualbayes.accelerated_analysis import decide_at_use
+
+    rng = np.random.default_rng(3)
+    kind = np.array(["failure"] * 4)
+    design = ls.build_design(kind, np.ones(4), np.ones(4), np.arange(4.0)[:, None])
+    s_use = design.ref[None, :]  # the use point at the mean stress: mu_use = gamma0
+
+    def theta_with(p_good):
+        # R(1) >= 0.5 exactly when gamma0 >= log(1 / ln 2) * sigma with sigma = 1
+        good = rng.random((4, 1000)) < p_good
+        g0 = np.where(good, 2.0, -2.0)
+        return np.stack([np.zeros_like(g0), g0, np.zeros_like(g0)], axis=-1)
+
+    close = decide_at_use(theta_with(0.9), design, s_use, 1.0, 0.5, 0.9, "weibull", True)
+    assert abs(close["prob_meets_target"] - 0.9) < 3 * close["prob_meets_target_mc_error"]
+    assert close["decision"] == "too-close-to-call" and close["close"]
+    far = decide_at_use(theta_with(0.99), design, s_use, 1.0, 0.5, 0.9, "weibull", True)
+    assert far["decision"] == "meets"
+    gate_failed = decide_at_use(theta_with(0.99), design, s_use, 1.0, 0.5, 0.9, "weibull",
+                                False)
+    assert gate_failed["decision"] == "not-converged"
+
+
+def test_two_stresses_acceleration_factor():
+    """Temperature (Arrhenius) and voltage (inverse power) together: AF of each tested level
+    is exp(Ea/k (1/T_use - 1/T) + n ln(V/V_use)) draw by draw."""
+    from qualbayes.accelerated_analysis import assess_at_use
+
+    rng = np.random.default_rng(21)
+    temps = np.repeat([358.15, 398.15], 60)
+    volts = np.tile(np.repeat([12.0, 24.0], 30), 2)
+    eta = 3000.0 * np.exp(0.6 / K_B * (1 / temps - 1 / 378.15)) * (volts / 12.0) ** -2.0
+    t = eta * rng.weibull(2.0, size=temps.size)
+    kind = np.where(t < 2500.0, "failure", "suspension")
+    table = table_from(kind, np.minimum(t, 2500.0), np.where(t < 2500, t, np.inf),
+                       np.column_stack([temps, volts]), ["K", None])
+    terms = [ls.StressTerm("s0", "arrhenius", 323.15), ls.StressTerm("s1", "inverse-power", 5.0)]
+    res = assess_at_use(table, terms, mission=1000.0, target=0.9, check_shape=False)
+    assert res.converged
+    coef = ls.natural(res.theta, res.design)["coef"].reshape(-1, 2)
+    for level in res.result["levels"]:
+        t_k, v = level["stress"]
+        af = np.exp(coef[:, 0] / K_B * (1 / 323.15 - 1 / t_k) + coef[:, 1] * np.log(v / 5.0))
+        assert level["acceleration_factor"]["median"] == pytest.approx(np.median(af), rel=1e-9)
+    n = coef[:, 1]
+    assert abs(np.median(n) - 2.0) < 3 * n.std()  # the true exponent, within 3 sd

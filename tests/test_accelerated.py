@@ -361,6 +361,9 @@ def test_cli_bad_input_names_row_and_column(tmp_path, capsys):
     assert main(["at-use", str(g), "--stress-column", "Temperature", "--relation",
                  "arrhenius", "--use", "40", "--mission", "100", "--target", "0.9"]) == 2
     assert "40C or 313.15K" in capsys.readouterr().err
+    assert main(["at-use", str(g), "--stress-column", "Oven", "--relation", "arrhenius",
+                 "--use", "40C", "--mission", "100", "--target", "0.9"]) == 2
+    assert "no column headed 'Oven'" in capsys.readouterr().err
 
 
 def test_close_call_is_not_decided_by_the_seed():

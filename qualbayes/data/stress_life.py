@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from qualbayes.data.columns import Column, cell, locate, parse_mapping
+from qualbayes.data.columns import Located, cell, locate, normalise, parse_mapping
 from qualbayes.data.life import LIFE_COLUMNS, LifeTable, validate_life
 from qualbayes.data.readers import DEFAULT_MAX_ROWS, read_table
 from qualbayes.data.values import describe, is_blank, parse_real
@@ -86,13 +86,8 @@ def read_stress_life(path, stress_columns: list[str], relations: list[str],
     mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
     life = validate_life(table, mapping, units=units, groups=groups)
     temperature_units = list(temperature_units or [None] * len(stress_columns))
-    schema = tuple(Column(f"stress{j}", (name,)) for j, name in enumerate(stress_columns))
     known = {c.key for c in LIFE_COLUMNS}
-    loc = locate(table, schema, {})
-    if loc.header_row != life.header_row:
-        raise InputError(f"the stress column(s) {', '.join(map(repr, stress_columns))} are not "
-                         f"in the header row ({life.header_row})", file=table.file,
-                         sheet=table.sheet, row=loc.header_row)
+    loc = _find_stress_columns(table, life.header_row, stress_columns)
     used = {v[0] for v in locate(table, LIFE_COLUMNS, {k: v for k, v in mapping.items()
                                                        if k in known}).columns.values()}
     index = {rownum: i for i, rownum in enumerate(table.row_numbers)}
@@ -123,6 +118,25 @@ def read_stress_life(path, stress_columns: list[str], relations: list[str],
             out[k, j] = _stress_value(raw, table, int(rownum), header, relations[j], temp_unit)
     return StressLifeTable(life, [loc.columns[f"stress{j}"][1] for j in
                                   range(len(stress_columns))], out, units_read)
+
+
+def _find_stress_columns(table, header_row: int, names: list[str]) -> Located:
+    """The stress columns, by their headers, in the life data's header row."""
+    i = table.row_numbers.index(header_row)
+    row = table.rows[i]
+    norm = [normalise(h) for h in row]
+    found = {}
+    for j, name in enumerate(names):
+        hits = [k for k, h in enumerate(norm) if h and h == normalise(name)]
+        if not hits:
+            heads = ", ".join(repr(str(h)) for h in row if h is not None)
+            raise InputError(f"no column headed {name!r} for --stress-column (headers: "
+                             f"{heads})", file=table.file, sheet=table.sheet, row=header_row)
+        if len(hits) > 1:
+            raise InputError(f"two columns are headed {name!r}; rename one", file=table.file,
+                             sheet=table.sheet, row=header_row, column=name)
+        found[f"stress{j}"] = (hits[0], str(row[hits[0]]).strip())
+    return Located(header_row, found, i + 1)
 
 
 def _stress_value(raw, table, rownum: int, header: str, relation: str,

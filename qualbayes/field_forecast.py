@@ -34,9 +34,12 @@ def check_forecast_options(usage: float, horizon: int, confidence: float,
         raise OptionError(f"--spares {spares!r}: give a whole number of units, 0 or more")
 
 
-def _interval(x: np.ndarray, confidence: float, axis=0):
+def _interval(x: np.ndarray, confidence: float, axis=0, counts: bool = False):
+    """Central interval and median; for counts the quantiles are counts that occur (the
+    inverse of the empirical cdf, no interpolation between two counts)."""
     tail = (1.0 - confidence) / 2.0
-    return np.quantile(x, [tail, 0.5, 1.0 - tail], axis=axis)
+    return np.quantile(x, [tail, 0.5, 1.0 - tail], axis=axis,
+                       method="inverted_cdf" if counts else "linear")
 
 
 def summarise_counts(counts: np.ndarray, expected: np.ndarray, confidence: float,
@@ -45,12 +48,12 @@ def summarise_counts(counts: np.ndarray, expected: np.ndarray, confidence: float
     k = counts.shape[-1]
     flat = counts.reshape(-1, k)
     exp_flat = expected.reshape(-1, k)
-    lo, med, hi = _interval(flat, confidence)
+    lo, med, hi = _interval(flat, confidence, counts=True)
     e_lo, e_med, e_hi = _interval(exp_flat, confidence)
     cum = np.cumsum(flat, axis=1)
-    c_lo, c_med, c_hi = _interval(cum, confidence)
+    c_lo, c_med, c_hi = _interval(cum, confidence, counts=True)
     total = counts.sum(axis=-1)  # (chain, draw)
-    t_lo, t_med, t_hi = _interval(total.reshape(-1), confidence)
+    t_lo, t_med, t_hi = _interval(total.reshape(-1), confidence, counts=True)
     out = {
         "periods": [{"period": j + 1, "expected": float(exp_flat[:, j].mean()),
                      "expected_band": [float(e_lo[j]), float(e_hi[j])],

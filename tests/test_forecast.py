@@ -14,6 +14,7 @@ import pytest
 from scipy import stats
 
 from qualbayes.errors import InputError, OptionError
+from qualbayes.field_forecast import summarise_counts
 from qualbayes.models.forecast import (
     LifeDraws,
     expected_exact,
@@ -119,9 +120,8 @@ def coverage_study(fleets: int, seed: int, per_chain: int = 100,
                                   t_ref * lam_post ** (-1 / beta))
         ages = 10.0 * np.round(rng.uniform(0, 150, 1000))  # 151 distinct ages, no bins
         fc = forecast_counts(ages, None, draws, 50.0, 12, seed=int(rng.integers(1 << 30)))
-        total = fc["counts"].sum(axis=-1).reshape(-1)
-        tail = (1 - confidence) / 2
-        lo, hi = np.quantile(total, [tail, 1 - tail])
+        lo, hi = summarise_counts(fc["counts"], fc["expected"], confidence, None)["total"][
+            "interval"]  # the interval the command reports
         true = direct_simulation(rng, ages, beta, eta, 50.0, 12, reps=1).sum()
         hits += int(lo <= true <= hi)
     return hits / fleets

@@ -26,6 +26,7 @@ from functools import partial
 import numpy as np
 
 from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.models.life import bucket
 from qualbayes.models.life_stress import Design, Laplace, StressPrior, log_likelihood, log_prior
 
 setup_jax()
@@ -35,18 +36,37 @@ import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
 
 
-def accelerated_model(center, chol, arrays, *, design: Design, prior: StressPrior,
+def accelerated_model(center, chol, arrays, spread, *, design: Design, prior: StressPrior,
                       terms: tuple):
     """theta = center + chol @ z; the log posterior of theta enters as one factor.
-    ``arrays`` are the observations (``design.arrays`` as jax arrays, passed as arguments so
-    that compiled code is reused for new data of the same shape)."""
+    ``arrays`` (the observations, padded with weight-0 entries) and ``spread`` (the column
+    scales) are arguments, not constants, so compiled code is reused for new data of the
+    same padded shape."""
     z = numpyro.sample("z", dist.ImproperUniform(dist.constraints.real, (), (center.shape[0],)))
     theta = center + chol @ z
     numpyro.deterministic("theta", theta)
-    data = Design(design.distribution, design.n_sigma, design.n_coef, design.ref,
-                  design.spread, arrays, design.counts)
-    log_post = log_prior(theta, design, prior, terms, jnp) + log_likelihood(theta, data, jnp)
+    data = Design(design.distribution, design.n_sigma, design.n_coef, design.ref, spread,
+                  arrays, design.counts)
+    log_post = log_prior(theta, data, prior, terms, jnp) + log_likelihood(theta, data, jnp)
     numpyro.factor("log_posterior", log_post)
+
+
+def padded_arrays(design: Design) -> dict:
+    """Each kind's observations padded to a few fixed lengths with weight-0 entries (log time
+    0, interval width 1: finite terms that count nothing), as jax arrays."""
+    out = {}
+    for key, a in design.arrays.items():
+        n = a["w"].shape[0]
+        width = bucket(n)
+        pad = width - n
+        out[key] = {
+            "x": jnp.asarray(np.vstack([a["x"], np.zeros((pad, a["x"].shape[1]))])),
+            "g": jnp.asarray(np.concatenate([a["g"], np.zeros(pad, int)])),
+            "y": jnp.asarray(np.concatenate([a["y"], np.zeros(pad)])),
+            "y2": jnp.asarray(np.concatenate([a["y2"], np.ones(pad)])),
+            "w": jnp.asarray(np.concatenate([a["w"], np.zeros(pad)])),
+        }
+    return out
 
 
 def fit_accelerated(design: Design, laplace: Laplace, prior: StressPrior, terms: tuple,
@@ -55,8 +75,8 @@ def fit_accelerated(design: Design, laplace: Laplace, prior: StressPrior, terms:
     rng = np.random.default_rng(settings.seed)
     init = {"z": jnp.asarray(rng.uniform(-1.0, 1.0, size=(settings.num_chains, design.size)))}
     model = partial(accelerated_model, design=design, prior=prior, terms=tuple(terms))
-    arrays = {k: {kk: jnp.asarray(vv) for kk, vv in a.items()} for k, a in design.arrays.items()}
-    args = (jnp.asarray(laplace.center), jnp.asarray(laplace.chol()), arrays)
+    args = (jnp.asarray(laplace.center), jnp.asarray(laplace.chol()), padded_arrays(design),
+            jnp.asarray(design.spread))
     fit = run_nuts(model, args, settings, gate_on=gate_on, init_params=init)
     fit.draws = {"theta": fit.draws["theta"]}
     return fit

@@ -260,7 +260,7 @@ def log_prior(theta, design: Design, prior: StressPrior, terms: tuple[StressTerm
             if term.prior is not None:
                 d = design.spread[j]
                 # gamma = c / d, so p(c) = p_gamma(c / d) / d
-                out = out + _normal_logpdf(theta[2 + j] / d, *term.prior) - math.log(d)
+                out = out + _normal_logpdf(theta[2 + j] / d, *term.prior) - xp.log(d)
     return out
 
 

@@ -75,7 +75,6 @@ def stress_terms(args, data_units: list[str | None] | None = None) -> list:
     from qualbayes.data.stress_life import parse_use_temperature, parse_use_value  # noqa: PLC0415
     from qualbayes.errors import OptionError  # noqa: PLC0415
     from qualbayes.models.life_stress import StressTerm, normal_from_range  # noqa: PLC0415
-    from qualbayes.models.weibull import _two_numbers  # noqa: PLC0415
 
     cols, rels, uses = args.stress_column or [], args.relation or [], args.use or []
     if not cols:
@@ -98,10 +97,39 @@ def stress_terms(args, data_units: list[str | None] | None = None) -> list:
         prior = rng = None
         if text is not None:
             option = f"--{PRIOR_OPTIONS[rel].replace('_', '-')}"
-            rng = _two_numbers(text, option, "0.3,1.1")
+            rng = two_numbers(text, option, "0.3,1.1")
             prior = normal_from_range(*rng)
         terms.append(StressTerm(col, rel, value, prior=prior, prior_range=rng))
     return terms
+
+
+def two_numbers(text: str, option: str, example: str) -> tuple[float, float]:
+    """``LO,HI`` -> (lo, hi), finite and increasing."""
+    import math  # noqa: PLC0415
+
+    from qualbayes.errors import OptionError  # noqa: PLC0415
+
+    try:
+        lo, hi = (float(v) for v in str(text).replace(" ", "").split(","))
+    except ValueError:
+        raise OptionError(f"{option} {text!r}: write two numbers LO,HI, e.g. {example}") from None
+    if not (math.isfinite(lo) and math.isfinite(hi) and lo < hi):
+        raise OptionError(f"{option} {text!r}: two finite numbers with LO < HI")
+    return lo, hi
+
+
+def positive_number(text: str, option: str, example: str) -> float:
+    from qualbayes.data.values import parse_real  # noqa: PLC0415
+    from qualbayes.errors import OptionError  # noqa: PLC0415
+
+    try:
+        value = parse_real(str(text))
+    except ValueError:
+        raise OptionError(f"{option} {text!r}: expected a positive number such as {example}"
+                          ) from None
+    if not value > 0:
+        raise OptionError(f"{option} {text!r}: must be positive")
+    return value
 
 
 def temperature_units(args) -> list[str | None]:
@@ -150,7 +178,6 @@ def run(args) -> int:
 
     from qualbayes.accelerated_analysis import assess_at_use  # noqa: PLC0415
     from qualbayes.commands.common import emit  # noqa: PLC0415
-    from qualbayes.commands.life import _mission  # noqa: PLC0415
     from qualbayes.data.life import parse_units  # noqa: PLC0415
     from qualbayes.evidence.accelerated_plots import stress_points  # noqa: PLC0415
     from qualbayes.evidence.accelerated_record import at_use_record, at_use_text  # noqa: PLC0415
@@ -158,7 +185,7 @@ def run(args) -> int:
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability  # noqa: PLC0415
 
-    mission = _mission(args.mission)
+    mission = positive_number(args.mission, "--mission", "20000")
     target = parse_probability(args.target, "--target")
     confidence = parse_probability(args.confidence, "--confidence")
     units = parse_units(args.units)

@@ -52,24 +52,12 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-def _usage(text: str) -> float:
-    from qualbayes.data.values import parse_real  # noqa: PLC0415
-    from qualbayes.errors import OptionError  # noqa: PLC0415
-
-    try:
-        value = parse_real(str(text))
-    except ValueError:
-        raise OptionError(f"--usage {text!r}: expected a positive number such as 300") from None
-    if not value > 0:
-        raise OptionError(f"--usage {text!r}: must be positive")
-    return value
-
-
 def run(args) -> int:
     from pathlib import Path  # noqa: PLC0415
 
     import numpy as np  # noqa: PLC0415
 
+    from qualbayes.commands.at_use import positive_number  # noqa: PLC0415
     from qualbayes.commands.common import emit  # noqa: PLC0415
     from qualbayes.data.fleet import parse_as_of, read_fleet  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
@@ -79,7 +67,7 @@ def run(args) -> int:
     from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability  # noqa: PLC0415
 
-    usage = _usage(args.usage)
+    usage = positive_number(args.usage, "--usage", "300")
     confidence = parse_probability(args.confidence, "--confidence")
     check_forecast_options(usage, args.horizon, confidence, args.spares)
     as_of = parse_as_of(args.as_of)

@@ -42,6 +42,8 @@ def add_stress_options(p: argparse.ArgumentParser) -> None:
 
 
 def register(sub) -> None:
+    from qualbayes.commands.common import add_input_options  # noqa: PLC0415
+
     p = sub.add_parser(
         "at-use", help="reliability at the use condition from an accelerated life test "
                        "(Arrhenius, inverse power or log-linear; Weibull or lognormal)",
@@ -51,12 +53,7 @@ def register(sub) -> None:
                     "P(R(mission) >= target) with its Monte Carlo error, and meets / "
                     "does-not-meet / undecided at the stated confidence.",
         formatter_class=argparse.ArgumentDefaultsHelpFormatter)
-    p.add_argument("file", help="xlsx or csv export: one row per unit, as for 'life', plus "
-                                "the stress column(s)")
-    p.add_argument("--sheet", help="xlsx sheet to read (default: the first visible one)")
-    p.add_argument("--columns", metavar="KEY=HEADER,...",
-                   help="name life columns whose headers are not recognised")
-    p.add_argument("--max-rows", type=int, default=500_000)
+    add_input_options(p)  # FILE: one row per unit, as for 'life', plus the stress column(s)
     p.add_argument("--group", metavar="NAME", help="analyse only this group of the file")
     add_stress_options(p)
     p.add_argument("--mission", required=True, help="mission time at use, in the file's units")

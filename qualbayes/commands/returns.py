@@ -17,6 +17,7 @@ MAX_GROUP_FIGURES = 20
 
 def register(sub) -> None:
     from qualbayes.commands.at_use import add_stress_options  # noqa: PLC0415
+    from qualbayes.commands.common import add_input_options  # noqa: PLC0415
 
     p = sub.add_parser(
         "returns", help="forecast field failures per period of the units in service, from a "
@@ -26,11 +27,7 @@ def register(sub) -> None:
                     "the horizon, conditioned on every unit having survived to its present "
                     "age; per group and for all units.",
         formatter_class=argparse.ArgumentDefaultsHelpFormatter)
-    p.add_argument("file", help="installed base: xlsx or csv, one row per unit or batch")
-    p.add_argument("--sheet", help="xlsx sheet of the installed base")
-    p.add_argument("--columns", metavar="KEY=HEADER,...",
-                   help="name installed-base columns (keys: unit, age, shipped, count, group)")
-    p.add_argument("--max-rows", type=int, default=500_000)
+    add_input_options(p)  # FILE: the installed base (keys unit, age, shipped, count, group)
     p.add_argument("--life", required=True, metavar="LIFE_FILE",
                    help="life data (as for 'life', or with stress columns for 'at-use')")
     p.add_argument("--life-sheet", help="xlsx sheet of the life data")

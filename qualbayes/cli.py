@@ -23,6 +23,8 @@ COMMAND_MODULES = (
     "qualbayes.commands.life",
     "qualbayes.commands.plan",
     "qualbayes.commands.report",
+    "qualbayes.commands.at_use",
+    "qualbayes.commands.returns",
 )
 
 

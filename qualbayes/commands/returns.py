@@ -1,0 +1,193 @@
+"""``qualbayes returns FLEET --life LIFE --usage U --horizon 24``: how many of the units in
+service will fail in each coming period, and in total?
+
+The life posterior comes from a life-data file: a plain Weibull fit (as ``life`` does), or,
+with the stress options, the accelerated fit at the use condition.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+WORKBOOK = "returns_forecast.xlsx"
+RECORD = "returns_forecast.json"
+FIGURE = "returns_forecast.png"
+MAX_GROUP_FIGURES = 20
+
+
+def register(sub) -> None:
+    from qualbayes.commands.at_use import add_stress_options  # noqa: PLC0415
+    from qualbayes.commands.common import add_input_options  # noqa: PLC0415
+
+    p = sub.add_parser(
+        "returns", help="forecast field failures per period of the units in service, from a "
+                        "life posterior (plain or at the use stress)",
+        description="For the installed base (ages or ship dates, from a sheet): the posterior "
+                    "predictive number of failures in each coming period and in total over "
+                    "the horizon, conditioned on every unit having survived to its present "
+                    "age; per group and for all units.",
+        formatter_class=argparse.ArgumentDefaultsHelpFormatter)
+    add_input_options(p)  # FILE: the installed base (keys unit, age, shipped, count, group)
+    p.add_argument("--life", required=True, metavar="LIFE_FILE",
+                   help="life data (as for 'life', or with stress columns for 'at-use')")
+    p.add_argument("--life-sheet", help="xlsx sheet of the life data")
+    p.add_argument("--life-columns", metavar="KEY=HEADER,...", help="name life-data columns")
+    p.add_argument("--life-group", metavar="NAME", help="use only this group of the life data")
+    p.add_argument("--usage", required=True,
+                   help="life units (h, cycles) a unit accumulates per period, e.g. 300")
+    p.add_argument("--period", choices=("week", "month", "quarter", "year"), default="month")
+    p.add_argument("--horizon", type=int, default=24, help="number of periods to forecast")
+    p.add_argument("--as-of", metavar="YYYY-MM-DD",
+                   help="date the installed base was counted (needed with ship dates)")
+    p.add_argument("--spares", type=int, help="spare units in stock: P(enough) is reported")
+    add_stress_options(p)
+    p.add_argument("--confidence", default="0.9", help="level of the predictive intervals")
+    p.add_argument("--seed", type=int, default=20261202, help="random seed")
+    p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
+    p.add_argument("--out", metavar="DIR", help="write workbook, run record and figures to DIR")
+    p.add_argument("--force", action="store_true", help="allow replacing an earlier run's files")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from pathlib import Path  # noqa: PLC0415
+
+    import numpy as np  # noqa: PLC0415
+
+    from qualbayes.commands.at_use import positive_number  # noqa: PLC0415
+    from qualbayes.commands.common import emit  # noqa: PLC0415
+    from qualbayes.data.fleet import parse_as_of, read_fleet  # noqa: PLC0415
+    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
+    from qualbayes.evidence.forecast_record import returns_record, returns_text  # noqa: PLC0415
+    from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
+    from qualbayes.field_forecast import check_forecast_options, forecast_fleet  # noqa: PLC0415
+    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+    from qualbayes.questions import parse_probability  # noqa: PLC0415
+
+    usage = positive_number(args.usage, "--usage", "300")
+    confidence = parse_probability(args.confidence, "--confidence")
+    check_forecast_options(usage, args.horizon, confidence, args.spares)
+    as_of = parse_as_of(args.as_of)
+    accelerated = bool(args.stress_column or args.relation or args.use)
+    if accelerated:
+        from qualbayes.commands.at_use import stress_prior, stress_terms  # noqa: PLC0415
+
+        terms, prior = stress_terms(args), stress_prior(args)
+    fleet = read_fleet(args.file, sheet=args.sheet, columns=args.columns,
+                       max_rows=args.max_rows, as_of=as_of, usage=usage, period=args.period)
+    groups = [] if fleet.groups is None else list(dict.fromkeys(fleet.groups))
+    targets = []
+    if args.out:
+        out = Path(args.out)
+        targets = [out / WORKBOOK, out / RECORD, out / FIGURE]
+        targets += [out / f"returns_forecast_{n[1][len('life_probability_'):]}"
+                    for n in figure_names(groups[:MAX_GROUP_FIGURES])] if len(groups) > 1 else []
+    check_targets(targets, args.force)
+    gate_time = float(np.median(fleet.ages)) + usage * args.horizon
+    reach = float(np.max(fleet.ages)) + usage * args.horizon
+    if accelerated:
+        life = _accelerated_life(args, terms, prior, gate_time)
+    else:
+        life = _plain_life(args, gate_time, reach)
+    draws = life.pop("draws")
+    if life["diagnostics"]["passed"]:
+        forecast = forecast_fleet(fleet.ages, fleet.counts, fleet.groups, draws, usage,
+                                  args.horizon, confidence, args.spares, seed=args.seed)
+    else:
+        forecast = None
+    sha = {"fleet": sha256_file(args.file), "life": sha256_file(args.life)}
+    record = returns_record(forecast, life, fleet, sha, command_line(args.argv), versions(),
+                            args.period, args.spares)
+    written = _write(record, targets, args.force) if targets else []
+    emit(args, record, "" if args.json else returns_text(record), written)
+    return 0
+
+
+def _plain_life(args, gate_time: float, reach: float) -> dict:
+    import numpy as np  # noqa: PLC0415
+
+    from qualbayes.data.life import frame_arrays, read_life  # noqa: PLC0415
+    from qualbayes.errors import InputError  # noqa: PLC0415
+    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
+    from qualbayes.life_analysis import check_prior_use  # noqa: PLC0415
+    from qualbayes.models.forecast import LifeDraws  # noqa: PLC0415
+    from qualbayes.models.life import fit_life  # noqa: PLC0415
+    from qualbayes.models.weibull import group_stats, make_prior, posterior_mode  # noqa: PLC0415
+
+    if args.distribution != "weibull":
+        from qualbayes.errors import OptionError  # noqa: PLC0415
+
+        raise OptionError("--distribution lognormal needs the stress options (a plain life "
+                          "fit is Weibull, as in 'life')")
+    prior = make_prior(args.shape_prior)
+    table = read_life(args.life, sheet=args.life_sheet, columns=args.life_columns,
+                      groups=[args.life_group] if args.life_group else None)
+    if len(table.groups) > 1:
+        names = ", ".join(repr(g) for g in table.groups)
+        raise InputError(f"the life data hold several groups ({names}); choose one with "
+                         "--life-group", file=table.file)
+    name = table.groups[0]
+    st = group_stats(**frame_arrays(table.frame))
+    check_prior_use(table, {name: st}, prior)
+    mode = posterior_mode(st, prior)
+    fit = fit_life([st], [mode], prior, SamplerSettings(seed=args.seed), [name], gate_time)
+    b, log_eta = fit.draws["log_shape"][:, :, 0], fit.draws["log_scale"][:, :, 0]
+    return {"file": table.file, "source": "Weibull fit of the life data (as 'life')",
+            "prior": prior.describe(table.units), "diagnostics": fit.gate.to_dict(),
+            "summary": {"shape median": float(np.median(np.exp(b))),
+                        "scale median": float(np.median(np.exp(log_eta))),
+                        "units": st.units, "failures": st.failures},
+            "notes": _reach_note(table, reach),
+            "draws": LifeDraws(log_eta, np.exp(-b), "weibull")}
+
+
+def _reach_note(table, reach: float) -> list[str]:
+    """Say so when the forecast runs to ages beyond the longest time in the life data."""
+    longest = float(table.frame["lower"].max())
+    if reach <= longest:
+        return []
+    return [f"the forecast reaches ages up to {reach:,.0f}, beyond the longest time in the "
+            f"life data ({longest:,.0f}): there the Weibull law is extrapolated, and a "
+            "wear-out mode that the test did not reach would not be foreseen"]
+
+
+def _accelerated_life(args, terms, prior, gate_time: float) -> dict:
+    import numpy as np  # noqa: PLC0415
+
+    from qualbayes.accelerated_analysis import extrapolation, posterior_at_use  # noqa: PLC0415
+    from qualbayes.commands.at_use import read_stress_data  # noqa: PLC0415
+    from qualbayes.evidence.accelerated_record import show_stress  # noqa: PLC0415
+    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
+
+    data = read_stress_data(args, args.life, args.life_sheet, args.life_columns, 500_000, "",
+                            args.life_group)
+    draws, gate = posterior_at_use(data, terms, args.distribution, prior,
+                                   SamplerSettings(seed=args.seed), gate_time)
+    extra = extrapolation(data.stress, terms)
+    return {"file": data.life.file,
+            "source": f"accelerated fit ({args.distribution}) at the use condition "
+                      + ", ".join(f"{t.column} {show_stress(t.use, t.relation, tu)}"
+                                  for t, tu in zip(terms, data.temperature_units, strict=True)),
+            "prior": [prior.describe(args.distribution), *[t.describe_prior() for t in terms]],
+            "diagnostics": gate,
+            "summary": {"median log-life location at use": float(np.median(draws.mu)),
+                        "median sigma": float(np.median(draws.sigma)),
+                        "units": len(data.life.frame)},
+            "notes": extra["notes"], "draws": draws}
+
+
+def _write(record, targets, force) -> list:
+    from qualbayes.evidence.files import write_group  # noqa: PLC0415
+    from qualbayes.evidence.forecast_record import draw_forecast, returns_sheets  # noqa: PLC0415
+    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
+    from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
+
+    files = [(targets[0], workbook_writer(returns_sheets(record))),
+             (targets[1], lambda p: p.write_text(dumps(without_draws(record)), encoding="utf-8"))]
+    fc = record["forecast"]
+    if fc is not None:
+        figs = [draw_forecast(record, fc["overall"])]
+        figs += [draw_forecast(record, g) for g in fc["groups"][:MAX_GROUP_FIGURES]]
+        for path, fig in zip(targets[2:], figs, strict=False):
+            files.append((path, lambda p, fig=fig: fig.savefig(p, format="png")))
+    return write_group(files, force)

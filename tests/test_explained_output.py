@@ -87,7 +87,7 @@ def test_analyst_and_run_metadata_in_every_record(lots_csv, capsys):
     assert main(["lots", str(lots_csv), "--spec", "1%", "--json", "--analyst", "K. Ito"]) == 0
     rec = json.loads(capsys.readouterr().out)
     assert rec["analyst"] == "K. Ito" and rec["tool_version"]
-    assert re.fullmatch(r"QB-\d{8}-[0-9A-F]{8}", rec["report_id"])
+    assert re.fullmatch(r"QB-\d{8}-[0-9A-F]{10}", rec["report_id"])
     assert rec["created_utc"].endswith("Z")
     assert main(["plan", "attribute", "--reliability", "0.9", "--confidence", "0.9",
                  "--json"]) == 0

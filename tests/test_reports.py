@@ -190,9 +190,11 @@ def test_html_screenshot_has_no_horizontal_overflow(history_report, tmp_path, wi
 @needs_browser
 def test_the_overflow_check_catches_a_page_that_overflows(tmp_path):
     # control: a page wider than the window must fail both checks
+    from qualbayes.evidence.html import CSP
+
     page = tmp_path / "wide.html"
     page.write_text("<!DOCTYPE html><html><head><meta http-equiv='Content-Security-Policy' "
-                    "content=\"default-src 'none'; style-src 'unsafe-inline'\"></head><body>"
+                    f"content=\"{CSP}\"></head><body>"
                     "<table><tr><td style='background:#000'>" + "W" * 400
                     + "</td></tr></table></body></html>")
     _, shot, _ = _browse(page, tmp_path, 800)

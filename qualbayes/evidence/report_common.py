@@ -4,7 +4,6 @@ sign-off; and the run metadata every record and report carries."""
 from __future__ import annotations
 
 import datetime as dt
-import uuid
 
 from qualbayes.evidence.document import Paragraph, Section, Table
 from qualbayes.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
@@ -80,10 +79,11 @@ def run_metadata(record: dict, analyst: str | None = None) -> dict:
     """UTC time, report id, tool version and analyst of a run: the record's own fields when
     it has them, otherwise made now (a new id, the current time and version)."""
     from qualbayes import __version__  # noqa: PLC0415
+    from qualbayes.evidence.run_record import new_report_id  # noqa: PLC0415
 
     now = dt.datetime.now(dt.UTC).replace(microsecond=0)
     made = {"created_utc": now.isoformat().replace("+00:00", "Z"),
-            "report_id": f"QB-{now:%Y%m%d}-{uuid.uuid4().hex[:8].upper()}",
+            "report_id": new_report_id(now),
             "tool_version": __version__, "analyst": analyst}
     return {k: record[k] if record.get(k) else made[k] for k in META_KEYS}
 

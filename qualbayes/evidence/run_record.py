@@ -40,6 +40,11 @@ NO_VERDICT = "not-converged"
 
 # ----------------------------------------------------------------------------- writing
 
+def new_report_id(now: dt.datetime) -> str:
+    """``QB-YYYYMMDD-`` and ten hexadecimal digits (random)."""
+    return f"QB-{now:%Y%m%d}-{uuid.uuid4().hex[:10].upper()}"
+
+
 def stamp(record: dict, analyst: str | None = None) -> dict:
     """Add the schema version, UTC time, report id, tool version and analyst (kept if
     present)."""
@@ -48,7 +53,7 @@ def stamp(record: dict, analyst: str | None = None) -> dict:
     now = dt.datetime.now(dt.UTC)
     defaults = {"schema_version": SCHEMA_VERSION,
                 "created_utc": now.isoformat(timespec="seconds").replace("+00:00", "Z"),
-                "report_id": f"QB-{now:%Y%m%d}-{uuid.uuid4().hex[:10].upper()}",
+                "report_id": new_report_id(now),
                 "tool_version": __version__, "analyst": analyst}
     for key, value in defaults.items():
         record.setdefault(key, value)

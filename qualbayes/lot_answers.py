@@ -60,8 +60,9 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 
 
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
-                confidence: float) -> dict[str, object]:
-    """Every result column for the lots of ``frame`` (one group), as arrays."""
+                confidence: float, full: bool = True) -> dict[str, object]:
+    """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
+    only P, its MCSE and the decision (enough to see whether more draws are needed)."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}
@@ -82,8 +83,10 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
             cols["too_close"][j] = bool(close[i])
             approx[j] = approx[j] or not exact[i]
     for j, (x, n, rem, size, basis) in enumerate(combos):
-        alpha, beta = a0 + x, b0 + (n - x)
         cols["decision_basis"][j] = basis
+        if not full:
+            continue
+        alpha, beta = a0 + x, b0 + (n - x)
         cols["posterior_mean"][j] = mixtures.mean(alpha, beta)
         cols["interval_low"][j] = mixtures.ppf(tail, alpha, beta)
         cols["interval_high"][j] = mixtures.ppf(1.0 - tail, alpha, beta)

@@ -32,12 +32,13 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     outliers = _outliers(frame, groups, hyper)
     runs = 0
     while True:
-        parts = _answer_groups(frame, groups, fit, spec, confidence, outliers)
+        parts = _answer_groups(frame, groups, fit, spec, confidence, outliers, full=False)
         close = any(bool(np.any(p[0].get("too_close", []))) for p in parts.values() if p[1])
         if not close or runs >= MAX_EXTRA_RUNS:
             break
         runs += 1
         fit = more_draws(fit, data, names, hyper, runs)
+    parts = _answer_groups(frame, groups, fit, spec, confidence, outliers)
     out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
     diagnostics, next_lot, draws = {}, {}, {}
     for j, (label, idx) in enumerate(groups.items()):
@@ -110,7 +111,7 @@ def _outliers(frame, groups, hyper) -> dict[str, np.ndarray]:
     return out
 
 
-def _answer_groups(frame, groups, fit, spec, confidence, outliers) -> dict:
+def _answer_groups(frame, groups, fit, spec, confidence, outliers, full=True) -> dict:
     """label -> (answers of the group's lots, converged)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
@@ -123,7 +124,7 @@ def _answer_groups(frame, groups, fit, spec, confidence, outliers) -> dict:
         mu = fit.draws["mu"][:, :, j].reshape(-1)
         kappa = fit.draws["kappa"][:, :, j].reshape(-1)
         ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, chains, spec,
-                          confidence)
+                          confidence, full)
         ans["outlier_p"] = outliers[label]
         ans["outlier"] = list(outliers[label] < OUTLIER_LEVEL)
         out[label] = (ans, True)

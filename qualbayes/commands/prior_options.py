@@ -148,7 +148,13 @@ def beta_setup(statements, base: tuple[float, float, str] | None, earlier_text,
 def lot_prior(args):
     """The analysis prior of ``lots`` from --prior, --believe and --earlier (all parsed and
     checked, and the earlier data read, before the lots are): (prior, BetaSetup or None)."""
-    from qualbayes.models.priors import HISTORY, UNIFORM, BetaPrior, parse_lot_prior  # noqa: PLC0415
+    from qualbayes.models.priors import (  # noqa: PLC0415
+        HISTORY,
+        HISTORY_PHI_UNIFORM,
+        UNIFORM,
+        BetaPrior,
+        parse_lot_prior,
+    )
     from qualbayes.priors.statements import parse_statements  # noqa: PLC0415
 
     statements = parse_statements(args.believe, ("p",))
@@ -157,11 +163,12 @@ def lot_prior(args):
     if statements and args.prior is not None:
         raise OptionError("give the prior either as --prior or as --believe statements, not "
                           "both")
-    if prior == HISTORY and (statements or args.earlier is not None):
+    if prior in (HISTORY, HISTORY_PHI_UNIFORM) and (statements or args.earlier is not None):
         raise OptionError("--believe and --earlier build a Beta prior; they cannot be combined "
                           "with --prior history (the history model learns from the lots "
                           "themselves)")
-    base = None if prior == HISTORY else (prior.a, prior.b, prior.describe())
+    base = None if prior in (HISTORY, HISTORY_PHI_UNIFORM) else (prior.a, prior.b,
+                                                                 prior.describe())
     setup = beta_setup(statements, base, args.earlier, weight, "p", args.earlier_sheet,
                        args.earlier_columns)
     if setup is not None:
@@ -173,8 +180,11 @@ def lot_prior_evidence(args, result, prior, setup, spec: float, confidence: floa
     """The run-record keys of the lots prior: its words, what it expects (prior predictive)
     and, with --sensitivity, the sensitivity table. JSON-ready."""
     from qualbayes.evidence.jsonout import plain  # noqa: PLC0415
-    from qualbayes.models.priors import HISTORY  # noqa: PLC0415
+    from qualbayes.models.priors import HISTORY, HISTORY_PHI_UNIFORM  # noqa: PLC0415
     from qualbayes.priors.predictive import lots_predictive  # noqa: PLC0415
+
+    if prior == HISTORY_PHI_UNIFORM:
+        prior = HISTORY
 
     extras = setup.record() if setup is not None else {
         "prior_words": [], "prior_elicited": [], "earlier_data": None}

@@ -34,7 +34,7 @@ from qualbayes.search import smallest_int
 LOT, PROCESS = "lot", "process"
 MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
 MAX_PMF_TERMS = 2**24  # draws x counts summed exactly for one lot's P; beyond: continuous limit
-MAX_EXTRA_UNITS = 10**7
+MAX_EXTRA_UNITS = 10**9  # as qualbayes.models.lots
 TOO_CLOSE = "too close to call at this Monte Carlo precision"
 
 

@@ -68,7 +68,7 @@ def _log_tau_density_phi_uniform(tau, mu):
     return 0.5 * jnp.log(m) - 1.5 * jnp.log1p(m * tau**2) - jnp.log1p(-PHI_MIN)
 
 
-def _hyper(n_parts, scale):
+def hyperprior_sites(n_parts, scale):
     """mu ~ Beta(1, 1) and the spread tau = tau_lo(mu) + exp(y), y flat: y is about log tau,
     not a ridge along log mu for NUTS. The spread prior and the Jacobian exp(y) are added as
     a factor (``scale`` None: the earlier prior, phi uniform)."""
@@ -88,7 +88,7 @@ def lot_history_model(x, n, w, scale):
     """Marginalised hierarchical beta-binomial. ``x``, ``n``, ``w`` have shape (parts, terms):
     distinct (defectives, inspected) pairs of each part and the number of lots sharing each;
     ``scale`` the half-normal scale S of the lot-to-lot CV."""
-    mu, kappa = _hyper(x.shape[0], scale)
+    mu, kappa = hyperprior_sites(x.shape[0], scale)
     loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
     numpyro.factor("x", jnp.sum(w * loglik))
 
@@ -96,7 +96,7 @@ def lot_history_model(x, n, w, scale):
 def lot_history_model_phi_uniform(x, n, w, scale=None):
     """The earlier hyperprior, phi ~ Uniform(PHI_MIN, 1) (``history-phi-uniform``): kept for
     comparison only; see docs/lots.md for why it is not the default."""
-    mu, kappa = _hyper(x.shape[0], None)
+    mu, kappa = hyperprior_sites(x.shape[0], None)
     loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
     numpyro.factor("x", jnp.sum(w * loglik))
 
@@ -104,7 +104,7 @@ def lot_history_model_phi_uniform(x, n, w, scale=None):
 def lot_history_model_plain(x, n, w, scale):
     """The same model with every lot's p sampled (not marginalised, no collapsing of equal
     lots; ``w`` is ignored and must be 1 for real lots): for the benchmark only."""
-    mu, kappa = _hyper(x.shape[0], scale)
+    mu, kappa = hyperprior_sites(x.shape[0], scale)
     with numpyro.plate("parts", x.shape[0], dim=-2), numpyro.plate("lots", x.shape[1], dim=-1):
         p = numpyro.sample("p", dist.Beta(mu * kappa, (1.0 - mu) * kappa))
         numpyro.sample("x", dist.Binomial(total_count=n, probs=p), obs=x)

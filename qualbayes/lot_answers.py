@@ -36,13 +36,19 @@ _INT_COLUMNS = ("extra_clean_units_to_accept", "remaining_units",
 def group_rows(frame: pd.DataFrame, group_by: tuple[str, ...]) -> dict[str, np.ndarray]:
     """Group label -> row positions. One column: its value ('(no part)' when empty);
     several: 'column=value' joined with ' / '."""
-    labels = []
-    for _, row in frame[list(group_by)].iterrows():
-        vals = ["(no " + c + ")" if pd.isna(row[c]) else str(row[c]) for c in group_by]
-        labels.append(vals[0] if len(group_by) == 1 else " / ".join(
-            f"{c}={v}" for c, v in zip(group_by, vals, strict=True)))
-    labels = np.asarray(labels, dtype=object)
-    return {k: np.flatnonzero(labels == k) for k in dict.fromkeys(labels)}
+    parts = [frame[c].astype(object).where(frame[c].notna(), f"(no {c})").astype(str)
+             for c in group_by]
+    if len(group_by) == 1:
+        labels = parts[0].to_numpy()
+    else:
+        labels = parts[0].radd(f"{group_by[0]}=")
+        for c, col in zip(group_by[1:], parts[1:], strict=True):
+            labels = labels + f" / {c}=" + col
+        labels = labels.to_numpy()
+    uniq, first, inverse = np.unique(labels.astype(str), return_index=True,
+                                     return_inverse=True)
+    order = np.argsort(first)  # groups in order of first appearance
+    return {str(uniq[g]): np.flatnonzero(inverse == g) for g in order}
 
 
 def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:

@@ -69,8 +69,9 @@ def test_all_units_defective_closed_form(n):
 
 def test_lots_of_one_unit_closed_form():
     # n = 1: Beta(1, 2) after a good unit, Beta(2, 1) after a bad one
+    # the rate p (process basis); the lot basis asks about the 10-unit lot instead
     res = assess_lots(_table([("good", 1, 0, 10), ("bad", 1, 1, 10)]), 0.01, 0.95,
-                      UNIFORM).lots
+                      UNIFORM, decision_basis="process").lots
     assert res["prob_within_spec"].tolist() == pytest.approx([1 - 0.99**2, 0.01**2])
     assert res["posterior_mean"].tolist() == pytest.approx([1 / 3, 2 / 3])
     # 9 units left: the beta-binomial predictive of scipy (reference library)

@@ -144,16 +144,30 @@ def _betabinom_logpmf(k, n, a, b):
             + special.betaln(a + k, b + n - k) - special.betaln(a, b))
 
 
+_MAX_TAIL_TERMS = 2**24
+
+
 def betabinom_tails(k, n, a, b) -> tuple[np.ndarray, np.ndarray]:
     """(P(X >= k), P(X <= k)) for X ~ BetaBinomial(n, a, b), broadcasting over a, b (one
-    k, n). Sums the smaller side's terms."""
-    kk = np.arange(0, int(n) + 1, dtype=float)
-    logpmf = _betabinom_logpmf(kk[None, :], float(n), np.asarray(a)[:, None],
-                               np.asarray(b)[:, None])
-    pmf = np.exp(logpmf)
-    lower = pmf[:, : int(k) + 1].sum(1)
-    upper = pmf[:, int(k):].sum(1)
-    return np.minimum(upper, 1.0), np.minimum(lower, 1.0)
+    k, n). Sums the side with fewer terms; when that would take more than 2^24 terms in all,
+    the continuous limit X = n p (p ~ Beta(a, b)) with a half-unit correction."""
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    k, n = int(k), int(n)
+    low_side = k + 1 <= n - k + 1
+    terms = (k + 1) if low_side else (n - k + 1)
+    if terms * a.size > _MAX_TAIL_TERMS:
+        lower = special.betainc(a, b, min(1.0, (k + 0.5) / n))
+        upper = 1.0 - special.betainc(a, b, max(0.0, (k - 0.5) / n))
+        return upper, lower
+    kk = np.arange(0, k + 1) if low_side else np.arange(k, n + 1)
+    pmf = np.exp(_betabinom_logpmf(kk[None, :].astype(float), float(n), a[:, None],
+                                   b[:, None]))
+    side = pmf.sum(1)
+    at_k = pmf[:, -1] if low_side else pmf[:, 0]
+    other = np.clip(1.0 - side + at_k, 0.0, 1.0)
+    side = np.minimum(side, 1.0)
+    return (other, side) if low_side else (side, other)
 
 
 #: a lot is flagged when its two-sided leave-one-out predictive p-value is below this

@@ -160,13 +160,14 @@ def lot_notes(frame: pd.DataFrame, conflict: str | None) -> list[str]:
     if flagged is not None and flagged.any():
         names = _names(list(lots[flagged]))
         if conflict == "prior":
-            notes.append(f"lot(s) {names}: the data conflict with the stated prior (prior "
-                         "predictive p-value below 1%); the prior may be wrong for this lot: "
-                         "see its own-data decision")
+            notes.append(f"lot(s) {names}: the data conflict with the stated prior (more "
+                         "defectives than it makes plausible: prior predictive p-value below "
+                         "5%); the prior may be wrong for this lot: see its own-data decision")
         else:
             notes.append(f"lot(s) {names}: this lot does not look like the others of its "
-                         "group (leave-one-out predictive p-value below 1%); pooling may make "
-                         "the others' decisions optimistic: see their own-data decisions")
+                         "group (more defectives than the other lots make plausible: "
+                         "leave-one-out predictive p-value below 5%); pooling may make the "
+                         "others' decisions optimistic: see their own-data decisions")
     if "own_data_decision" in frame:
         differ = (frame["own_data_decision"] != frame["decision"]).to_numpy()
         if differ.any():

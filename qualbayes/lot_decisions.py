@@ -130,17 +130,14 @@ class _Degenerate(Exception):
 
 
 def tail_pvalue(x, n, a, b) -> np.ndarray:
-    """Two-sided predictive p-value of x defectives in n under BetaBinomial(n, a, b):
-    min(1, 2 min(P(X >= x), P(X <= x))), vectorised over lots (one Beta per lot)."""
-    x, n, a, b = (np.atleast_1d(np.asarray(v, float)) for v in (x, n, a, b))
+    """Upper-tail predictive p-value P(X >= x) of x defectives in n under
+    BetaBinomial(n, a, b) (more defectives than the prior makes plausible), vectorised over
+    lots (one Beta for all)."""
+    from qualbayes.models.lot_history_grid import betabinom_tails  # noqa: PLC0415
+
+    x, n = (np.atleast_1d(np.asarray(v, float)) for v in (x, n))
     out = np.ones(len(x))
-    for i in range(len(x)):
-        if n[i] > 2_000_000:  # continuous limit for huge samples: X = n p
-            up = 1.0 - special.betainc(a[i], b[i], max(0.0, (x[i] - 0.5) / n[i]))
-            low = special.betainc(a[i], b[i], min(1.0, (x[i] + 0.5) / n[i]))
-            out[i] = min(1.0, 2.0 * min(up, low))
-            continue
-        pmf = betabinom_pmf_matrix(int(n[i]), int(n[i]), a[i:i + 1], b[i:i + 1])[0]
-        up, low = pmf[int(x[i]):].sum(), pmf[: int(x[i]) + 1].sum()
-        out[i] = min(1.0, 2.0 * min(up, low))
+    for key in set(zip(x, n, strict=True)):
+        up, _ = betabinom_tails(key[0], key[1], np.array([float(a)]), np.array([float(b)]))
+        out[(x == key[0]) & (n == key[1])] = min(1.0, float(up[0]))
     return out

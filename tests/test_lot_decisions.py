@@ -115,7 +115,7 @@ def test_implied_lot_rate_quantiles_against_direct_simulation():
     while low.any():
         tau[low] = stats.halfnorm(scale=0.5).rvs(size=int(low.sum()), random_state=rng)
         low = tau < spread_floor(mu)
-    kappa = 1.0 / (np.minimum(mu, 1 - mu) * tau**2)
+    kappa = 1.0 / ((mu * (1 - mu)) * tau**2)
     p = stats.beta(mu * kappa, (1 - mu) * kappa).rvs(random_state=rng)
     for q, key in ((0.05, "5%"), (0.25, "25%"), (0.5, "50%"), (0.75, "75%")):
         # two independent samples of 1e5: quantiles agree to a few sampling errors
@@ -244,36 +244,52 @@ def test_reported_mcse_agrees_with_spread_over_independent_chains():
     is about chi-square with 23 degrees of freedom when the MCSE is right. Two-sided test at
     the 0.001 level (a reported MCSE off by a factor of two fails it)."""
     from qualbayes.inference import SamplerSettings
+    from qualbayes.lot_decisions import probabilities
+    from qualbayes.models.lot_history import fit_histories
 
-    rows = []
-    for k in range(24):
-        rows += [(f"{k}-{i}", f"C{k}", n, x, None) for i, (n, x) in enumerate(
-            [(80, 0), (125, 1), (80, 2), (200, 1), (50, 0)])]
-    res = assess_lots(_table(rows), 0.02, 0.95, "history",
-                      settings=SamplerSettings(num_warmup=500, num_samples=500, seed=9,
-                                               retry=False))
-    lots = res.lots[res.lots["lot"].str.endswith("-1")]
-    p = lots["prob_within_spec"].to_numpy()
-    err = lots["prob_within_spec_mcse"].to_numpy()
+    x = np.array([0, 1, 2, 1, 0], float)
+    n = np.array([80, 125, 80, 200, 50], float)
+    copies = 24
+    fit = fit_histories([(x, n)] * copies, SamplerSettings(num_warmup=500, num_samples=500,
+                                                           seed=9, retry=False))
+    # 48 parameters of short chains: an R-hat of 1.011 somewhere is chance, not a failure of
+    # the chains the MCSE describes
+    assert fit.gate.max_rhat < 1.03 and fit.gate.divergences == 0, fit.gate.reasons()
+    p, err = np.empty(copies), np.empty(copies)
+    for j in range(copies):
+        mu, kappa = fit.draws["mu"][:, :, j].ravel(), fit.draws["kappa"][:, :, j].ravel()
+        prob, mcse, _ = probabilities(mu * kappa, (1 - mu) * kappa, 4,
+                                      [(1.0, 125.0, None, None)], 0.02, PROCESS)
+        p[j], err[j] = prob[0], mcse[0]
     stat = float(np.sum((p - p.mean()) ** 2) / np.mean(err**2))
-    lo, hi = stats.chi2(23).ppf([0.0005, 0.9995])
+    lo, hi = stats.chi2(copies - 1).ppf([0.0005, 0.9995])
     assert lo <= stat <= hi, (stat, lo, hi)
 
 
-def test_close_call_gives_the_same_decision_under_five_seeds():
+def _close_call_decisions(seeds) -> set:
     """C set to the exact (quadrature) P of a lot: within 1 MCSE of C by construction, so
     every seed must draw more and then say 'too close to call', never accept or undecided by
     chance alone."""
-    from qualbayes.inference import SamplerSettings
-
     rows = [("A", "P", 80, 0, None), ("B", "P", 125, 1, None), ("C", "P", 80, 2, None)]
-    g = grid.posterior_grid([0, 1, 2], [80, 125, 80], size=300)
-    c = float(grid.prob_within(g, [1], [125], 0.03)[0])
+    exact = [float(grid.prob_within(grid.posterior_grid([0, 1, 2], [80, 125, 80], size=k),
+                                    [1], [125], 0.03)[0]) for k in (400, 800)]
+    assert abs(exact[0] - exact[1]) < 2e-5  # the quadrature has converged
+    c = exact[1]
     decisions = set()
-    for seed in range(5):
-        res = assess_lots(_table(rows), 0.03, c, "history",
-                          settings=SamplerSettings(num_warmup=400, num_samples=400, seed=seed))
+    for seed in seeds:
+        res = assess_lots(_table(rows), 0.03, c, "history", seed=seed)
+        assert res.converged
         b = res.lots.set_index("lot").loc["B"]
         decisions.add((b["decision"], bool(b["too_close"])))
-        assert res.sampler["chains"] == 16  # drew more up to the cap
-    assert decisions == {("undecided", True)}
+        assert res.sampler["chains"] > 4  # drew more
+        assert any("too close to call" in n for n in res.notes)
+    return decisions
+
+
+def test_close_call_same_decision_two_seeds():
+    assert _close_call_decisions([0, 1]) == {("undecided", True)}
+
+
+@pytest.mark.slow
+def test_close_call_gives_the_same_decision_under_five_seeds():
+    assert _close_call_decisions(range(5)) == {("undecided", True)}

@@ -173,14 +173,14 @@ def _edge_table() -> LotTable:
 def grid_moments(x: np.ndarray, n: np.ndarray) -> dict[str, tuple[float, float]]:
     """Posterior mean and sd of mu and log kappa by quadrature on a fixed wide fine grid in
     the sampler's own coordinates u = logit(mu), v = log(tau - tau_lo(mu)), written here
-    independently of qualbayes.models.lot_history_grid: tau = (kappa min(mu, 1-mu))^(-1/2)
-    ~ HalfNormal(0.5) truncated to tau >= tau_lo = (1e8 min(mu, 1-mu))^(-1/2) (closed-form
+    independently of qualbayes.models.lot_history_grid: tau = (kappa mu (1-mu))^(-1/2)
+    ~ HalfNormal(0.5) truncated to tau >= tau_lo = (1e8 mu (1-mu))^(-1/2) (closed-form
     density: scipy.stats.norm in logs), mu ~ Beta(1, 1), Jacobians mu (1 - mu) and e^v."""
     u = np.linspace(-32, 32, 1601)
     v = np.linspace(-30, 12, 1601)
     uu, vv = np.meshgrid(u, v, indexing="ij")
     mu, not_mu = special.expit(uu), special.expit(-uu)
-    m = np.minimum(mu, not_mu)
+    m = mu * not_mu
     lo = 1 / np.sqrt(1e8 * m)
     tau = lo + np.exp(vv)
     kappa = 1 / (m * tau**2)

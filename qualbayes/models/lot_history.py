@@ -7,7 +7,7 @@ Model, for part j and its lots i = 1..k_j (parts are independent of each other):
     x_{ji} \mid p_{ji} &\sim \mathrm{Binomial}(n_{ji}, p_{ji}) \\
     p_{ji} \mid \mu_j, \kappa_j &\sim \mathrm{Beta}(\mu_j\kappa_j,\; (1-\mu_j)\kappa_j) \\
     \mu_j &\sim \mathrm{Beta}(1, 1), \qquad
-    \tau_j = (\kappa_j \min(\mu_j, 1-\mu_j))^{-1/2} \sim \mathrm{HalfNormal}(S),
+    \tau_j = (\kappa_j \mu_j(1-\mu_j))^{-1/2} \sim \mathrm{HalfNormal}(S),
     \ \tau_j \ge \tau_{lo}(\mu_j)
 
 tau is the lot-to-lot coefficient of variation of the defect rate (for rare defects), stated
@@ -58,13 +58,13 @@ __all__ = ["PHI_MIN", "fit_histories", "lot_history_model", "lot_history_model_p
 def _log_tau_density(tau, mu, scale):
     """log p(tau | mu) of :class:`qualbayes.models.lot_spread.HistoryPrior` in jax:
     HalfNormal(scale) truncated to tau >= tau_lo(mu)."""
-    lo = 1.0 / jnp.sqrt(KAPPA_MAX * jnp.minimum(mu, 1.0 - mu))
+    lo = 1.0 / jnp.sqrt(KAPPA_MAX * (mu * (1.0 - mu)))
     log_z = jnp.log(2.0) + log_ndtr(-lo / scale)
     return 0.5 * jnp.log(2.0 / jnp.pi) - jnp.log(scale) - 0.5 * (tau / scale) ** 2 - log_z
 
 
 def _log_tau_density_phi_uniform(tau, mu):
-    m = jnp.minimum(mu, 1.0 - mu)
+    m = (mu * (1.0 - mu))
     return 0.5 * jnp.log(m) - 1.5 * jnp.log1p(m * tau**2) - jnp.log1p(-PHI_MIN)
 
 
@@ -75,7 +75,7 @@ def hyperprior_sites(n_parts, scale):
     with numpyro.plate("parts", n_parts, dim=-2):
         mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
         y = numpyro.sample("spread_y", dist.ImproperUniform(constraints.real, (), ()))
-        m = jnp.minimum(mu, 1.0 - mu)
+        m = (mu * (1.0 - mu))
         tau = numpyro.deterministic("tau", 1.0 / jnp.sqrt(KAPPA_MAX * m) + jnp.exp(y))
         kappa = numpyro.deterministic("kappa", 1.0 / (m * tau**2))
     prior = (_log_tau_density_phi_uniform(tau, mu) if scale is None

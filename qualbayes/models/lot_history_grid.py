@@ -10,7 +10,7 @@ group with distinct terms :math:`(x_k, n_k)` seen :math:`w_k` times,
         + \log \mu(1-\mu) + \log p(\tau\mid\mu) + v
 
 in :math:`u = \mathrm{logit}\,\mu` and :math:`v = \log(\tau - \tau_{lo}(\mu))`,
-:math:`\kappa = 1/(\min(\mu, 1-\mu)\tau^2)` (the coordinates NUTS uses; the last terms are
+:math:`\kappa = 1/(\mu(1-\mu)\tau^2)` (the coordinates NUTS uses; the last terms are
 the priors with their Jacobians). A coarse grid over a wide box finds where the
 mass is; a fine grid over that region gives the weights. Lot answers are the
 posterior-weighted mixtures of the conditional Betas

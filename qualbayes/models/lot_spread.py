@@ -6,19 +6,19 @@ spread is stated as
 
 .. math::
 
-    \tau = \frac{1}{\sqrt{\kappa \min(\mu, 1-\mu)}} = \frac{1}{\sqrt{\min(a, b)}},
+    \tau = \frac{1}{\sqrt{\kappa\,\mu(1-\mu)}} = \sqrt{\frac{1}{a} + \frac{1}{b}},
 
 which for rare defects is the coefficient of variation of the lot rates,
 :math:`\mathrm{CV}^2 = (1-\mu)/(\mu(\kappa+1)) \approx \tau^2` (and of the rarer outcome in
 general). Unlike :math:`\kappa` or :math:`\phi = (\kappa+1)^{-1/2}` it means the same at
 10 ppm and at 5%, and it grows without bound as the lots become "either near 0 or near 1"
-(:math:`a, b < 1` means :math:`\tau > 1`). The default hyperprior is
+(:math:`a, b < 1` means :math:`\tau > \sqrt2`). The default hyperprior is
 
 .. math::
 
     \mu \sim \mathrm{Beta}(1, 1), \qquad
     \tau \mid \mu \sim \mathrm{HalfNormal}(S)\ \text{truncated to}\ \tau \ge \tau_{lo}(\mu)
-    = (\kappa_{max} \min(\mu, 1-\mu))^{-1/2},
+    = (\kappa_{max} \mu(1-\mu))^{-1/2},
 
 with S the stated spread (default ``DEFAULT_CV_SCALE``, chosen from the operating
 characteristics): 95% prior probability that the lot rates vary with a CV below 1.96 S.
@@ -45,14 +45,14 @@ _LOG_HN = 0.5 * np.log(2.0 / np.pi)
 
 
 def spread_floor(mu):
-    """tau at kappa = KAPPA_MAX: tau_lo = 1 / sqrt(KAPPA_MAX min(mu, 1 - mu))."""
+    """tau at kappa = KAPPA_MAX: tau_lo = 1 / sqrt(KAPPA_MAX mu (1 - mu))."""
     mu = np.asarray(mu, float)
-    return 1.0 / np.sqrt(KAPPA_MAX * np.minimum(mu, 1.0 - mu))
+    return 1.0 / np.sqrt(KAPPA_MAX * (mu * (1.0 - mu)))
 
 
 def kappa_of(mu, tau):
-    """kappa = 1 / (min(mu, 1 - mu) tau^2)."""
-    return 1.0 / (np.minimum(mu, 1.0 - mu) * np.asarray(tau, float) ** 2)
+    """kappa = 1 / (mu (1 - mu) tau^2)."""
+    return 1.0 / ((mu * (1.0 - mu)) * np.asarray(tau, float) ** 2)
 
 
 @dataclass(frozen=True)
@@ -112,7 +112,7 @@ class PhiUniformPrior:
     """The earlier hyperprior, phi = (kappa + 1)^(-1/2) ~ Uniform(PHI_MIN, 1)
     (``--prior history-phi-uniform``). Kept only under its explicit name, for comparison:
     with clean lots it puts most mass on kappa < 1 and calls every clean lot nearly perfect
-    (docs/lots.md). In tau: phi = (1 + 1/(m tau^2))^(-1/2), m = min(mu, 1 - mu)."""
+    (docs/lots.md). In tau: phi = (1 + 1/(m tau^2))^(-1/2), m = mu (1 - mu)."""
 
     cv_scale: None = None
 
@@ -122,7 +122,7 @@ class PhiUniformPrior:
                 "show (docs/lots.md)")
 
     def log_tau_density(self, tau, mu):
-        m = np.minimum(np.asarray(mu, float), 1.0 - np.asarray(mu, float))
+        m = np.asarray(mu, float) * (1.0 - np.asarray(mu, float))
         tau = np.asarray(tau, float)
         # |d phi / d tau| with phi^2 = m tau^2 / (m tau^2 + 1)
         return (0.5 * np.log(m) - 1.5 * np.log1p(m * tau**2) - np.log1p(-PHI_MIN))

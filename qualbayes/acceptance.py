@@ -13,19 +13,11 @@ import numpy as np
 import pandas as pd
 
 from qualbayes.data.lots import LotTable
-from qualbayes.lot_answers import (
-    RESULT_COLUMNS,
-    answer_lots,
-    group_rows,
-    lot_notes,
-    next_lot_summary,
-    own_data_columns,
-)
-from qualbayes.lot_decisions import LOT, PROCESS, TOO_CLOSE
+from qualbayes.lot_answers import RESULT_COLUMNS, answer_lots, lot_notes, own_data_columns
+from qualbayes.lot_decisions import LOT, PROCESS
 from qualbayes.lot_decisions import extra_clean_units as _extra
 from qualbayes.models.lot_spread import HistoryPrior, PhiUniformPrior
 from qualbayes.models.priors import HISTORY, HISTORY_PHI_UNIFORM, BetaPrior
-from qualbayes.questions import NOT_CONVERGED
 
 GROUP_COLUMNS = ("part", "supplier")
 #: Close calls draw more: up to this many further NUTS runs of the same size, each adding
@@ -161,7 +153,3 @@ def extra_clean_units_reweighted(alpha, beta, spec, confidence, max_units=10**7)
     alpha = np.asarray(alpha, float)
     return _extra(alpha, np.asarray(beta, float), 0.0, 0.0, None, None, spec, confidence,
                   PROCESS)
-
-
-__all__ = ["LotAssessment", "assess_lots", "extra_clean_units_reweighted", "group_rows",
-           "next_lot_summary", "NOT_CONVERGED", "TOO_CLOSE"]

@@ -45,6 +45,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         fit = more_draws(fit, data, names, hyper, runs)
     parts = _answer_groups(frame, groups, fit, spec, confidence, outliers)
     out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
+    out["decision_basis"] = list(frame["decision_basis"])  # kept for lots without a verdict
     diagnostics, next_lot, draws = {}, {}, {}
     for j, (label, idx) in enumerate(groups.items()):
         ans, ok = parts[label]
@@ -73,8 +74,6 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
             frame[c] = pd.Series(values, dtype=object).to_numpy()
         else:
             frame[c] = pd.to_numeric(pd.Series(values, dtype=object)).to_numpy()
-    frame["decision_basis"] = frame["decision_basis"].where(frame["decision_basis"].notna(),
-                                                            None)
     own_data_columns(frame, spec, confidence)
     conv = frame["decision"] == NOT_CONVERGED
     frame.loc[conv, ["own_data_prob", "own_data_decision"]] = None

@@ -49,6 +49,9 @@ def build(record: dict) -> Report:
                                   ["bound", q["upper_bound"]]])])
     model = Section("Model and prior", [
         Paragraph(record["model"], "mono"), Paragraph(f"Prior: {record['prior']}", "mono"),
+        Paragraph("Pooled by: " + ", ".join(record.get("group_by") or []) + " (one history per "
+                  "value; history prior only). Decided about: " + "; ".join(
+                      f"{k} = {v}" for k, v in q.get("bases", {}).items()), "mono"),
         Paragraph("Finite lots: defectives among the N - n units not inspected ~ "
                   "BetaBinomial(N - n, posterior Beta parameters), mixed over posterior draws "
                   "for the history prior.", "mono")])

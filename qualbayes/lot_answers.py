@@ -29,6 +29,9 @@ RESULT_COLUMNS = [
     "remaining_defectives_upper", "outlier", "outlier_p", "own_data_prob",
     "own_data_decision",
 ]
+#: bounds, means, defectives not inspected and clean-unit counts are computed from at most
+#: this many draws, evenly thinned (P and its MCSE, which decide, use every draw)
+SUMMARY_DRAWS = 1000
 _INT_COLUMNS = ("extra_clean_units_to_accept", "remaining_units",
                 "remaining_defectives_median", "remaining_defectives_upper")
 
@@ -88,6 +91,9 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
             cols["decision"][j] = dec[i]
             cols["too_close"][j] = bool(close[i])
             approx[j] = approx[j] or not exact[i]
+    if full and np.size(a0) > SUMMARY_DRAWS:
+        keep = np.linspace(0, np.size(a0) - 1, SUMMARY_DRAWS).round().astype(int)
+        a0, b0 = np.asarray(a0)[keep], np.asarray(b0)[keep]
     for j, (x, n, rem, size, basis) in enumerate(combos):
         cols["decision_basis"][j] = basis
         if not full:

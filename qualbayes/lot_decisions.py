@@ -27,7 +27,6 @@ import numpy as np
 from scipy import special
 
 from qualbayes.mcse import CLOSE_MCSE, mcse_mean
-from qualbayes.models.mixtures import betabinom_pmf_matrix
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
 
@@ -47,8 +46,23 @@ def _lot_g(alpha, beta, k_star: int, remaining: int) -> tuple[np.ndarray, bool]:
     if alpha.size * (k_star + 1) > MAX_PMF_TERMS:
         # continuous limit: D = R p + O(sqrt(R p)); P(D <= k) ~ P(p <= (k + 1/2) / R)
         return special.betainc(alpha, beta, (k_star + 0.5) / remaining), False
-    pmf = betabinom_pmf_matrix(k_star, remaining, alpha, beta)
-    return np.minimum(pmf.sum(axis=1), 1.0), True
+    return np.minimum(betabinom_cdf(k_star, remaining, alpha, beta), 1.0), True
+
+
+def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
+    """P(D <= k) per draw for D ~ BetaBinomial(remaining, alpha_d, beta_d), by the ratio of
+    successive probabilities, pmf(j + 1) / pmf(j) = (R - j)(alpha + j) / ((j + 1)(beta + R -
+    j - 1)), summed in logs from pmf(0) = B(alpha, beta + R) / B(alpha, beta): one pair of
+    log-beta functions per draw, then only logarithms (checked against scipy.stats.betabinom
+    in the tests)."""
+    j = np.arange(k, dtype=float)[None, :]
+    a = np.asarray(alpha, float)[:, None]
+    b = np.asarray(beta, float)[:, None]
+    log0 = special.betaln(a, b + remaining) - special.betaln(a, b)
+    steps = (np.log(remaining - j) + np.log(a + j) - np.log(j + 1.0)
+             - np.log(b + remaining - j - 1.0))
+    logpmf = np.concatenate([log0, log0 + np.cumsum(steps, axis=1)], axis=1)
+    return np.exp(logpmf).sum(axis=1)
 
 
 def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basis: str,

@@ -293,3 +293,14 @@ def test_close_call_same_decision_two_seeds():
 @pytest.mark.slow
 def test_close_call_gives_the_same_decision_under_five_seeds():
     assert _close_call_decisions(range(5)) == {("undecided", True)}
+
+
+def test_betabinom_cdf_by_ratios_against_scipy():
+    # reference: scipy.stats.betabinom (docs/references.md)
+    from qualbayes.lot_decisions import betabinom_cdf
+
+    a = np.array([0.05, 0.5, 3.0, 40.0])
+    b = np.array([20.0, 200.0, 900.0, 5000.0])
+    for k, r in ((0, 10), (5, 700), (50, 4900), (300, 100_000)):
+        assert betabinom_cdf(k, r, a, b) == pytest.approx(stats.betabinom(r, a, b).cdf(k),
+                                                          rel=1e-9)

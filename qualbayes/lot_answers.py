@@ -131,6 +131,16 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     return out
 
 
+def beta_answers(frame: pd.DataFrame, a: float, b: float, spec: float,
+                 confidence: float) -> tuple[list, list]:
+    """(P, decision) of every lot under the prior Beta(a, b), on each lot's own basis (the
+    rows of a prior-sensitivity table)."""
+    sub = frame[["defectives", "inspected", "lot_size", "decision_basis"]].copy()
+    sub["decision_basis"] = sub["decision_basis"].fillna(PROCESS)
+    ans = answer_lots(sub, np.array([a]), np.array([b]), 1, spec, confidence, full=False)
+    return list(ans["prob_within_spec"]), list(ans["decision"])
+
+
 def own_data_columns(frame: pd.DataFrame, spec: float, confidence: float,
                      same: bool = False) -> None:
     """Each lot's own-data decision (uniform prior, same basis) beside the one given."""

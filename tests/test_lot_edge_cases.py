@@ -237,9 +237,14 @@ def test_history_edge_parts_give_finite_sensible_decisions(history):
             & (lots["upper_bound"] <= lots["interval_high"]) & (lots["interval_high"] <= 1)).all()
     # each reported quantile is where the lot's mixture CDF reaches its level, even for the
     # extremely skewed mixtures of a million clean units (mean above the 97.5% point there)
+    from qualbayes.lot_answers import SUMMARY_DRAWS
+
     for lot, row in lots.iterrows():
         draws = history.draws[row["part"]]
         mu, kappa = np.ravel(draws["mu"]), np.ravel(draws["kappa"])
+        # the summaries are taken from SUMMARY_DRAWS evenly thinned draws (docs/lots.md)
+        keep = np.linspace(0, mu.size - 1, min(SUMMARY_DRAWS, mu.size)).round().astype(int)
+        mu, kappa = mu[keep], kappa[keep]
         x, n = float(row["defectives"]), float(row["inspected"])
         alpha, beta = mu * kappa + x, (1 - mu) * kappa + (n - x)
         for key, level in (("interval_low", 0.025), ("upper_bound", 0.95),

@@ -216,7 +216,11 @@ def lot_prior_evidence(args, result, prior, setup, spec: float, confidence: floa
             as_run = None
         rows = beta_rows(first, setup.stated if setup else None, setup.base if setup else None,
                          setup.earlier if setup else None)
-        extras["sensitivity"] = lots_sensitivity(frame, spec, confidence, rows, as_run)
+        from qualbayes.lot_answers import beta_answers  # noqa: PLC0415
+
+        extras["sensitivity"] = lots_sensitivity(
+            frame, spec, confidence, rows, as_run,
+            beta_answers=lambda a, b: beta_answers(frame, a, b, spec, confidence))
     return plain(extras)
 
 

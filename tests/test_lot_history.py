@@ -3,7 +3,7 @@
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import special, stats
+from scipy import stats
 
 from qualbayes.acceptance import assess_lots, extra_clean_units_reweighted
 from qualbayes.data.lots import LotTable

@@ -146,7 +146,8 @@ def lots_text(record: dict) -> str:
             tail.append(f"next lot of {part}: predicted defect rate median {_pct(nl['median'])}"
                         f", {c:.0%} upper {_pct(nl['upper_bound'])}, P(p<=spec) "
                         f"{nl['prob_within_spec']:.4f} (MCSE {nl['prob_within_spec_mcse']:.4f})"
-                        f"; mean {_pct(nl['mean'])} ({nl['mean_note']})")
+                        f"; mean {_pct(nl['mean'])}"
+                        + (f" ({nl['mean_note']})" if nl["mean"] > nl["upper_bound"] else ""))
     tail += record["notes"]
     tail.append(CAUTION)
     head += prior_lines(record)

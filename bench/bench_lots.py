@@ -152,6 +152,7 @@ def main() -> None:
     for case, label in (("sim", "1,000 lots"), ("stable", "stable supplier, 200 lots")):
         fit_in_subprocess("lot_history_model_phi_uniform", old_cache, case)
         old = fit_in_subprocess("lot_history_model_phi_uniform", old_cache, case)
+        fit_in_subprocess("lot_history_model", cache, case)  # warm: its own padded shape
         new = fit_in_subprocess("lot_history_model", cache, case)
         for name, r in (("earlier prior (phi uniform)", old), ("default prior (tau HN 0.5)",
                                                                  new)):

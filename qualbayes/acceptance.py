@@ -1,4 +1,9 @@
-"""Lot acceptance: from validated lots to a decision per lot (the API behind ``lots``)."""
+"""Lot acceptance: from validated lots to a decision per lot (the API behind ``lots``).
+
+Every lot is answered through its distinct combination (defectives, inspected, units not
+inspected): equal lots of a group have equal answers, so the work is done once per
+combination and broadcast back (:mod:`qualbayes.lot_answers`).
+"""
 
 from __future__ import annotations
 
@@ -8,18 +13,16 @@ import numpy as np
 import pandas as pd
 
 from qualbayes.data.lots import LotTable
-from qualbayes.models import lots as conj
-from qualbayes.models import mixtures
-from qualbayes.models.priors import HISTORY, BetaPrior
-from qualbayes.questions import ACCEPT, NOT_CONVERGED, UNDECIDED, decide
+from qualbayes.lot_answers import RESULT_COLUMNS, answer_lots, lot_notes, own_data_columns
+from qualbayes.lot_decisions import LOT, PROCESS
+from qualbayes.lot_decisions import extra_clean_units as _extra
+from qualbayes.models.lot_spread import HistoryPrior, PhiUniformPrior
+from qualbayes.models.priors import HISTORY, HISTORY_PHI_UNIFORM, BetaPrior
 
-MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
-
-RESULT_COLUMNS = [
-    "posterior_mean", "interval_low", "interval_high", "upper_bound", "prob_within_spec",
-    "decision", "extra_clean_units_to_accept", "remaining_units",
-    "remaining_defectives_median", "remaining_defectives_upper",
-]
+GROUP_COLUMNS = ("part", "supplier")
+#: Close calls draw more: up to this many further NUTS runs of the same size, each adding
+#: the same number of chains (so at most 4 x 4,000 = 16,000 draws with the defaults).
+MAX_EXTRA_RUNS = 3
 
 
 @dataclass
@@ -32,12 +35,15 @@ class LotAssessment:
     prior: str
     model: str
     seed: int | None
-    diagnostics: dict[str, dict] = field(default_factory=dict)  # part -> gate dict
-    next_lot: dict[str, dict] = field(default_factory=dict)  # part -> predictive summary
+    diagnostics: dict[str, dict] = field(default_factory=dict)  # group -> gate dict
+    next_lot: dict[str, dict] = field(default_factory=dict)  # group -> predictive summary
     notes: list[str] = field(default_factory=list)
     prior_params: dict | None = None  # {"a": ..., "b": ...} for the conjugate priors
-    draws: dict[str, dict] = field(default_factory=dict)  # part -> {"mu", "kappa"} (chain, draw)
+    draws: dict[str, dict] = field(default_factory=dict)  # group -> {"mu", "kappa"} (chain, draw)
     sampler: dict = field(default_factory=dict)
+    group_by: tuple[str, ...] = ("part",)
+    decision_basis: str = LOT  # asked for; each lot's own basis is in lots["decision_basis"]
+    lot_spread: dict | None = None  # the history hyperprior as stated, and what it implies
 
     @property
     def converged(self) -> bool:
@@ -47,199 +53,103 @@ class LotAssessment:
 MODEL_CONJUGATE = ("x ~ Binomial(n, p); p ~ Beta(a, b); posterior p | x ~ Beta(a + x, b + n - x) "
                    "(closed form)")
 MODEL_HISTORY = ("x_i ~ Binomial(n_i, p_i); p_i ~ Beta(mu*kappa, (1-mu)*kappa); mu ~ Beta(1,1); "
-                 "phi = 1/sqrt(kappa+1) ~ Uniform(1e-4, 1); p_i marginalised, NUTS on (mu, phi), "
+                 "{spread}; p_i marginalised, NUTS on (logit mu, log(tau - tau_lo)), "
                  "p_i | mu, kappa, x_i ~ Beta(mu*kappa + x_i, (1-mu)*kappa + n_i - x_i); "
-                 "one model per part number")
+                 "one model per group of lots ({groups})")
 
 
 def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
-                prior: BetaPrior | str = "uniform", seed: int = 20261202,
-                settings=None) -> LotAssessment:
-    """Answer "is P(p <= spec | data) >= confidence?" for every lot."""
-    if isinstance(prior, str) and prior != HISTORY:
+                prior: BetaPrior | str | HistoryPrior = "uniform", seed: int = 20261202,
+                settings=None, *, group_by: tuple[str, ...] = ("part",),
+                decision_basis: str = LOT, lot_spread: float | None = None,
+                check_prior_conflict: bool = False) -> LotAssessment:
+    """Answer "is the lot within spec at confidence C?" for every lot.
+
+    ``decision_basis``: ``lot`` (default) decides about the lot's own fraction defective
+    when its lot size is given (and about the process rate otherwise), ``process`` always
+    about the rate p. ``group_by``: the columns whose values define the lots that share a
+    history (``history`` prior). ``lot_spread``: the stated scale S of the lot-to-lot
+    coefficient of variation (history prior; default in qualbayes.models.lot_spread).
+    ``check_prior_conflict``: check each lot's data against a stated Beta prior.
+    """
+    if decision_basis not in (LOT, PROCESS):
+        from qualbayes.errors import ParameterError  # noqa: PLC0415
+
+        raise ParameterError(f"decision_basis {decision_basis!r}: choose 'lot' or 'process'")
+    group_by = _check_group_by(group_by)
+    hyper = _history_prior(prior, lot_spread)
+    if hyper is None and isinstance(prior, str):
         from qualbayes.models.priors import parse_lot_prior  # noqa: PLC0415
 
         prior = parse_lot_prior(prior)
     frame = table.frame.copy()
-    if prior == HISTORY:
-        return _assess_history(frame, spec, confidence, seed, settings)
+    frame["decision_basis"] = np.where(frame["lot_size"].notna() & (decision_basis == LOT),
+                                       LOT, PROCESS)
+    if hyper is not None:
+        from qualbayes.lot_history_answers import assess_history  # noqa: PLC0415
+
+        return assess_history(frame, spec, confidence, hyper, seed, settings, group_by,
+                              decision_basis)
     assert isinstance(prior, BetaPrior)
-    a_post, b_post = conj.posterior(frame["defectives"], frame["inspected"], prior.a, prior.b)
-    summary = conj.summarise(a_post, b_post, spec, confidence)
-    for key, values in summary.items():
+    answers = answer_lots(frame, np.array([prior.a]), np.array([prior.b]), 1, spec,
+                          confidence)
+    for key, values in answers.items():
         frame[key] = values
-    frame["decision"] = [decide(p, confidence) for p in frame["prob_within_spec"]]
-    frame["extra_clean_units_to_accept"] = [
-        _extra_conjugate(d, a, b, spec, confidence)
-        for d, a, b in zip(frame["decision"], a_post, b_post, strict=True)]
-    approximate = _add_remaining(frame, a_post, b_post, confidence)
+    frame["group"] = None
+    frame["outlier"] = None
+    frame["outlier_p"] = np.nan
+    if check_prior_conflict:
+        from qualbayes.lot_decisions import tail_pvalue  # noqa: PLC0415
+        from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
+
+        pv = tail_pvalue(frame["defectives"], frame["inspected"], prior.a, prior.b) if len(
+            frame) else np.array([])
+        frame["outlier_p"] = pv
+        frame["outlier"] = pv < OUTLIER_LEVEL
+    own_data_columns(frame, spec, confidence, same=prior.a == 1.0 and prior.b == 1.0)
+    notes = lot_notes(frame, conflict="prior" if check_prior_conflict else None)
     return LotAssessment(frame[_columns(frame)], spec, confidence, prior.describe(),
-                         MODEL_CONJUGATE, None, notes=_approximate_note(approximate),
-                         prior_params={"a": prior.a, "b": prior.b})
+                         MODEL_CONJUGATE, None, notes=notes,
+                         prior_params={"a": prior.a, "b": prior.b}, group_by=group_by,
+                         decision_basis=decision_basis)
 
 
-def _extra_conjugate(decision, a, b, spec, confidence):
-    if decision == ACCEPT:
-        return 0
-    if decision == UNDECIDED:
-        return conj.extra_clean_units(a, b, spec, confidence)
+def _check_group_by(group_by) -> tuple[str, ...]:
+    cols = tuple(group_by) if not isinstance(group_by, str) else (group_by,)
+    if not cols or any(c not in GROUP_COLUMNS for c in cols) or len(set(cols)) != len(cols):
+        from qualbayes.errors import ParameterError  # noqa: PLC0415
+
+        raise ParameterError(f"group_by {group_by!r}: one or more of {', '.join(GROUP_COLUMNS)}"
+                             ", each once")
+    return cols
+
+
+def _history_prior(prior, lot_spread):
+    if isinstance(prior, (HistoryPrior, PhiUniformPrior)):
+        return prior
+    if prior == HISTORY:
+        return HistoryPrior() if lot_spread is None else HistoryPrior(float(lot_spread))
+    if prior == HISTORY_PHI_UNIFORM:
+        return PhiUniformPrior()
+    if lot_spread is not None:
+        from qualbayes.errors import ParameterError  # noqa: PLC0415
+
+        raise ParameterError("lot_spread is the spread of the history prior: give it only "
+                             "with prior='history'")
     return None
 
 
-def _add_remaining(frame: pd.DataFrame, a_post, b_post, confidence: float) -> list[str]:
-    """Fill the remaining-units columns; returns the lots whose count is approximate."""
-    approximate: list[str] = []
-    size = frame["lot_size"]
-    remaining = (size - frame["inspected"]).astype("Int64")
-    frame["remaining_units"] = remaining
-    med = [None] * len(frame)
-    up = [None] * len(frame)
-    has = remaining.notna().to_numpy()
-    if has.any():
-        r = remaining[has].astype("int64").to_numpy()
-        res = conj.remaining_defectives(np.asarray(a_post)[has], np.asarray(b_post)[has], r,
-                                        confidence)
-        for k, i in enumerate(np.flatnonzero(has)):
-            med[i], up[i] = int(res["median"][k]), int(res["upper_bound"][k])
-            if not res["exact"][k]:
-                approximate.append(str(frame["lot"].iloc[i]))
-    frame["remaining_defectives_median"] = pd.array(med, dtype="Int64")
-    frame["remaining_defectives_upper"] = pd.array(up, dtype="Int64")
-    return approximate
-
-
-def _approximate_note(lots: list[str]) -> list[str]:
-    if not lots:
-        return []
-    shown = ", ".join(lots[:5]) + (f" and {len(lots) - 5} more" if len(lots) > 5 else "")
-    return [f"defectives not inspected for lot(s) {shown}: so many units remain that the count "
-            "is the continuous limit (remaining units x quantile of the rate), within a few "
-            "times the square root of the defectives found of the exact beta-binomial value"]
-
-
 def _columns(frame: pd.DataFrame) -> list[str]:
-    base = ["lot", "part", "supplier", "date", "lot_size", "inspected", "defectives", "row"]
+    base = ["lot", "part", "supplier", "date", "lot_size", "inspected", "defectives", "row",
+            "group"]
     return base + RESULT_COLUMNS
 
 
-# --------------------------------------------------------------------------- history
-
-def _part_groups(frame: pd.DataFrame) -> dict[str, np.ndarray]:
-    parts = frame["part"].fillna("(no part number)")
-    return {str(k): np.flatnonzero((parts == k).to_numpy()) for k in dict.fromkeys(parts)}
-
-
-def _assess_history(frame, spec, confidence, seed, settings) -> LotAssessment:
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
-    from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
-
-    settings = settings or SamplerSettings(seed=seed)
-    results = {c: [None] * len(frame) for c in RESULT_COLUMNS}
-    diagnostics, next_lot, draws = {}, {}, {}
-    approximate: list[str] = []
-    x_all = frame["defectives"].to_numpy(float)
-    n_all = frame["inspected"].to_numpy(float)
-    tail = (1 - confidence) / 2
-    groups = _part_groups(frame)
-    fit = fit_histories([(x_all[idx], n_all[idx]) for idx in groups.values()], settings,
-                        names=list(groups))
-    for j, (part, idx) in enumerate(groups.items()):
-        gate = fit.gate.select(part)
-        diagnostics[part] = gate.to_dict()
-        ok = gate.passed
-        mu = fit.draws["mu"][:, :, j].reshape(-1)
-        kappa = fit.draws["kappa"][:, :, j].reshape(-1)
-        draws[part] = {"mu": fit.draws["mu"][:, :, j], "kappa": fit.draws["kappa"][:, :, j]}
-        a0, b0 = mu * kappa, (1 - mu) * kappa
-        next_lot[part] = _next_lot_summary(a0, b0, spec, confidence, tail) if ok else {
-            "decision": NOT_CONVERGED}
-        for i in idx:
-            if not ok:
-                results["decision"][i] = NOT_CONVERGED
-                continue
-            alpha, beta = a0 + x_all[i], b0 + (n_all[i] - x_all[i])  # (n - x) first: b0 may be tiny
-            prob = mixtures.cdf(spec, alpha, beta)
-            d = decide(prob, confidence)
-            results["posterior_mean"][i] = mixtures.mean(alpha, beta)
-            results["interval_low"][i] = mixtures.ppf(tail, alpha, beta)
-            results["interval_high"][i] = mixtures.ppf(1 - tail, alpha, beta)
-            results["upper_bound"][i] = mixtures.ppf(confidence, alpha, beta)
-            results["prob_within_spec"][i] = prob
-            results["decision"][i] = d
-            results["extra_clean_units_to_accept"][i] = (
-                0 if d == ACCEPT else extra_clean_units_reweighted(alpha, beta, spec, confidence)
-                if d == UNDECIDED else None)
-            size = frame["lot_size"].iloc[i]
-            if not pd.isna(size):
-                rem = int(size) - int(n_all[i])
-                results["remaining_units"][i] = rem
-                med, med_exact = mixtures.betabinom_quantile(0.5, rem, alpha, beta)
-                up, up_exact = mixtures.betabinom_quantile(confidence, rem, alpha, beta)
-                results["remaining_defectives_median"][i] = med
-                results["remaining_defectives_upper"][i] = up
-                if not (med_exact and up_exact):
-                    approximate.append(str(frame["lot"].iloc[i]))
-    for c in RESULT_COLUMNS:
-        frame[c] = pd.array(results[c], dtype="Int64") if c in (
-            "extra_clean_units_to_accept", "remaining_units", "remaining_defectives_median",
-            "remaining_defectives_upper") else pd.Series(results[c], dtype=object)
-    for c in ("posterior_mean", "interval_low", "interval_high", "upper_bound",
-              "prob_within_spec"):
-        frame[c] = pd.to_numeric(frame[c])
-    notes = []
-    if any(not d["passed"] for d in diagnostics.values()):
-        notes.append("the convergence gate failed for at least one part: those lots carry "
-                     "'not-converged' and no decision")
-    notes += _approximate_note(approximate)
-    return LotAssessment(frame[_columns(frame)], spec, confidence,
-                         "history: hierarchical beta-binomial over the lots of each part",
-                         MODEL_HISTORY, settings.seed, diagnostics, next_lot, notes,
-                         draws=draws, sampler=fit.gate.settings)
-
-
-def _next_lot_summary(a0, b0, spec, confidence, tail) -> dict:
-    return {
-        "mean": mixtures.mean(a0, b0),
-        "interval": [mixtures.ppf(tail, a0, b0), mixtures.ppf(1 - tail, a0, b0)],
-        "upper_bound": mixtures.ppf(confidence, a0, b0),
-        "prob_within_spec": mixtures.cdf(spec, a0, b0),
-    }
-
-
 def extra_clean_units_reweighted(alpha, beta, spec, confidence, max_units=10**7) -> int | None:
-    r"""Extra defect-free units for a lot under the history model.
-
-    m more clean units multiply the posterior of each draw by the ratio of beta-binomial
-    marginal likelihoods, :math:`w_d \propto B(\alpha_d, \beta_d + m) / B(\alpha_d, \beta_d)`,
-    and move the lot's conditional posterior to Beta(alpha_d, beta_d + m). This reweights the
-    existing draws (importance sampling) instead of refitting; when the weights degenerate
-    (effective sample size below MIN_WEIGHT_ESS) the count is not given (None).
-    """
-    from scipy import special  # noqa: PLC0415
-
-    base = special.betaln(alpha, beta)
-
-    def prob(m: int) -> tuple[float, float]:
-        logw = special.betaln(alpha, beta + m) - base
-        w = np.exp(logw - logw.max())
-        ess = w.sum() ** 2 / (w**2).sum()
-        return float(np.average(special.betainc(alpha, beta + m, spec), weights=w)), ess
-
-    if prob(0)[0] >= confidence:
-        return 0
-    hi = 1
-    while True:
-        p, ess = prob(hi)
-        if ess < MIN_WEIGHT_ESS or hi > max_units:
-            return None
-        if p >= confidence:
-            break
-        hi *= 2
-    lo = hi // 2
-    while hi - lo > 1:
-        mid = (lo + hi) // 2
-        if prob(mid)[0] >= confidence:
-            hi = mid
-        else:
-            lo = mid
-    return hi
+    """Extra defect-free units for a lot under the history model, process basis (the rate
+    p): see :func:`qualbayes.lot_decisions.extra_clean_units`. ``alpha``, ``beta`` are the
+    lot's conditional Beta parameters per draw."""
+    del max_units
+    alpha = np.asarray(alpha, float)
+    return _extra(alpha, np.asarray(beta, float), 0.0, 0.0, None, None, spec, confidence,
+                  PROCESS)

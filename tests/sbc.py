@@ -34,13 +34,13 @@ class Simulated:
 
 
 def simulate(replications: int, lots: int, seed: int) -> Simulated:
-    """Parameters from the model's prior, data from the model."""
-    from qualbayes.models.lot_history import PHI_MIN
+    """Parameters from the model's prior (the default history hyperprior), data from the
+    model."""
+    from qualbayes.models.lot_spread import HistoryPrior
 
     rng = np.random.default_rng(seed)
-    mu = rng.uniform(0.0, 1.0, replications)
-    phi = rng.uniform(PHI_MIN, 1.0, replications)
-    kappa = 1.0 / phi**2 - 1.0
+    mu, kappa = HistoryPrior().sample(replications, rng)
+    phi = 1.0 / np.sqrt(kappa + 1.0)
     groups = []
     for r in range(replications):
         n = rng.choice(SAMPLE_SIZES, size=lots).astype(float)
@@ -125,19 +125,16 @@ def run(sim: Simulated, settings, model=None, name: str = "lot history",
                        {"min_ess_bulk": fit.gate.min_ess_bulk, "max_rhat": fit.gate.max_rhat})
 
 
-def pooled_binomial_model(x, n, w=None):
+def pooled_binomial_model(x, n, w=None, scale=None):
     """A deliberately wrong likelihood for the test of the test: the lot-to-lot variation is
     dropped (x ~ Binomial(n, mu), as if every lot had the part's mean rate), the kind of
-    slip that drops a term. mu, phi and kappa keep their names and priors."""
+    slip that drops a term. mu and kappa keep their names and priors."""
     import numpyro
     import numpyro.distributions as dist
 
-    from qualbayes.models.lot_history import PHI_MIN
+    from qualbayes.models.lot_history import hyperprior_sites
 
-    with numpyro.plate("parts", x.shape[0], dim=-2):
-        mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
-        phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
-        numpyro.deterministic("kappa", 1.0 / phi**2 - 1.0)
+    mu, _ = hyperprior_sites(x.shape[0], scale)
     weight = (n > 0) if w is None else w
     numpyro.factor("x", (weight * dist.Binomial(total_count=n, probs=mu).log_prob(x)).sum())
 

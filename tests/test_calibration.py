@@ -27,6 +27,7 @@ docs/calibration.md.
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 import sbc
 
@@ -111,3 +112,63 @@ def test_sbc_weibull_large(units, inspections):
     sim = sbc.simulate_life(400, units, seed=200 + units + len(inspections),
                             inspections=inspections)
     assert_calibrated(sbc.run_life(sim, SLOW_SETTINGS))
+
+
+# ------------------------------------------------------------------ lot decision rules: OC
+
+# Operating characteristics of every lot decision rule under fixed true rates (issue 11
+# item 2; docs/calibration.md "Lot decisions under fixed true rates"). The history prior is
+# evaluated by exact quadrature, which tests/test_lot_decisions.py shows NUTS reproduces.
+# Tolerance: the consumer's risk may exceed 1 - C only by 3 Monte Carlo standard errors of
+# the study (binomial, over histories).
+
+OC_CI = {"a": 200, "b": 100, "c": 30, "d": 400}
+OC_SLOW = {"a": 2000, "b": 1000, "c": 300, "d": 4000}
+
+
+def oc_study(histories: dict, seed: int = 2026):
+    from qualbayes.models import lot_oc
+
+    out = {}
+    for sc in lot_oc.scenarios():
+        res = lot_oc.run(sc, histories[sc.key], seed, outliers=sc.key == "c")
+        out[sc.key] = (sc, {name: lot_oc.risks(sc, res, name)
+                            for name in ("uniform", "jeffreys", "history")})
+    return out
+
+
+def assert_oc_targets(study, histories: dict) -> None:
+    for key in ("a", "d"):
+        sc, risks = study[key]
+        for name, r in risks.items():
+            risk, err = r["consumer"]
+            # binomial error of a rate near 1 - C over the histories, at least
+            floor = np.sqrt(0.05 * 0.95 / histories[key])
+            assert risk <= 1 - sc.confidence + 3 * max(err, floor), (key, name, risk, err)
+    sc, risks = study["b"]
+    for name, r in risks.items():
+        assert r["producer"][0] <= 1 - sc.confidence, (name, r)
+    # (c): the bad lots are stated, and the outlier check flags them more often than the
+    # good ones
+    _, risks = study["c"]
+    assert risks["history"]["flag_bad"] > 5 * max(risks["history"]["flag_good"], 0.01)
+
+
+def test_lot_oc_ci_sized():
+    assert_oc_targets(oc_study(OC_CI), OC_CI)
+
+
+def test_lot_oc_old_history_prior_fails_the_target():
+    """The test can fail: the earlier hyperprior (phi uniform) accepts 2 x spec lots in (a)
+    whenever all are clean (about 73% of histories)."""
+    from qualbayes.models import lot_oc
+    from qualbayes.models.lot_spread import PhiUniformPrior
+
+    sc = lot_oc.scenarios()[0]
+    res = lot_oc.run(sc, 100, 7, {"old": PhiUniformPrior()}, outliers=False)
+    assert lot_oc.risks(sc, res, "old")["consumer"][0] > 0.5
+
+
+@pytest.mark.slow
+def test_lot_oc_large():
+    assert_oc_targets(oc_study(OC_SLOW, seed=2027), OC_SLOW)

@@ -59,13 +59,19 @@ def test_all_units_defective_closed_form(n):
     res = assess_lots(_table([("A", n, n, None)]), 0.01, c, UNIFORM).lots.iloc[0]
     assert res["upper_bound"] == pytest.approx(c ** (1 / (n + 1)), rel=1e-12)
     assert res["prob_within_spec"] == pytest.approx(0.01 ** (n + 1), rel=1e-9, abs=1e-300)
-    assert res["decision"] == REJECT and pd.isna(res["extra_clean_units_to_accept"])
+    # reject now carries the clean-unit count when more inspection could still change it
+    # (issue 11 item 4): the conjugate count for Beta(n + 1, 1), or none beyond the cap
+    expected = conj.extra_clean_units(n + 1.0, 1.0, 0.01, c)
+    assert res["decision"] == REJECT
+    got = res["extra_clean_units_to_accept"]
+    assert (pd.isna(got) and expected is None) or got == expected
 
 
 def test_lots_of_one_unit_closed_form():
     # n = 1: Beta(1, 2) after a good unit, Beta(2, 1) after a bad one
+    # the rate p (process basis); the lot basis asks about the 10-unit lot instead
     res = assess_lots(_table([("good", 1, 0, 10), ("bad", 1, 1, 10)]), 0.01, 0.95,
-                      UNIFORM).lots
+                      UNIFORM, decision_basis="process").lots
     assert res["prob_within_spec"].tolist() == pytest.approx([1 - 0.99**2, 0.01**2])
     assert res["posterior_mean"].tolist() == pytest.approx([1 / 3, 2 / 3])
     # 9 units left: the beta-binomial predictive of scipy (reference library)
@@ -165,22 +171,24 @@ def _edge_table() -> LotTable:
 
 
 def grid_moments(x: np.ndarray, n: np.ndarray) -> dict[str, tuple[float, float]]:
-    """Posterior mean and sd of mu and log kappa by quadrature in the sampler's own
-    coordinates u = logit(mu), t = logit((phi - c) / (1 - c)), c = PHI_MIN, where the
-    density is prod_i BB(x_i | n_i, mu kappa, (1-mu) kappa) * mu (1-mu) * s (1-s),
-    s = expit(t), kappa = 1/phi^2 - 1 (uniform priors on mu and on phi in (c, 1))."""
-    from qualbayes.models.lot_history import PHI_MIN
-
+    """Posterior mean and sd of mu and log kappa by quadrature on a fixed wide fine grid in
+    the sampler's own coordinates u = logit(mu), v = log(tau - tau_lo(mu)), written here
+    independently of qualbayes.models.lot_history_grid: tau = (kappa mu (1-mu))^(-1/2)
+    ~ HalfNormal(0.5) truncated to tau >= tau_lo = (1e8 mu (1-mu))^(-1/2) (closed-form
+    density: scipy.stats.norm in logs), mu ~ Beta(1, 1), Jacobians mu (1 - mu) and e^v."""
     u = np.linspace(-32, 32, 1601)
-    t = np.linspace(-32, 32, 1601)
-    uu, tt = np.meshgrid(u, t, indexing="ij")
+    v = np.linspace(-30, 12, 1601)
+    uu, vv = np.meshgrid(u, v, indexing="ij")
     mu, not_mu = special.expit(uu), special.expit(-uu)
-    phi = PHI_MIN + (1 - PHI_MIN) * special.expit(tt)
-    one_minus_phi = (1 - PHI_MIN) * special.expit(-tt)
-    kappa = one_minus_phi * (1 + phi) / phi**2  # 1/phi^2 - 1 without cancellation
+    m = mu * not_mu
+    lo = 1 / np.sqrt(1e8 * m)
+    tau = lo + np.exp(vv)
+    kappa = 1 / (m * tau**2)
     a, b = mu * kappa, not_mu * kappa
-    logp = (special.log_expit(uu) + special.log_expit(-uu) + special.log_expit(tt)
-            + special.log_expit(-tt))
+    scale = 0.5
+    log_prior_tau = (np.log(2) + stats.norm.logpdf(tau / scale) - np.log(scale)
+                     - np.log(2) - special.log_ndtr(-lo / scale))
+    logp = special.log_expit(uu) + special.log_expit(-uu) + log_prior_tau + vv
     pairs, counts = np.unique(np.stack([x, n], 1), axis=0, return_counts=True)
     for (xi, ni), c in zip(pairs, counts, strict=True):
         logp += c * (special.betaln(a + xi, b + (ni - xi)) - special.betaln(a, b))
@@ -190,8 +198,8 @@ def grid_moments(x: np.ndarray, n: np.ndarray) -> dict[str, tuple[float, float]]
     assert edge < 1e-8  # the grid holds the mass
     out = {}
     for name, val in (("mu", mu), ("log_kappa", np.log(kappa))):
-        m = float(np.sum(w * val))
-        out[name] = (m, float(np.sqrt(np.sum(w * (val - m) ** 2))))
+        mean = float(np.sum(w * val))
+        out[name] = (mean, float(np.sqrt(np.sum(w * (val - mean) ** 2))))
     return out
 
 
@@ -229,9 +237,14 @@ def test_history_edge_parts_give_finite_sensible_decisions(history):
             & (lots["upper_bound"] <= lots["interval_high"]) & (lots["interval_high"] <= 1)).all()
     # each reported quantile is where the lot's mixture CDF reaches its level, even for the
     # extremely skewed mixtures of a million clean units (mean above the 97.5% point there)
+    from qualbayes.lot_answers import SUMMARY_DRAWS
+
     for lot, row in lots.iterrows():
         draws = history.draws[row["part"]]
         mu, kappa = np.ravel(draws["mu"]), np.ravel(draws["kappa"])
+        # the summaries are taken from SUMMARY_DRAWS evenly thinned draws (docs/lots.md)
+        keep = np.linspace(0, mu.size - 1, min(SUMMARY_DRAWS, mu.size)).round().astype(int)
+        mu, kappa = mu[keep], kappa[keep]
         x, n = float(row["defectives"]), float(row["inspected"])
         alpha, beta = mu * kappa + x, (1 - mu) * kappa + (n - x)
         for key, level in (("interval_low", 0.025), ("upper_bound", 0.95),

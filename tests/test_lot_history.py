@@ -3,7 +3,7 @@
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import special, stats
+from scipy import stats
 
 from qualbayes.acceptance import assess_lots, extra_clean_units_reweighted
 from qualbayes.data.lots import LotTable
@@ -16,31 +16,14 @@ X = np.array([0, 1, 3, 0, 2, 5, 1, 0, 0, 4, 2, 1], float)
 N = np.array([50, 80, 125, 50, 80, 200, 125, 80, 50, 125, 200, 80], float)
 
 
-def grid_posterior(x, n, size=700):
-    """Exact posterior of (mu, phi) by quadrature on a grid in (logit mu, logit phi).
+def grid_posterior(x, n, size=400):
+    """Exact posterior of (mu, kappa) by 2-D quadrature under the same hyperprior
+    (qualbayes.models.lot_history_grid, checked against closed forms below)."""
+    from qualbayes.models.lot_history_grid import posterior_grid
 
-    With phi = c + (1 - c) expit(v), c = PHI_MIN, the density in (u, v) = (logit mu, v) is
-    prod_i BB(x_i | n_i, mu kappa, (1-mu) kappa) * mu(1-mu) * s(1-s), s = expit(v),
-    kappa = 1/phi^2 - 1 (uniform priors on mu and on phi in (c, 1)).
-    """
-    from qualbayes.models.lot_history import PHI_MIN
-
-    u = np.linspace(-9, 3, size)
-    v = np.linspace(-14, 6, size)
-    uu, vv = np.meshgrid(u, v, indexing="ij")
-    mu, s = special.expit(uu), special.expit(vv)
-    phi = PHI_MIN + (1 - PHI_MIN) * s
-    kappa = 1 / phi**2 - 1
-    a, b = mu * kappa, (1 - mu) * kappa
-    logp = np.log(mu) + np.log1p(-mu) + np.log(s) + np.log1p(-s)
-    for xi, ni in zip(x, n, strict=True):
-        logp = logp + special.betaln(a + xi, b + ni - xi) - special.betaln(a, b)
-    w = np.exp(logp - logp.max())
-    w /= w.sum()
-    # the grid must hold the mass: negligible weight on its edges
-    edge = w[0, :].sum() + w[-1, :].sum() + w[:, 0].sum() + w[:, -1].sum()
-    assert edge < 1e-4
-    return mu.ravel(), np.log(kappa).ravel(), w.ravel()
+    g = posterior_grid(x, n, size=size)
+    assert g.edge_mass < 1e-6  # the grid holds the mass
+    return g.mu, np.log(g.kappa), g.weight
 
 
 def weighted_quantile(values, weights, q):

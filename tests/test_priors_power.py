@@ -85,10 +85,12 @@ def test_weight_one_equals_pooling_the_two_data_sets_exactly(tmp_path):
     earlier = counts_from_lots(path)
     assert (earlier.failures, earlier.units, earlier.lots) == (4, 1130, 3)
     a, b = beta_power(0.5, 0.5, earlier, 1.0)
-    borrowed = assess_lots(now, 0.01, 0.95, BetaPrior(a, b, "w1"))
+    # the posterior of the rate p (process basis; the lot basis would also weigh lot sizes)
+    borrowed = assess_lots(now, 0.01, 0.95, BetaPrior(a, b, "w1"), decision_basis="process")
     pooled = _lots(tmp_path, "pooled.csv", [["P", "KV", "Acme", "2026-08-01", 9000,
                                              200 + 1130, 2 + 4]])
-    direct = assess_lots(pooled, 0.01, 0.95, BetaPrior(0.5, 0.5, "jeffreys"))
+    direct = assess_lots(pooled, 0.01, 0.95, BetaPrior(0.5, 0.5, "jeffreys"),
+                         decision_basis="process")
     for col in ("posterior_mean", "prob_within_spec", "upper_bound", "interval_low"):
         assert borrowed.lots[col].iloc[0] == pytest.approx(direct.lots[col].iloc[0], rel=1e-13)
     # the same answer from scipy.stats.beta directly (reference library)

@@ -20,7 +20,18 @@ def register(sub) -> None:
     p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
     p.add_argument("--prior", default=None,
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
-                        "lots of each part number, NUTS) (default: uniform)")
+                        "lots of each group, NUTS; docs/lots.md) | history-phi-uniform (the "
+                        "earlier history prior, not recommended) (default: uniform)")
+    p.add_argument("--pool-by", default="part", metavar="COLUMNS",
+                   help="with --prior history: the columns whose values make one history, "
+                        "e.g. part, supplier or part,supplier")
+    p.add_argument("--lot-spread", default=None, metavar="CV",
+                   help="with --prior history: how much you expect lot rates to differ, as "
+                        "the scale S of the lot-to-lot coefficient of variation (95%% prior "
+                        "probability that it is below 1.96 S); default 0.5 (docs/lots.md)")
+    p.add_argument("--decide-about", default="lot", choices=("lot", "process"),
+                   help="lot: the lot's own fraction defective when its lot size is given "
+                        "(else the rate); process: always the defect rate p of the process")
     add_prior_options(p, "p", "lots")
     add_output_options(p)
     p.set_defaults(func=run)
@@ -50,7 +61,8 @@ def run(args) -> int:
         data = read_lots(args.file, sheet=args.sheet, columns=args.columns,
                          max_rows=args.max_rows)
         sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
-        result = assess_lots(data, spec, confidence, prior, seed=args.seed)
+        result = assess_lots(data, spec, confidence, prior, seed=args.seed,
+                             **_lot_options(args, prior), check_prior_conflict=setup is not None)
         record = lots_record(result, data, sha, command_line(args.argv), versions())
         record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
         record["question"]["rate_unit"] = rate_unit_of(args.spec)
@@ -62,6 +74,31 @@ def run(args) -> int:
         return lots_text(record)
 
     return execute(args, Command(compute, text, lambda record: _evidence(record, args)))
+
+
+def _lot_options(args, prior) -> dict:
+    """--pool-by, --lot-spread and --decide-about as keyword arguments (checked: exit 2)."""
+    from qualbayes.errors import OptionError  # noqa: PLC0415
+    from qualbayes.models.priors import HISTORY  # noqa: PLC0415
+
+    cols = tuple(c.strip().lower() for c in str(args.pool_by).split(",") if c.strip())
+    if not cols or any(c not in ("part", "supplier") for c in cols) or len(set(cols)) < len(
+            cols):
+        raise OptionError(f"--pool-by {args.pool_by!r}: name part, supplier or both "
+                          "(e.g. part,supplier), each once")
+    spread = None
+    if args.lot_spread is not None:
+        if prior != HISTORY:
+            raise OptionError("--lot-spread is the spread of the history prior: use it with "
+                              "--prior history")
+        try:
+            spread = float(args.lot_spread)
+        except ValueError:
+            spread = float("nan")
+        if not 0.01 <= spread <= 10:
+            raise OptionError(f"--lot-spread {args.lot_spread!r}: a coefficient of variation "
+                              "between 0.01 and 10, e.g. 0.5")
+    return {"group_by": cols, "decision_basis": args.decide_about, "lot_spread": spread}
 
 
 def _evidence(record: dict, args) -> dict:

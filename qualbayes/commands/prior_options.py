@@ -96,7 +96,13 @@ __all__ = ["BetaSetup", "GammaSetup", "LifeSetup", "beta_setup"]
 def lot_prior(args):
     """The analysis prior of ``lots`` from --prior, --believe and --earlier (all parsed and
     checked, and the earlier data read, before the lots are): (prior, BetaSetup or None)."""
-    from qualbayes.models.priors import HISTORY, UNIFORM, BetaPrior, parse_lot_prior  # noqa: PLC0415
+    from qualbayes.models.priors import (  # noqa: PLC0415
+        HISTORY,
+        HISTORY_PHI_UNIFORM,
+        UNIFORM,
+        BetaPrior,
+        parse_lot_prior,
+    )
     from qualbayes.priors.statements import parse_statements  # noqa: PLC0415
 
     statements = parse_statements(args.believe, ("p",))
@@ -105,11 +111,12 @@ def lot_prior(args):
     if statements and args.prior is not None:
         raise OptionError("give the prior either as --prior or as --believe statements, not "
                           "both")
-    if prior == HISTORY and (statements or args.earlier is not None):
+    if prior in (HISTORY, HISTORY_PHI_UNIFORM) and (statements or args.earlier is not None):
         raise OptionError("--believe and --earlier build a Beta prior; they cannot be combined "
                           "with --prior history (the history model learns from the lots "
                           "themselves)")
-    base = None if prior == HISTORY else (prior.a, prior.b, prior.describe())
+    base = None if prior in (HISTORY, HISTORY_PHI_UNIFORM) else (prior.a, prior.b,
+                                                                 prior.describe())
     setup = beta_setup(statements, base, args.earlier, weight, "p", args.earlier_sheet,
                        args.earlier_columns)
     if setup is not None:

@@ -25,10 +25,14 @@ def gate_line(name: str, gate: dict, no_answer: str) -> str:
 
 
 def lots_columns(finite: bool, confidence: float) -> str:
-    note = ("columns: n units inspected, x defectives found, mean and interval of the lot's "
-            "defect rate p; P(p<=spec) the probability that p is within the limit; clean "
-            "units to accept: how many more units inspected with no defective would let the "
-            "lot be accepted")
+    note = ("columns: n units inspected, x defectives found, N lot size; basis: what was "
+            "decided about (the lot's own fraction defective, or the process rate p); "
+            f"rate {confidence:.0%} upper: the one-sided upper bound of p; P(within): the "
+            "probability behind the decision (MCSE: its Monte Carlo error); clean units to "
+            "accept: how many more units inspected with no defective would let the lot be "
+            "accepted; own data: the decision the lot's own data give under the uniform prior, "
+            "shown where it differs; check: OUTLIER when the lot does not look like the others "
+            "of its history")
     if finite:
         note += (f"; units left: the lot's units not inspected, with the defectives predicted "
                  f"among them (median and {confidence:.0%} upper bound)")

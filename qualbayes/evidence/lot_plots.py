@@ -18,7 +18,7 @@ def lot_beta_params(record: dict, lot: dict) -> tuple[np.ndarray, np.ndarray]:
     x, n = lot["defectives"], lot["inspected"]
     draws = record.get("posterior_draws")
     if draws:
-        d = draws[lot["part"] if lot["part"] is not None else "(no part number)"]
+        d = draws[lot.get("group") or lot["part"]]
         mu = np.asarray(d["mu"], float).ravel()
         kappa = np.asarray(d["kappa"], float).ravel()
         return mu * kappa + x, (1 - mu) * kappa + n - x

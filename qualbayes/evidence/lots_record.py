@@ -18,6 +18,14 @@ from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivi
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
 
+BASIS_WORDS = {
+    "lot": "the lot itself: its fraction defective (x + D)/N, D the defectives among the N - n "
+           "units not inspected (beta-binomial); a fully inspected lot is decided exactly",
+    "process": "the process: the defect rate p of the supplier's process for this lot",
+}
+MCSE_WORDS = ("P carries its Monte Carlo standard error (MCSE); a side of C within 3 MCSE is "
+              "too close to call and gives undecided after drawing more")
+
 
 def _none(v):
     return None if v is None or (not isinstance(v, str) and pd.isna(v)) else v
@@ -36,18 +44,36 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
             "interval": [_none(r["interval_low"]), _none(r["interval_high"])],
             "upper_bound": _none(r["upper_bound"]),
             "prob_within_spec": _none(r["prob_within_spec"]),
+            "prob_within_spec_mcse": _none(r["prob_within_spec_mcse"]),
+            "decision_basis": _none(r["decision_basis"]),
             "decision": r["decision"],
+            "too_close": bool(r["too_close"]) if _none(r["too_close"]) is not None else None,
+            "group": _none(r["group"]),
+            "outlier": bool(r["outlier"]) if _none(r["outlier"]) is not None else None,
+            "outlier_p": _none(r["outlier_p"]),
+            "own_data_prob": _none(r["own_data_prob"]),
+            "own_data_decision": _none(r["own_data_decision"]),
             "extra_clean_units_to_accept": _none(r["extra_clean_units_to_accept"]),
             "remaining_units": _none(r["remaining_units"]),
             "remaining_defectives": {"median": _none(r["remaining_defectives_median"]),
                                      "upper_bound": _none(r["remaining_defectives_upper"])},
         })
+    c, s = result.confidence, result.spec
     return plain({
         "kind": "lots",
-        "question": {"spec": result.spec, "confidence": result.confidence,
-                     "asked": f"P(defect rate <= {result.spec:g} | data) >= {result.confidence:g}?",
-                     "interval": f"central {result.confidence:.0%} credible interval",
-                     "upper_bound": f"one-sided {result.confidence:.0%} upper bound"},
+        "question": {"spec": s, "confidence": c,
+                     "asked": (f"P(lot fraction defective <= {s:g} | data) >= {c:g} where the "
+                               f"lot size is given, else P(defect rate <= {s:g} | data) >= "
+                               f"{c:g}?" if result.decision_basis == "lot" else
+                               f"P(defect rate <= {s:g} | data) >= {c:g}?"),
+                     "decision_basis": result.decision_basis,
+                     "bases": BASIS_WORDS,
+                     "interval": f"central {c:.0%} credible interval of the defect rate "
+                                 "(two-sided: it answers a different question from the bound)",
+                     "upper_bound": f"one-sided {c:.0%} upper bound of the defect rate: the "
+                                    f"rate is below it with probability {c:g}"},
+        "group_by": list(result.group_by),
+        "lot_spread": result.lot_spread,
         "input": {"file": data.file, "sheet": data.sheet, "sha256": sha256,
                   "header_row": data.header_row, "rows_read": len(data.frame),
                   "rows_rejected": 0, "columns": data.headers, "notes": data.notes},
@@ -80,24 +106,36 @@ def lots_text(record: dict) -> str:
     ]
     if record.get("posterior_draws"):
         head.append(HISTORY_NOTE)
+    if record["diagnostics"]:
+        head.append(f"pooled by: {', '.join(record['group_by'])} (one history per value)")
+    head.append("decided about: " + "; ".join(f"{k} = {v}" for k, v in q["bases"].items()
+                                              if k in {lot["decision_basis"]
+                                                       for lot in record["lots"]}))
     for part, d in record["diagnostics"].items():
         head.append(gate_line(f"part {part}", d, "no decision for these lots"))
         for reason in d["reasons"]:
             head.append(f"  - {reason}")
     c = q["confidence"]
+    sampled = bool(record["diagnostics"])
     finite = any(lot.get("remaining_units") is not None for lot in record["lots"])
-    headers = ["lot", "part", "n", "x", "mean", f"{c:.0%} interval", f"{c:.0%} upper",
-               "P(p<=spec)", "decision", "clean units to accept"]
+    headers = ["lot", "group" if sampled else "part", "n", "x", "N", "basis",
+               f"rate {c:.0%} upper", "P(within)", *(["MCSE"] if sampled else []),
+               "decision", "clean units to accept", "own data", "check"]
     if finite:
         headers += ["units left", "defectives left"]
     rows = []
     for lot in record["lots"]:
-        lo, hi = lot["interval"]
-        row = [lot["lot"], lot["part"], lot["inspected"], lot["defectives"],
-               pct(lot["posterior_mean"]), None if lo is None else f"{pct(lo)} - {pct(hi)}",
-               pct(lot["upper_bound"]),
-               None if lot["prob_within_spec"] is None else probability(lot["prob_within_spec"]),
-               lot["decision"], lot["extra_clean_units_to_accept"]]
+        p = lot["prob_within_spec"]
+        own = lot["own_data_decision"]
+        row = [lot["lot"], lot["group"] if sampled else lot["part"], lot["inspected"],
+               lot["defectives"], lot["lot_size"], lot["decision_basis"],
+               pct(lot["upper_bound"]), None if p is None else probability(p),
+               *([None if p is None else probability(lot["prob_within_spec_mcse"])]
+                 if sampled else []),
+               lot["decision"] + (" (too close)" if lot["too_close"] else ""),
+               lot["extra_clean_units_to_accept"],
+               own if own is not None and own != lot["decision"] else "",
+               "OUTLIER" if lot["outlier"] else ""]
         if finite:
             d = lot["remaining_defectives"]
             row += [lot["remaining_units"], None if d["median"] is None else
@@ -105,15 +143,20 @@ def lots_text(record: dict) -> str:
         rows.append(row)
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
     tail = [f"decisions: {counts}"]
+    if sampled:
+        tail.append(MCSE_WORDS)
     for part, nl in record["next_lot"].items():
         if "prob_within_spec" in nl:
-            tail.append(f"next lot of {part}: predicted defect rate mean {pct(nl['mean'])}, "
-                        f"{c:.0%} upper {pct(nl['upper_bound'])}, "
-                        f"P(p<=spec) {probability(nl['prob_within_spec'])}")
+            tail.append(f"next lot of {part}: predicted defect rate median {pct(nl['median'])}"
+                        f", {c:.0%} upper {pct(nl['upper_bound'])}, P(p<=spec) "
+                        f"{probability(nl['prob_within_spec'])} (MCSE "
+                        f"{probability(nl['prob_within_spec_mcse'])}); mean {pct(nl['mean'])}"
+                        + (f" ({nl['mean_note']})" if nl["mean"] > nl["upper_bound"] else ""))
     tail += record["notes"]
     tail += [NEXT_STEP, CAUTION]
     head += prior_lines(record)
-    table = [text_table(headers, rows, "llrrrrrrlr" + "rr" * finite),
+    table = [text_table(headers, rows, "llrrrlrr" + ("r" if sampled else "") + "lrll"
+                        + "rr" * finite),
              lots_columns(finite, c), *sensitivity_lines(record)]
     return "\n".join([*head, "", *table, "", *tail])
 
@@ -126,7 +169,12 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
         "lot size": r["lot_size"], "inspected": r["inspected"], "defectives": r["defectives"],
         "posterior mean": r["posterior_mean"], "interval low": r["interval"][0],
         "interval high": r["interval"][1], "upper bound": r["upper_bound"],
-        "P(p <= spec)": r["prob_within_spec"], "decision": r["decision"],
+        "decided about": r["decision_basis"], "P(within spec)": r["prob_within_spec"],
+        "P MCSE": r["prob_within_spec_mcse"], "decision": r["decision"],
+        "too close to call": r["too_close"], "group": r["group"],
+        "own-data decision (uniform prior)": r["own_data_decision"],
+        "own-data P": r["own_data_prob"], "outlier / prior conflict": r["outlier"],
+        "outlier p-value": r["outlier_p"],
         "clean units to accept": r["extra_clean_units_to_accept"],
         "units not inspected": r["remaining_units"],
         "defectives not inspected, median": r["remaining_defectives"]["median"],
@@ -141,7 +189,16 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
     model = [["question", q["asked"]], ["spec limit", q["spec"]],
              ["confidence", q["confidence"]], ["interval", q["interval"]],
              ["upper bound", q["upper_bound"]], ["model", record["model"]],
-             ["prior", record["prior"]], ["seed", record["seed"]]]
+             ["prior", record["prior"]], ["seed", record["seed"]],
+             ["pooled by", ", ".join(record.get("group_by") or [])],
+             ["decided about", q.get("decision_basis")]]
+    model += [[f"basis '{k}'", v] for k, v in q.get("bases", {}).items()]
+    spread = record.get("lot_spread") or {}
+    if spread:
+        model.append(["lot-to-lot spread (stated)", spread.get("words")])
+        for k, v in (spread.get("implied_lot_rate") or {}).items():
+            model.append([f"implied prior on one lot's rate: {k}",
+                          str(v) if isinstance(v, dict) else v])
     for part, nl in record["next_lot"].items():
         for k, v in nl.items():
             model.append([f"next lot of {part}: {k}", str(v) if isinstance(v, list) else v])

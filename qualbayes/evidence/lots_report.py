@@ -35,18 +35,26 @@ def build(record: dict) -> Report:
         return rate(v, unit)
 
     decisions = Table(
-        ["lot", "part", "inspected", "defectives", "P(p <= spec)", "decision",
-         "clean units to accept"],
-        [[r["lot"], r["part"], r["inspected"], r["defectives"],
-          probability(r["prob_within_spec"]), r["decision"], r["extra_clean_units_to_accept"]]
-         for r in record["lots"]],
-        caption=f"accept: P(p <= spec) >= {c:g}; reject: P(p > spec) >= {c:g}; otherwise "
-                "undecided; not-converged: no decision (sampler gate failed). Clean units "
-                "to accept: how many more units inspected without a defective would let "
-                "the lot be accepted.",
+        ["lot", "group", "inspected", "defectives", "decided about", "P(within spec)",
+         "MCSE", "decision", "clean units to accept", "own-data decision", "check"],
+        [[r["lot"], r.get("group") or r["part"], r["inspected"], r["defectives"],
+          r.get("decision_basis"), probability(r["prob_within_spec"]),
+          probability(r.get("prob_within_spec_mcse")),
+          r["decision"] + (" (too close to call)" if r.get("too_close") else ""),
+          r["extra_clean_units_to_accept"],
+          r.get("own_data_decision") if r.get("own_data_decision") != r["decision"] else "",
+          "OUTLIER" if r.get("outlier") else ""] for r in record["lots"]],
+        caption=f"accept: P(within spec) >= {c:g}; reject: P(beyond spec) >= {c:g} and at "
+                "least one defective; otherwise undecided; not-converged: no decision "
+                "(sampler gate failed). Decided about the lot (its own fraction defective) "
+                "where its size is given, else the process rate. Own-data decision: the "
+                "uniform prior on the lot's own data, shown where it differs.",
         id="decision-summary")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
-    summary = Section("Decision summary", [Paragraph(f"Decisions: {counts}."), decisions])
+    summary = Section("Decision summary", [Paragraph(f"Decisions: {counts}."),
+                                           *[Paragraph(n) for n in record["notes"]
+                                             if "OUTLIER" in n or "does not look like" in n
+                                             or "conflict" in n], decisions])
     question = Section("The question asked", [
         Paragraph(q["asked"]),
         Table(["item", "value"], [["defect-rate limit (spec)", r_(q["spec"])],
@@ -54,6 +62,9 @@ def build(record: dict) -> Report:
                                   ["bound", q["upper_bound"]]], style="kv")])
     model = Section("Model and prior", [
         Paragraph(record["model"], "mono"), Paragraph(f"Prior: {record['prior']}", "mono"),
+        Paragraph("Pooled by: " + ", ".join(record.get("group_by") or []) + " (one history per "
+                  "value; history prior only). Decided about: " + "; ".join(
+                      f"{k} = {v}" for k, v in q.get("bases", {}).items()), "mono"),
         Paragraph("Finite lots: defectives among the N - n units not inspected ~ "
                   "BetaBinomial(N - n, posterior Beta parameters), mixed over posterior draws "
                   "for the history prior.", "mono")])

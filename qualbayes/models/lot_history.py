@@ -7,18 +7,18 @@ Model, for part j and its lots i = 1..k_j (parts are independent of each other):
     x_{ji} \mid p_{ji} &\sim \mathrm{Binomial}(n_{ji}, p_{ji}) \\
     p_{ji} \mid \mu_j, \kappa_j &\sim \mathrm{Beta}(\mu_j\kappa_j,\; (1-\mu_j)\kappa_j) \\
     \mu_j &\sim \mathrm{Beta}(1, 1), \qquad
-    \phi_j = (\kappa_j + 1)^{-1/2} \sim \mathrm{Uniform}(\phi_{min}, 1),
-    \quad \phi_{min} = 10^{-4}
+    \tau_j = (\kappa_j \mu_j(1-\mu_j))^{-1/2} \sim \mathrm{HalfNormal}(S),
+    \ \tau_j \ge \tau_{lo}(\mu_j)
 
-:math:`\mu_j` is the mean defect rate of the part's lots and :math:`\phi_j^2 = 1/(\kappa_j+1)`
-the intra-class correlation: the lot-to-lot standard deviation of :math:`p_{ji}` is
-:math:`\phi_j\sqrt{\mu_j(1-\mu_j)}`. A uniform :math:`\phi` is a proper version of the prior
-:math:`p(\mu, \kappa) \propto (\kappa+1)^{-3/2}` (compare Gelman et al., Bayesian Data
-Analysis, 3rd ed., sec. 5.3, which uses the improper :math:`(\alpha+\beta)^{-5/2}`).
-The lower bound caps :math:`\kappa` at about :math:`10^8`: lots that alike are
-indistinguishable from the binomial limit for any real sample size, and beyond it the
-log-gamma differences of the beta-binomial lose all precision even in float64 (a chain that
-wandered there met a flat, meaningless likelihood and stalled; seen in testing).
+tau is the lot-to-lot coefficient of variation of the defect rate (for rare defects), stated
+by the engineer through S (the default and why: :mod:`qualbayes.models.lot_spread`,
+docs/lots.md). NUTS samples :math:`(\mathrm{logit}\,\mu_j, \log(\tau_j - \tau_{lo}))` with
+the spread prior added as a factor. The lower bound of tau caps :math:`\kappa` at
+about :math:`10^8`: lots that
+alike are indistinguishable from the binomial limit for any real sample size, and beyond it
+the log-gamma differences of the beta-binomial lose all precision even in float64. The
+earlier hyperprior, :math:`\phi \sim \mathrm{Uniform}(\phi_{min}, 1)`, is kept only as
+``lot_history_model_phi_uniform`` (``--prior history-phi-uniform``).
 
 The lot rates are marginalised out: :math:`x_{ji} \mid \mu_j,\kappa_j \sim
 \mathrm{BetaBinomial}(n_{ji}, \mu_j\kappa_j, (1-\mu_j)\kappa_j)`, so NUTS samples two
@@ -42,37 +42,72 @@ from __future__ import annotations
 import numpy as np
 
 from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
-
-PHI_MIN = 1e-4  # kappa <= 1/PHI_MIN^2 - 1, about 1e8
+from qualbayes.models.lot_spread import KAPPA_MAX, PHI_MIN, HistoryPrior, PhiUniformPrior
 
 setup_jax()
 
 import jax.numpy as jnp  # noqa: E402
 import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
+from jax.scipy.special import log_ndtr  # noqa: E402
+from numpyro.distributions import constraints  # noqa: E402
+
+__all__ = ["PHI_MIN", "fit_histories", "lot_history_model", "lot_history_model_phi_uniform"]
 
 
-def lot_history_model(x, n, w):
-    """Marginalised hierarchical beta-binomial. ``x``, ``n``, ``w`` have shape (parts, terms):
-    distinct (defectives, inspected) pairs of each part and the number of lots sharing each."""
-    with numpyro.plate("parts", x.shape[0], dim=-2):
+def _log_tau_density(tau, mu, scale):
+    """log p(tau | mu) of :class:`qualbayes.models.lot_spread.HistoryPrior` in jax:
+    HalfNormal(scale) truncated to tau >= tau_lo(mu)."""
+    lo = 1.0 / jnp.sqrt(KAPPA_MAX * (mu * (1.0 - mu)))
+    log_z = jnp.log(2.0) + log_ndtr(-lo / scale)
+    return 0.5 * jnp.log(2.0 / jnp.pi) - jnp.log(scale) - 0.5 * (tau / scale) ** 2 - log_z
+
+
+def _log_tau_density_phi_uniform(tau, mu):
+    m = (mu * (1.0 - mu))
+    return 0.5 * jnp.log(m) - 1.5 * jnp.log1p(m * tau**2) - jnp.log1p(-PHI_MIN)
+
+
+def hyperprior_sites(n_parts, scale):
+    """mu ~ Beta(1, 1) and the spread tau = tau_lo(mu) + exp(y), y flat: y is about log tau,
+    not a ridge along log mu for NUTS. The spread prior and the Jacobian exp(y) are added as
+    a factor (``scale`` None: the earlier prior, phi uniform)."""
+    with numpyro.plate("parts", n_parts, dim=-2):
         mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
-        phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
-        kappa = numpyro.deterministic("kappa", 1.0 / phi**2 - 1.0)
+        y = numpyro.sample("spread_y", dist.ImproperUniform(constraints.real, (), ()))
+        m = (mu * (1.0 - mu))
+        tau = numpyro.deterministic("tau", 1.0 / jnp.sqrt(KAPPA_MAX * m) + jnp.exp(y))
+        kappa = numpyro.deterministic("kappa", 1.0 / (m * tau**2))
+    prior = (_log_tau_density_phi_uniform(tau, mu) if scale is None
+             else _log_tau_density(tau, mu, scale))
+    numpyro.factor("spread", jnp.sum(prior + y))
+    return mu, kappa
+
+
+def lot_history_model(x, n, w, scale):
+    """Marginalised hierarchical beta-binomial. ``x``, ``n``, ``w`` have shape (parts, terms):
+    distinct (defectives, inspected) pairs of each part and the number of lots sharing each;
+    ``scale`` the half-normal scale S of the lot-to-lot CV."""
+    mu, kappa = hyperprior_sites(x.shape[0], scale)
     loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
     numpyro.factor("x", jnp.sum(w * loglik))
 
 
-def lot_history_model_plain(x, n, w):
+def lot_history_model_phi_uniform(x, n, w, scale=None):
+    """The earlier hyperprior, phi ~ Uniform(PHI_MIN, 1) (``history-phi-uniform``): kept for
+    comparison only; see docs/lots.md for why it is not the default."""
+    mu, kappa = hyperprior_sites(x.shape[0], None)
+    loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
+    numpyro.factor("x", jnp.sum(w * loglik))
+
+
+def lot_history_model_plain(x, n, w, scale):
     """The same model with every lot's p sampled (not marginalised, no collapsing of equal
     lots; ``w`` is ignored and must be 1 for real lots): for the benchmark only."""
-    with numpyro.plate("parts", x.shape[0], dim=-2):
-        mu = numpyro.sample("mu", dist.Beta(1.0, 1.0))
-        phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
-        kappa = numpyro.deterministic("kappa", 1.0 / phi**2 - 1.0)
-        with numpyro.plate("lots", x.shape[1], dim=-1):
-            p = numpyro.sample("p", dist.Beta(mu * kappa, (1.0 - mu) * kappa))
-            numpyro.sample("x", dist.Binomial(total_count=n, probs=p), obs=x)
+    mu, kappa = hyperprior_sites(x.shape[0], scale)
+    with numpyro.plate("parts", x.shape[0], dim=-2), numpyro.plate("lots", x.shape[1], dim=-1):
+        p = numpyro.sample("p", dist.Beta(mu * kappa, (1.0 - mu) * kappa))
+        numpyro.sample("x", dist.Binomial(total_count=n, probs=p), obs=x)
 
 
 def bucket(k: int, least: int = 8) -> int:
@@ -99,15 +134,19 @@ def pad(groups: list[tuple[np.ndarray, np.ndarray]], distinct: bool = True):
 
 
 def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: SamplerSettings,
-                  names: list[str] | None = None, model=lot_history_model) -> Fit:
+                  names: list[str] | None = None, model=None, prior=None) -> Fit:
     """Fit every part's lot history at once. ``groups[j] = (x_j, n_j)``.
 
     Draws of ``mu`` and ``kappa`` come back with shape (chain, draw, parts) with the padding
     removed; the gate checks mu and log kappa of every real part.
     """
+    prior = prior if prior is not None else HistoryPrior()
+    if model is None:
+        model = (lot_history_model_phi_uniform if isinstance(prior, PhiUniformPrior)
+                 else lot_history_model)
     k = len(groups)
     names = names or [str(j) for j in range(k)]
-    xs, ns, ws = pad(groups, distinct=model is lot_history_model)
+    xs, ns, ws = pad(groups, distinct=model is not lot_history_model_plain)
 
     def gate_on(draws: dict) -> dict:
         out = {}
@@ -116,7 +155,30 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
             out[f"log_kappa[{name}]"] = np.log(draws["kappa"][:, :, j, 0])
         return out
 
-    args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
+    scale = None if prior.cv_scale is None else jnp.asarray(float(prior.cv_scale))
+    args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), scale)
     fit = run_nuts(model, args, settings, gate_on=gate_on)
     fit.draws = {"mu": fit.draws["mu"][:, :, :k, 0], "kappa": fit.draws["kappa"][:, :, :k, 0]}
     return fit
+
+
+def more_draws(fit: Fit, groups, names: list[str], prior, round_no: int) -> Fit:
+    """The fit with one more NUTS run of the same size (seed shifted by ``round_no``) added
+    as further chains; the gate is judged again on all chains together."""
+    from dataclasses import replace  # noqa: PLC0415
+
+    from qualbayes.gate import diagnose  # noqa: PLC0415
+
+    settings = replace(fit.settings, seed=fit.settings.seed + 7919 * round_no, retry=False)
+    extra = fit_histories(groups, settings, names=names, prior=prior)
+    draws = {k: np.concatenate([fit.draws[k], extra.draws[k]], axis=0) for k in ("mu", "kappa")}
+    checked = {}
+    for j, name in enumerate(names):
+        checked[f"mu[{name}]"] = draws["mu"][:, :, j]
+        checked[f"log_kappa[{name}]"] = np.log(draws["kappa"][:, :, j])
+    info = dict(fit.gate.settings)
+    info["chains"] = draws["mu"].shape[0]
+    info["extra_runs"] = round_no
+    gate = diagnose(checked, fit.gate.divergences + extra.gate.divergences, fit.gate.attempts,
+                    info)
+    return Fit(draws, gate, fit.settings)

@@ -22,17 +22,18 @@ class BetaPrior:
 UNIFORM = BetaPrior(1.0, 1.0, "uniform")
 JEFFREYS = BetaPrior(0.5, 0.5, "jeffreys")
 HISTORY = "history"
+HISTORY_PHI_UNIFORM = "history-phi-uniform"  # the earlier hyperprior, by explicit name only
 
 
 def parse_lot_prior(text: str) -> BetaPrior | str:
-    """``uniform`` | ``jeffreys`` | ``beta:A,B`` | ``history``."""
+    """``uniform`` | ``jeffreys`` | ``beta:A,B`` | ``history`` | ``history-phi-uniform``."""
     t = text.strip().lower()
     if t == "uniform":
         return UNIFORM
     if t == "jeffreys":
         return JEFFREYS
-    if t == HISTORY:
-        return HISTORY
+    if t in (HISTORY, HISTORY_PHI_UNIFORM):
+        return t
     if t.startswith("beta:"):
         try:
             a, b = (float(v) for v in t[5:].split(","))

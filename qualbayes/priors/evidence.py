@@ -12,9 +12,11 @@ def lots_prior_evidence(result, prior, setup, spec: float, confidence: float,
     only when a prior was ``stated``) and, when ``sensitivity``, the sensitivity table.
     JSON-ready."""
     from qualbayes.evidence.jsonout import plain  # noqa: PLC0415
-    from qualbayes.models.priors import HISTORY  # noqa: PLC0415
+    from qualbayes.models.priors import HISTORY, HISTORY_PHI_UNIFORM  # noqa: PLC0415
     from qualbayes.priors.predictive import lots_predictive  # noqa: PLC0415
 
+    if prior == HISTORY_PHI_UNIFORM:
+        prior = HISTORY
     extras = setup.record() if setup is not None else {
         "prior_words": [], "prior_elicited": [], "earlier_data": None}
     frame = result.lots
@@ -45,7 +47,11 @@ def lots_prior_evidence(result, prior, setup, spec: float, confidence: float,
             as_run = None
         rows = beta_rows(first, setup.stated if setup else None, setup.base if setup else None,
                          setup.earlier if setup else None)
-        extras["sensitivity"] = lots_sensitivity(frame, spec, confidence, rows, as_run)
+        from qualbayes.lot_answers import beta_answers  # noqa: PLC0415
+
+        extras["sensitivity"] = lots_sensitivity(
+            frame, spec, confidence, rows, as_run,
+            beta_answers=lambda a, b: beta_answers(frame, a, b, spec, confidence))
     return plain(extras)
 
 

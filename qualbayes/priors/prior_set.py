@@ -206,17 +206,22 @@ def section(question: str, confidence: float, rows: list[PriorRow], items: list[
 # --------------------------------------------------------------------------- lots
 
 def lots_sensitivity(frame, spec: float, confidence: float, rows: list[PriorRow],
-                     as_run: dict | None = None) -> dict:
+                     as_run: dict | None = None, beta_answers=None) -> dict:
     """Every lot under every prior. ``frame``: lots with lot, defectives, inspected;
     ``as_run``: {"prob": [...], "decision": [...]} of the analysis itself, used for the first
-    row when it is not a Beta (the history prior)."""
+    row when it is not a Beta (the history prior); ``beta_answers(a, b)``: (probs,
+    decisions) of every lot under Beta(a, b) as the analysis answers them (default: the
+    process rate, P(p <= spec))."""
     from qualbayes.priors.predictive import lots_predictive  # noqa: PLC0415
 
     x = frame["defectives"].to_numpy(float)
     n = frame["inspected"].to_numpy(float)
     per_row = []
     for row in rows:
-        if row.family == "beta":
+        if row.family == "beta" and beta_answers is not None:
+            probs, decisions = beta_answers(row.params["a"], row.params["b"])
+            per_row.append([(float(p), d) for p, d in zip(probs, decisions, strict=True)])
+        elif row.family == "beta":
             a, b = row.params["a"], row.params["b"]
             prob = special.betainc(a + x, b + n - x, spec)
             per_row.append([(float(p), decide(float(p), confidence)) for p in prob])

@@ -1,0 +1,157 @@
+r"""Per-lot probabilities, Monte Carlo errors and decisions, vectorised over lots and draws.
+
+A lot is summarised by its distinct combination (x defectives, n inspected, R = N - n units
+not inspected, or no lot size); equal combinations of a group have equal answers, so every
+function here works on arrays of distinct combinations and the caller broadcasts back.
+
+Given draws d = 1..S of the lot's conditional posterior Beta(alpha_d, beta_d) (one draw for a
+conjugate prior, alpha = a + x, beta = b + n - x), the probability that answers the question
+is the average of g_d:
+
+* ``process`` basis: :math:`g_d = I_s(\alpha_d, \beta_d)`, the probability that the lot's
+  rate p is within spec s;
+* ``lot`` basis (lot size N known): the lot's own fraction defective,
+  :math:`g_d = P((x + D)/N \le s) = P(D \le \lfloor sN \rfloor - x)` with
+  :math:`D \sim \mathrm{BetaBinomial}(R, \alpha_d, \beta_d)`; a fully inspected lot (R = 0)
+  is decided exactly (g = 1 when x <= sN, else 0).
+
+Decision at confidence C, with the Monte Carlo standard error of the average
+(:mod:`qualbayes.mcse`): ``accept`` when P >= C, ``reject`` when 1 - P >= C and the lot has
+at least one defective (a lot with none is never rejected: it is ``undecided`` with its
+clean-unit count), else ``undecided``; a side of C within 3 MCSE is "too close to call".
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import special
+
+from qualbayes.mcse import CLOSE_MCSE, mcse_mean
+from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
+from qualbayes.search import smallest_int
+
+LOT, PROCESS = "lot", "process"
+MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
+MAX_PMF_TERMS = 2**24  # draws x counts summed exactly for one lot's P; beyond: continuous limit
+MAX_EXTRA_UNITS = 10**9  # as qualbayes.models.lots
+TOO_CLOSE = "too close to call at this Monte Carlo precision"
+
+
+def _lot_g(alpha, beta, k_star: int, remaining: int) -> tuple[np.ndarray, bool]:
+    """P(D <= k_star) per draw, D ~ BetaBinomial(remaining, alpha_d, beta_d); exact flag."""
+    if k_star < 0:
+        return np.zeros_like(alpha), True
+    if k_star >= remaining:
+        return np.ones_like(alpha), True
+    if alpha.size * (k_star + 1) > MAX_PMF_TERMS:
+        # continuous limit: D = R p + O(sqrt(R p)); P(D <= k) ~ P(p <= (k + 1/2) / R)
+        return special.betainc(alpha, beta, (k_star + 0.5) / remaining), False
+    return np.minimum(betabinom_cdf(k_star, remaining, alpha, beta), 1.0), True
+
+
+def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
+    """P(D <= k) per draw for D ~ BetaBinomial(remaining, alpha_d, beta_d), by the ratio of
+    successive probabilities, pmf(j + 1) / pmf(j) = (R - j)(alpha + j) / ((j + 1)(beta + R -
+    j - 1)), summed in logs from pmf(0) = B(alpha, beta + R) / B(alpha, beta): one pair of
+    log-beta functions per draw, then only logarithms (checked against scipy.stats.betabinom
+    in the tests)."""
+    j = np.arange(k, dtype=float)[None, :]
+    a = np.asarray(alpha, float)[:, None]
+    b = np.asarray(beta, float)[:, None]
+    log0 = special.betaln(a, b + remaining) - special.betaln(a, b)
+    steps = (np.log(remaining - j) + np.log(a + j) - np.log(j + 1.0)
+             - np.log(b + remaining - j - 1.0))
+    logpmf = np.concatenate([log0, log0 + np.cumsum(steps, axis=1)], axis=1)
+    return np.exp(logpmf).sum(axis=1)
+
+
+def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basis: str,
+            lot_size: int | None = None) -> tuple[np.ndarray, bool]:
+    """g_d for one combination (see the module docstring); a0, b0 the prior draws."""
+    alpha, beta = a0 + x, b0 + (n - x)
+    if basis == PROCESS or remaining is None:
+        return special.betainc(alpha, beta, spec), True
+    k_star = int(np.floor(spec * lot_size - x + 1e-9))
+    if remaining == 0:
+        return np.full(alpha.shape, float(x <= spec * lot_size + 1e-12)), True
+    return _lot_g(alpha, beta, k_star, remaining)
+
+
+def probabilities(a0, b0, chains: int, combos, spec: float, basis: str):
+    """P, its MCSE and whether it is exact, for every combination (x, n, remaining or None,
+    lot size or None). ``a0``, ``b0``: prior parameter draws, flat (chains * draws,)."""
+    k = len(combos)
+    prob, err, exact = np.empty(k), np.zeros(k), np.ones(k, bool)
+    for j, (x, n, rem, size) in enumerate(combos):
+        g, ok = draws_g(a0, b0, x, n, rem, spec, basis, size)
+        prob[j], exact[j] = float(g.mean()), ok
+        if g.size > 1:
+            err[j] = float(mcse_mean(g.reshape(chains, -1)))
+    return prob, err, exact
+
+
+def decide(prob, mcse, x, confidence: float):
+    """(decisions, too_close) arrays: accept / reject (needs a defective) / undecided; a side
+    of C within CLOSE_MCSE Monte Carlo errors gives undecided and too_close True."""
+    prob, mcse, x = (np.asarray(v, float) for v in (prob, mcse, x))
+    near_accept = np.abs(prob - confidence) <= CLOSE_MCSE * mcse
+    near_reject = (np.abs(1.0 - prob - confidence) <= CLOSE_MCSE * mcse) & (x > 0)
+    too_close = (near_accept | near_reject) & (mcse > 0)
+    accept = (prob >= confidence) & ~too_close
+    reject = (1.0 - prob >= confidence) & (x > 0) & ~too_close
+    out = np.where(accept, ACCEPT, np.where(reject, REJECT, UNDECIDED)).astype(object)
+    return out, too_close
+
+
+def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis):
+    r"""Smallest number m of further defect-free units after which P >= C, or None.
+
+    The m units reweight the draws by the change of the lot's marginal likelihood,
+    :math:`w_d \propto B(\alpha_d, \beta_d + m) / B(\alpha_d, \beta_d)` (importance sampling;
+    None when the weights' effective sample size falls below MIN_WEIGHT_ESS), and move the
+    lot's conditional posterior to Beta(alpha_d, beta_d + m). On the lot basis m is at most
+    the units not inspected, and m clean units leave R - m uninspected.
+    """
+    alpha, beta = a0 + x, b0 + (n - x)
+    lot = basis == LOT and remaining is not None
+    if lot and x > spec * lot_size + 1e-12:
+        return None  # the lot already holds more defectives than the limit allows
+    base = special.betaln(alpha, beta)
+    single = alpha.size == 1
+
+    def ok(m: int) -> bool:
+        if single:
+            w = np.ones(1)
+        else:
+            logw = special.betaln(alpha, beta + m) - base
+            w = np.exp(logw - logw.max())
+            if w.sum() ** 2 / (w**2).sum() < MIN_WEIGHT_ESS:
+                raise _Degenerate
+        if lot:
+            g, _ = draws_g(a0, b0 + m, x, n, remaining - m, spec, LOT, lot_size)
+        else:
+            g = special.betainc(alpha, beta + m, spec)
+        return bool(np.average(g, weights=w) >= confidence)
+
+    try:
+        return smallest_int(ok, 0, remaining if lot else MAX_EXTRA_UNITS)
+    except _Degenerate:
+        return None
+
+
+class _Degenerate(Exception):
+    pass
+
+
+def tail_pvalue(x, n, a, b) -> np.ndarray:
+    """Upper-tail predictive p-value P(X >= x) of x defectives in n under
+    BetaBinomial(n, a, b) (more defectives than the prior makes plausible), vectorised over
+    lots (one Beta for all)."""
+    from qualbayes.models.lot_history_grid import betabinom_tails  # noqa: PLC0415
+
+    x, n = (np.atleast_1d(np.asarray(v, float)) for v in (x, n))
+    out = np.ones(len(x))
+    for key in set(zip(x, n, strict=True)):
+        up, _ = betabinom_tails(key[0], key[1], np.array([float(a)]), np.array([float(b)]))
+        out[(x == key[0]) & (n == key[1])] = min(1.0, float(up[0]))
+    return out

@@ -139,7 +139,10 @@ def assess_lots(data, *, spec, confidence=0.95, prior="uniform", columns=None,
     the path of an xlsx/csv export. ``spec``: 0.01, "1%" or "10000ppm". ``prior``: see
     :func:`lot_prior`; ``"history"`` fits the hierarchical model per part with NUTS
     (``seed`` and ``settings`` control the sampler; ``seed`` wins over ``settings.seed``).
-    Other keywords go to :func:`qualbayes.acceptance.assess_lots`."""
+    Other keywords go to :func:`qualbayes.acceptance.assess_lots`: ``decision_basis``
+    ("lot": the lot's own fraction defective when its size is given, the default; "process":
+    the rate p), ``group_by`` (columns whose values make one history, default ("part",)),
+    ``lot_spread`` (scale of the lot-to-lot spread prior, default 0.5)."""
     from qualbayes import acceptance  # noqa: PLC0415
     from qualbayes.data.frames import lots_table, source_sha256  # noqa: PLC0415
 

@@ -72,13 +72,17 @@ def test_a_frame_is_refused_exactly_as_the_same_file(tmp_path, change, column):
 
 
 def test_the_conjugate_answer_is_the_beta_posterior_of_scipy():
-    res = qb.assess_lots(LOTS, spec=0.01, confidence=0.9, prior="jeffreys").to_frame()
+    # decision_basis="process": the question is about the rate p (with lot sizes given the
+    # default is the lot's own fraction defective, checked in tests/test_lot_decisions.py)
+    res = qb.assess_lots(LOTS, spec=0.01, confidence=0.9, prior="jeffreys",
+                         decision_basis="process").to_frame()
     post = stats.beta(0.5 + LOTS["defectives"], 0.5 + LOTS["inspected"] - LOTS["defectives"])
     np.testing.assert_allclose(res["prob_within_spec"], post.cdf(0.01), rtol=1e-12)
     np.testing.assert_allclose(res["upper_bound"], post.ppf(0.9), rtol=1e-10)
     np.testing.assert_allclose(res["posterior_mean"], post.mean(), rtol=1e-12)
     as_object = qb.assess_lots(LOTS, spec=0.01, confidence=0.9,
-                               prior=qb_priors().Beta(0.5, 0.5)).to_frame()
+                               prior=qb_priors().Beta(0.5, 0.5),
+                               decision_basis="process").to_frame()
     np.testing.assert_allclose(as_object["prob_within_spec"], res["prob_within_spec"])
 
 

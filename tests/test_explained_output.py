@@ -102,7 +102,7 @@ def test_workbook_keeps_full_precision_with_display_formats(lots_csv, tmp_path, 
     capsys.readouterr()
     ws = load_workbook(tmp_path / "o" / "lot_decisions.xlsx")["Decisions"]
     head = [c.value for c in ws[1]]
-    prob = ws.cell(row=2, column=head.index("P(p <= spec)") + 1)
+    prob = ws.cell(row=2, column=head.index("P(within spec)") + 1)
     mean = ws.cell(row=2, column=head.index("posterior mean") + 1)
     size = ws.cell(row=2, column=head.index("lot size") + 1)
     assert isinstance(prob.value, float) and prob.number_format == "0.0000"

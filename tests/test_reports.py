@@ -286,7 +286,8 @@ def test_report_numbers_are_for_people(history_report):
     assert sci == []  # no scientific notation in any table
     assert "`" not in html  # no markdown shown literally
     summary = page.tables[0]
-    probs = [row[4] for row in summary[1:]]
+    col = summary[0].index("P(within spec)")
+    probs = [row[col] for row in summary[1:]]
     assert all(re.fullmatch(r"(<0\.0001|>0\.9999|0|1|0\.\d{4})", p) for p in probs), probs
     results = next(t for t in page.tables if t[0][:3] == ["lot", "part", "date"])
     means = [row[5] for row in results[1:]]

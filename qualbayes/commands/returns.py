@@ -7,8 +7,6 @@ with the stress options, the accelerated fit at the use condition.
 
 from __future__ import annotations
 
-import argparse
-
 WORKBOOK = "returns_forecast.xlsx"
 RECORD = "returns_forecast.json"
 FIGURE = "returns_forecast.png"

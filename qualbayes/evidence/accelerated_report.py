@@ -19,14 +19,18 @@ RESULT_KEYS = ("reliability_at_mission", "b10_at_use", "b1_at_use",
                "characteristic_life_at_use", "median_life_at_use", "shape", "sigma")
 
 
+def _level(values, stresses) -> str:
+    """A tested level in the engineer's units: 'Temp (C) 150 C, Volts 24'."""
+    return ", ".join(f"{s['column']} {show_stress(v, s['relation'], s['temperature_unit'])}"
+                     for v, s in zip(values, stresses, strict=True))
+
+
 def _levels_table(record: dict) -> Table:
-    stresses = record["stresses"]
     rows = []
     for lv in record["result"]["levels"]:
         af = lv["acceleration_factor"]
-        rows.append([", ".join(f"{s['column']} {show_stress(v, s['relation'], s['temperature_unit'])}"
-                               for v, s in zip(lv["stress"], stresses, strict=True)),
-                     lv["units"], lv["failures"], quantity(af["median"]),
+        rows.append([_level(lv["stress"], record["stresses"]), lv["units"], lv["failures"],
+                     quantity(af["median"]),
                      quantity(af["interval"][0]), quantity(af["interval"][1])])
     return Table(["tested level", "units", "failures", "acceleration factor (median)",
                   "interval low", "interval high"], rows,
@@ -50,9 +54,8 @@ def _results(record: dict) -> list:
     if check.get("done"):
         blocks.append(Table(
             ["tested level", "shape median", "interval low", "interval high"],
-            [[", ".join(f"{s['column']} {show_stress(v, s['relation'], s['temperature_unit'])}"
-                        for v, s in zip(lv["stress"], record["stresses"], strict=True)),
-              quantity(lv["shape_median"]), quantity(lv["shape_interval"][0]),
+            [[_level(lv["stress"], record["stresses"]), quantity(lv["shape_median"]),
+              quantity(lv["shape_interval"][0]),
               quantity(lv["shape_interval"][1])] for lv in check["levels"]],
             caption="Shape fitted level by level: the check of the common-shape assumption.",
             id="shape-check"))

@@ -263,9 +263,9 @@ def _check_returns(path, record: dict) -> None:
     passed = bool(record["life"]["diagnostics"]["passed"])
     fc = record["forecast"]
     if passed != (fc is not None):
-        raise _bad(path, "is present although the life posterior failed its convergence gate"
-                   if fc is not None else "is missing although the life posterior passed "
-                   "its gate. The record was altered", "forecast")
+        why = ("is present although the life posterior failed its convergence gate"
+               if fc is not None else "is missing although the life posterior passed its gate")
+        raise _bad(path, f"{why}. The record was altered", "forecast")
     if fc is None:
         return
     for g in [*fc.get("groups", []), fc.get("overall") or {}]:

@@ -179,3 +179,18 @@ def test_a_resealed_record_must_still_agree_with_its_verdict(run, tmp_path, caps
     err = capsys.readouterr().err
     assert "The record was altered" in err
     assert not (tmp_path / "r").exists()
+
+
+@pytest.mark.parametrize("command", ["at-use", "returns"])
+def test_help_states_each_default_once_and_the_pipeline_options(command):
+    import re
+
+    from qualbayes.cli import build_parser
+
+    sub = build_parser()._subparsers._group_actions[0].choices[command]
+    text = " ".join(sub.format_help().split())
+    for option in re.split(r"\s(?=--[a-z])", text):
+        assert option.count("default") <= 1, option
+    assert {"--report DIR", "--analyst NAME", "--force", "--json"} <= set(
+        re.findall(r"--[a-z]+(?: [A-Z]+)?", text))
+    assert "inspected=" not in text  # the column example fits the file

@@ -57,7 +57,9 @@ def register(sub) -> None:
                     "P(R(mission) >= target) with its Monte Carlo error, and meets / "
                     "does-not-meet / undecided at the stated confidence.",
         formatter_class=HelpFormatter)
-    add_input_options(p)  # FILE: one row per unit, as for 'life', plus the stress column(s)
+    from qualbayes.commands.life import LIFE_COLUMNS_EXAMPLE  # noqa: PLC0415
+
+    add_input_options(p, LIFE_COLUMNS_EXAMPLE)  # FILE: rows as for 'life', plus the stress
     p.add_argument("--group", metavar="NAME", help="analyse only this group of the file")
     add_stress_options(p)
     p.add_argument("--mission", required=True, help="mission time at use, in the file's units")

@@ -11,6 +11,8 @@ WORKBOOK = "returns_forecast.xlsx"
 RECORD = "returns_forecast.json"
 FIGURE = "returns_forecast.png"
 MAX_GROUP_FIGURES = 20
+#: keys of an installed-base sheet: unit, age, shipped, count, group (data/fleet.py)
+FLEET_COLUMNS_EXAMPLE = "age=Hours Run,count=Units Fitted,group=Site"
 
 
 def register(sub) -> None:
@@ -29,7 +31,7 @@ def register(sub) -> None:
                     "the horizon, conditioned on every unit having survived to its present "
                     "age; per group and for all units.",
         formatter_class=HelpFormatter)
-    add_input_options(p)  # FILE: the installed base (keys unit, age, shipped, count, group)
+    add_input_options(p, FLEET_COLUMNS_EXAMPLE)  # FILE: the installed base
     p.add_argument("--life", required=True, metavar="LIFE_FILE",
                    help="life data (as for 'life', or with stress columns for 'at-use')")
     p.add_argument("--life-sheet", help="xlsx sheet of the life data")

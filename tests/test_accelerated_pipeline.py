@@ -194,3 +194,43 @@ def test_help_states_each_default_once_and_the_pipeline_options(command):
     assert {"--report DIR", "--analyst NAME", "--force", "--json"} <= set(
         re.findall(r"--[a-z]+(?: [A-Z]+)?", text))
     assert "inspected=" not in text  # the column example fits the file
+
+
+def test_a_failed_gate_record_rebuilds_with_no_answer(run, tmp_path, capsys):
+    """A record whose gate failed (as the command writes it: no decision, no forecast)
+    rebuilds a report that says so at the top and shows no numbers to act on."""
+    from qualbayes.cli import main
+
+    def fail(record):
+        if record["kind"] == "at-use":
+            r = record["result"]
+            r["diagnostics"]["passed"] = False
+            r.update(decision="not-converged", prob_meets_target=None,
+                     prob_meets_target_mc_error=None)
+            for key in ("levels", "coefficients", "curve", "reliability_at_mission"):
+                r.pop(key, None)
+        else:
+            record["life"]["diagnostics"]["passed"] = False
+            record["forecast"] = None
+
+    path = _edited(run, tmp_path, fail, reseal=True)
+    assert main(["report", str(path), "--out", str(tmp_path / "r")]) == 0
+    capsys.readouterr()
+    html = (tmp_path / "r" / "report.html").read_text()
+    assert "CONVERGENCE GATE FAILED" in html and "decision support only" in html.lower()
+    assert not list((tmp_path / "r" / "figures").glob("*.png"))
+
+
+def test_force_never_replaces_the_folder_holding_the_life_data(tmp_path, capsys):
+    """The life data of 'returns' are an input too: refused before any work."""
+    from qualbayes.cli import main
+
+    argv = _argv("returns", tmp_path)
+    data = tmp_path / "data"
+    data.mkdir()
+    life = data / "life.csv"
+    life.write_bytes(Path(argv[3]).read_bytes())
+    argv[3] = str(life)
+    assert main([*argv, "--out", str(data), "--force"]) == 3
+    assert "an input file of this run" in capsys.readouterr().err
+    assert sorted(p.name for p in data.iterdir()) == ["life.csv"]

@@ -5,7 +5,6 @@ a known activation energy, refusals and the command line. External values: docs/
 
 from __future__ import annotations
 
-import json
 import math
 
 import numpy as np
@@ -316,29 +315,6 @@ def motor_csv(path, header="Temp (C)"):
             for i, (temp, t, f) in enumerate(zip(MOTOR_TEMP, MOTOR_TIME, MOTOR_FAILED,
                                                   strict=True))]
     return write_csv(path, ["Unit", header, "Hours", "Status"], rows)
-
-
-def test_cli_at_use_json_out_and_no_overwrite(tmp_path, capsys):
-    from qualbayes.cli import main
-
-    f = motor_csv(tmp_path / "motor.csv")
-    out = tmp_path / "out"
-    argv = ["at-use", str(f), "--stress-column", "Temp (C)", "--relation", "arrhenius",
-            "--use", "130C", "--mission", "10000", "--target", "0.9", "--distribution",
-            "lognormal", "--json", "--out", str(out)]
-    assert main(argv) == 0
-    doc = json.loads(capsys.readouterr().out)
-    r = doc["result"]
-    assert doc["kind"] == "at-use" and r["diagnostics"]["passed"]
-    assert r["decision"] in ("meets", "does-not-meet", "undecided", "too-close-to-call")
-    assert {"prob_meets_target", "prob_meets_target_mc_error", "b10_at_use",
-            "levels", "shape_check", "extrapolation"} <= set(r)
-    assert "CAUTION" in doc["caution"]
-    names = sorted(p.name for p in out.iterdir())
-    assert names == ["at_use_life_stress.png", "at_use_results.json", "at_use_results.xlsx"]
-    before = {p.name: p.stat().st_mtime_ns for p in out.iterdir()}
-    assert main(argv) == 3  # refuses to overwrite, before any work
-    assert {p.name: p.stat().st_mtime_ns for p in out.iterdir()} == before
 
 
 def test_cli_bad_input_names_row_and_column(tmp_path, capsys):

@@ -42,7 +42,11 @@ def add_stress_options(p: argparse.ArgumentParser) -> None:
 
 
 def register(sub) -> None:
-    from qualbayes.commands.common import add_input_options  # noqa: PLC0415
+    from qualbayes.commands.common import (  # noqa: PLC0415
+        HelpFormatter,
+        add_input_options,
+        add_output_options,
+    )
 
     p = sub.add_parser(
         "at-use", help="reliability at the use condition from an accelerated life test "
@@ -52,24 +56,22 @@ def register(sub) -> None:
                     "acceleration factor of each tested level, the relation's coefficients, "
                     "P(R(mission) >= target) with its Monte Carlo error, and meets / "
                     "does-not-meet / undecided at the stated confidence.",
-        formatter_class=argparse.ArgumentDefaultsHelpFormatter)
-    add_input_options(p)  # FILE: one row per unit, as for 'life', plus the stress column(s)
+        formatter_class=HelpFormatter)
+    from qualbayes.commands.life import LIFE_COLUMNS_EXAMPLE  # noqa: PLC0415
+
+    add_input_options(p, LIFE_COLUMNS_EXAMPLE)  # FILE: rows as for 'life', plus the stress
     p.add_argument("--group", metavar="NAME", help="analyse only this group of the file")
     add_stress_options(p)
     p.add_argument("--mission", required=True, help="mission time at use, in the file's units")
     p.add_argument("--target", required=True, help="reliability required: 0.9 or 90%%")
     p.add_argument("--units", default="", help="time units for display: h, cycles, km")
-    p.add_argument("--confidence", default="0.9", help="confidence C for bounds and decisions")
-    p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
-    p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
-    p.add_argument("--out", metavar="DIR", help="write workbook, run record and figure to DIR")
-    p.add_argument("--force", action="store_true", help="allow replacing an earlier run's files")
-    p.set_defaults(func=run)
+    add_output_options(p)
+    p.set_defaults(func=run, confidence="0.9")
 
 
-def stress_terms(args, data_units: list[str | None] | None = None) -> list:
+def stress_terms(args) -> list:
     """Typed stress terms from the options (use values converted; priors parsed)."""
-    from qualbayes.data.stress_life import parse_use_temperature, parse_use_value  # noqa: PLC0415
+    from qualbayes.commands import convert  # noqa: PLC0415
     from qualbayes.errors import OptionError  # noqa: PLC0415
     from qualbayes.models.life_stress import StressTerm, normal_from_range  # noqa: PLC0415
 
@@ -89,44 +91,15 @@ def stress_terms(args, data_units: list[str | None] | None = None) -> list:
                               f"{rel} relation")
     terms = []
     for col, rel, use in zip(cols, rels, uses, strict=True):
-        value = parse_use_temperature(use) if rel == "arrhenius" else parse_use_value(use)
+        value = convert.stress_level(use, rel)
         text = getattr(args, PRIOR_OPTIONS[rel])
         prior = rng = None
         if text is not None:
             option = f"--{PRIOR_OPTIONS[rel].replace('_', '-')}"
-            rng = two_numbers(text, option, "0.3,1.1")
+            rng = convert.value_range(text, option, "0.3,1.1")
             prior = normal_from_range(*rng)
         terms.append(StressTerm(col, rel, value, prior=prior, prior_range=rng))
     return terms
-
-
-def two_numbers(text: str, option: str, example: str) -> tuple[float, float]:
-    """``LO,HI`` -> (lo, hi), finite and increasing."""
-    import math  # noqa: PLC0415
-
-    from qualbayes.errors import OptionError  # noqa: PLC0415
-
-    try:
-        lo, hi = (float(v) for v in str(text).replace(" ", "").split(","))
-    except ValueError:
-        raise OptionError(f"{option} {text!r}: write two numbers LO,HI, e.g. {example}") from None
-    if not (math.isfinite(lo) and math.isfinite(hi) and lo < hi):
-        raise OptionError(f"{option} {text!r}: two finite numbers with LO < HI")
-    return lo, hi
-
-
-def positive_number(text: str, option: str, example: str) -> float:
-    from qualbayes.data.values import parse_real  # noqa: PLC0415
-    from qualbayes.errors import OptionError  # noqa: PLC0415
-
-    try:
-        value = parse_real(str(text))
-    except ValueError:
-        raise OptionError(f"{option} {text!r}: expected a positive number such as {example}"
-                          ) from None
-    if not value > 0:
-        raise OptionError(f"{option} {text!r}: must be positive")
-    return value
 
 
 def temperature_units(args) -> list[str | None]:
@@ -171,47 +144,61 @@ def stress_prior(args):
 
 
 def run(args) -> int:
-    from pathlib import Path  # noqa: PLC0415
+    from qualbayes.commands import convert  # noqa: PLC0415
+    from qualbayes.commands.pipeline import Command, execute  # noqa: PLC0415
 
-    from qualbayes.accelerated_analysis import assess_at_use  # noqa: PLC0415
-    from qualbayes.commands.common import emit  # noqa: PLC0415
-    from qualbayes.data.life import parse_units  # noqa: PLC0415
-    from qualbayes.evidence.accelerated_plots import stress_points  # noqa: PLC0415
-    from qualbayes.evidence.accelerated_record import at_use_record, at_use_text  # noqa: PLC0415
-    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
-    from qualbayes.questions import parse_probability  # noqa: PLC0415
-
-    mission = positive_number(args.mission, "--mission", "20000")
-    target = parse_probability(args.target, "--target")
-    confidence = parse_probability(args.confidence, "--confidence")
-    units = parse_units(args.units)
+    mission = convert.mission(args.mission)
+    target = convert.probability(args.target, "--target")
+    confidence = convert.confidence(args.confidence)
+    convert.seed(args.seed)
+    convert.max_rows(args.max_rows)
+    units = convert.units(args.units)
     terms = stress_terms(args)
     prior = stress_prior(args)
-    targets = [Path(args.out) / n for n in (WORKBOOK, RECORD, FIGURE)] if args.out else []
-    check_targets(targets, args.force)
-    data = read_stress_data(args, args.file, args.sheet, args.columns, args.max_rows, units,
-                            args.group)
-    sha = sha256_file(args.file)
-    result = assess_at_use(data, terms, mission, target, confidence, args.distribution, prior,
-                           seed=args.seed)
-    record = at_use_record(result, data, sha, command_line(args.argv), versions())
-    record["points"] = stress_points(data)
-    written = write_at_use(record, data, targets, args.force) if targets else []
-    emit(args, record, "" if args.json else at_use_text(record), written)
-    return 0
+    read = {}  # the table read, for the workbook's "Inputs as read" sheet
+
+    def compute() -> dict:
+        from qualbayes.accelerated_analysis import assess_at_use  # noqa: PLC0415
+        from qualbayes.evidence.accelerated_plots import stress_points  # noqa: PLC0415
+        from qualbayes.evidence.accelerated_record import at_use_record  # noqa: PLC0415
+        from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+
+        data = read_stress_data(args, args.file, args.sheet, args.columns, args.max_rows,
+                                units, args.group)
+        read["data"] = data
+        sha = data.life.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
+        result = assess_at_use(data, terms, mission, target, confidence, args.distribution,
+                               prior, seed=args.seed)
+        record = at_use_record(result, data, sha, command_line(args.argv), versions())
+        record["points"] = stress_points(data)
+        return record
+
+    def text(record: dict) -> str:
+        from qualbayes.evidence.accelerated_record import at_use_text  # noqa: PLC0415
+
+        return at_use_text(record)
+
+    return execute(args, Command(compute, text,
+                                 lambda record: _evidence(record, read.get("data"))))
 
 
-def write_at_use(record, data, targets, force) -> list:
-    from qualbayes.evidence.accelerated_plots import draw_life_stress  # noqa: PLC0415
+def _evidence(record: dict, data) -> dict:
+    """The files of --out DIR: workbook (with the units as read), run record and, when the
+    gate passed, the life-stress figure; all rendered before the group write."""
+    from qualbayes.commands.pipeline import figure_writer, record_writer  # noqa: PLC0415
+    from qualbayes.evidence.accelerated_plots import life_stress_figure  # noqa: PLC0415
     from qualbayes.evidence.accelerated_record import at_use_sheets  # noqa: PLC0415
-    from qualbayes.evidence.files import write_group  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
+    from qualbayes.evidence.html import png_bytes  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    files = [(targets[0], workbook_writer(at_use_sheets(record, data))),
-             (targets[1], lambda p: p.write_text(dumps(without_draws(record)), encoding="utf-8"))]
+    files = {WORKBOOK: workbook_writer(at_use_sheets(record, data)),
+             RECORD: record_writer(record)}
     if record["result"]["diagnostics"]["passed"]:
-        fig = draw_life_stress(record, targets[2])
-        files.append((targets[2], lambda p: fig.savefig(p, format="png")))
-    return write_group(files, force)
+        import matplotlib.pyplot as plt  # noqa: PLC0415
+
+        fig = life_stress_figure(record)
+        try:
+            files[FIGURE] = figure_writer(png_bytes(fig))
+        finally:
+            plt.close(fig)
+    return files

@@ -185,3 +185,76 @@ def optional_probability(text, option):
     return confidence(text, option) if option == "--confidence" else probability(text, option)
 
 
+
+
+# ----------------------------------------------------------------------------- at-use, returns
+
+def positive(text, option: str, example: str = "300") -> float:
+    """A positive, finite quantity (usage per period, a use stress other than temperature)."""
+    from qualbayes.data.values import parse_real  # noqa: PLC0415
+
+    if len(str(text)) > 64:
+        raise OptionError(f"{option}: expected a positive number such as {example}")
+    try:
+        value = parse_real(str(text).strip())
+    except ValueError as err:
+        why = (str(err).replace(" in the file", "") if "could be" in str(err)
+               else f"expected a positive number such as {example}")
+        raise OptionError(f"{option} {text!r}: {why}") from None
+    if not (value > 0 and value != float("inf")):
+        raise OptionError(f"{option} {text!r}: must be a positive number")
+    return value
+
+
+def temperature(text, option: str = "--use") -> float:
+    """A temperature with its unit ('40C', '313.15K') -> kelvin; a bare number is refused."""
+    from qualbayes.data.stress_life import parse_use_temperature  # noqa: PLC0415
+
+    if len(str(text)) > 64:
+        raise OptionError(f"{option}: write a temperature with its unit, e.g. 40C or 313.15K")
+    return parse_use_temperature(text, option)
+
+
+def stress_level(text, relation: str, option: str = "--use") -> float:
+    """The use value of a stress: a temperature with its unit for Arrhenius, else a number."""
+    from qualbayes.data.stress_life import parse_use_value  # noqa: PLC0415
+
+    if relation == "arrhenius":
+        return temperature(text, option)
+    if len(str(text)) > 64:
+        raise OptionError(f"{option}: expected a number such as 12")
+    return parse_use_value(text, option)
+
+
+def value_range(text, option: str, example: str) -> tuple[float, float]:
+    """``LO,HI`` -> (lo, hi), finite and increasing (a 95% range of engineering knowledge)."""
+    from qualbayes.commands.life_prior_text import two_numbers  # noqa: PLC0415
+
+    if len(str(text)) > 128:
+        raise OptionError(f"{option}: write two numbers LO,HI, e.g. {example}")
+    return two_numbers(text, option, example)
+
+
+def horizon(value) -> int:
+    """The number of periods to forecast: a whole number from 1 to 600."""
+    if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= 600:
+        raise OptionError(f"--horizon {value!r}: give a whole number of periods, 1 to 600")
+    return value
+
+
+def spares(value) -> int | None:
+    """Spare units in stock (optional): a whole number, 0 or more."""
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int) or value < 0:
+        raise OptionError(f"--spares {value!r}: give a whole number of units, 0 or more")
+    return value
+
+
+def as_of(text):
+    """The date the installed base was counted (YYYY-MM-DD), or None."""
+    from qualbayes.data.fleet import parse_as_of  # noqa: PLC0415
+
+    if text is not None and len(str(text)) > 64:
+        raise OptionError("--as-of: write a date as YYYY-MM-DD")
+    return parse_as_of(text)

@@ -7,17 +7,21 @@ with the stress options, the accelerated fit at the use condition.
 
 from __future__ import annotations
 
-import argparse
-
 WORKBOOK = "returns_forecast.xlsx"
 RECORD = "returns_forecast.json"
 FIGURE = "returns_forecast.png"
 MAX_GROUP_FIGURES = 20
+#: keys of an installed-base sheet: unit, age, shipped, count, group (data/fleet.py)
+FLEET_COLUMNS_EXAMPLE = "age=Hours Run,count=Units Fitted,group=Site"
 
 
 def register(sub) -> None:
     from qualbayes.commands.at_use import add_stress_options  # noqa: PLC0415
-    from qualbayes.commands.common import add_input_options  # noqa: PLC0415
+    from qualbayes.commands.common import (  # noqa: PLC0415
+        HelpFormatter,
+        add_input_options,
+        add_output_options,
+    )
 
     p = sub.add_parser(
         "returns", help="forecast field failures per period of the units in service, from a "
@@ -26,8 +30,8 @@ def register(sub) -> None:
                     "predictive number of failures in each coming period and in total over "
                     "the horizon, conditioned on every unit having survived to its present "
                     "age; per group and for all units.",
-        formatter_class=argparse.ArgumentDefaultsHelpFormatter)
-    add_input_options(p)  # FILE: the installed base (keys unit, age, shipped, count, group)
+        formatter_class=HelpFormatter)
+    add_input_options(p, FLEET_COLUMNS_EXAMPLE)  # FILE: the installed base
     p.add_argument("--life", required=True, metavar="LIFE_FILE",
                    help="life data (as for 'life', or with stress columns for 'at-use')")
     p.add_argument("--life-sheet", help="xlsx sheet of the life data")
@@ -35,72 +39,78 @@ def register(sub) -> None:
     p.add_argument("--life-group", metavar="NAME", help="use only this group of the life data")
     p.add_argument("--usage", required=True,
                    help="life units (h, cycles) a unit accumulates per period, e.g. 300")
-    p.add_argument("--period", choices=("week", "month", "quarter", "year"), default="month")
+    p.add_argument("--period", choices=("week", "month", "quarter", "year"), default="month",
+                   help="length of one forecast period")
     p.add_argument("--horizon", type=int, default=24, help="number of periods to forecast")
     p.add_argument("--as-of", metavar="YYYY-MM-DD",
                    help="date the installed base was counted (needed with ship dates)")
     p.add_argument("--spares", type=int, help="spare units in stock: P(enough) is reported")
     add_stress_options(p)
-    p.add_argument("--confidence", default="0.9", help="level of the predictive intervals")
-    p.add_argument("--seed", type=int, default=20261202, help="random seed")
-    p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
-    p.add_argument("--out", metavar="DIR", help="write workbook, run record and figures to DIR")
-    p.add_argument("--force", action="store_true", help="allow replacing an earlier run's files")
-    p.set_defaults(func=run)
+    add_output_options(p)
+    p.set_defaults(func=run, confidence="0.9")
 
 
 def run(args) -> int:
-    from pathlib import Path  # noqa: PLC0415
+    from qualbayes.commands import convert  # noqa: PLC0415
+    from qualbayes.commands.pipeline import Command, execute  # noqa: PLC0415
 
-    import numpy as np  # noqa: PLC0415
-
-    from qualbayes.commands.at_use import positive_number  # noqa: PLC0415
-    from qualbayes.commands.common import emit  # noqa: PLC0415
-    from qualbayes.data.fleet import parse_as_of, read_fleet  # noqa: PLC0415
-    from qualbayes.evidence.files import check_targets  # noqa: PLC0415
-    from qualbayes.evidence.forecast_record import returns_record, returns_text  # noqa: PLC0415
-    from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
-    from qualbayes.field_forecast import check_forecast_options, forecast_fleet  # noqa: PLC0415
-    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
-    from qualbayes.questions import parse_probability  # noqa: PLC0415
-
-    usage = positive_number(args.usage, "--usage", "300")
-    confidence = parse_probability(args.confidence, "--confidence")
-    check_forecast_options(usage, args.horizon, confidence, args.spares)
-    as_of = parse_as_of(args.as_of)
+    usage = convert.positive(args.usage, "--usage", "300")
+    horizon = convert.horizon(args.horizon)
+    spares = convert.spares(args.spares)
+    confidence = convert.confidence(args.confidence)
+    convert.seed(args.seed)
+    convert.max_rows(args.max_rows)
+    as_of = convert.as_of(args.as_of)
     accelerated = bool(args.stress_column or args.relation or args.use)
+    terms = prior = None
     if accelerated:
         from qualbayes.commands.at_use import stress_prior, stress_terms  # noqa: PLC0415
 
         terms, prior = stress_terms(args), stress_prior(args)
-    fleet = read_fleet(args.file, sheet=args.sheet, columns=args.columns,
-                       max_rows=args.max_rows, as_of=as_of, usage=usage, period=args.period)
-    groups = [] if fleet.groups is None else list(dict.fromkeys(fleet.groups))
-    targets = []
-    if args.out:
-        out = Path(args.out)
-        targets = [out / WORKBOOK, out / RECORD, out / FIGURE]
-        targets += [out / f"returns_forecast_{n[1][len('life_probability_'):]}"
-                    for n in figure_names(groups[:MAX_GROUP_FIGURES])] if len(groups) > 1 else []
-    check_targets(targets, args.force)
-    gate_time = float(np.median(fleet.ages)) + usage * args.horizon
-    reach = float(np.max(fleet.ages)) + usage * args.horizon
-    if accelerated:
-        life = _accelerated_life(args, terms, prior, gate_time)
-    else:
-        life = _plain_life(args, gate_time, reach)
-    draws = life.pop("draws")
-    if life["diagnostics"]["passed"]:
-        forecast = forecast_fleet(fleet.ages, fleet.counts, fleet.groups, draws, usage,
-                                  args.horizon, confidence, args.spares, seed=args.seed)
-    else:
+    elif args.distribution != "weibull":
+        from qualbayes.errors import OptionError  # noqa: PLC0415
+
+        raise OptionError("--distribution lognormal needs the stress options (a plain life "
+                          "fit is Weibull, as in 'life')")
+
+    def compute() -> dict:
+        import numpy as np  # noqa: PLC0415
+
+        from qualbayes.data.fleet import read_fleet  # noqa: PLC0415
+        from qualbayes.evidence.forecast_record import returns_record  # noqa: PLC0415
+        from qualbayes.field_forecast import forecast_fleet  # noqa: PLC0415
+        from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+
+        fleet = read_fleet(args.file, sheet=args.sheet, columns=args.columns,
+                           max_rows=args.max_rows, as_of=as_of, usage=usage,
+                           period=args.period)
+        gate_time = float(np.median(fleet.ages)) + usage * horizon
+        reach = float(np.max(fleet.ages)) + usage * horizon
+        if accelerated:
+            life = _accelerated_life(args, terms, prior, gate_time)
+        else:
+            life = _plain_life(args, gate_time, reach)
+        draws = life.pop("draws")
         forecast = None
-    sha = {"fleet": sha256_file(args.file), "life": sha256_file(args.life)}
-    record = returns_record(forecast, life, fleet, sha, command_line(args.argv), versions(),
-                            args.period, args.spares)
-    written = _write(record, targets, args.force) if targets else []
-    emit(args, record, "" if args.json else returns_text(record), written)
-    return 0
+        if life["diagnostics"]["passed"]:
+            forecast = forecast_fleet(fleet.ages, fleet.counts, fleet.groups, draws, usage,
+                                      horizon, confidence, spares, seed=args.seed)
+        sha = {"fleet": fleet.sha256 or sha256_file(args.file),
+               "life": life.pop("sha256", "") or sha256_file(args.life)}
+        question = {"horizon": horizon, "period": args.period, "usage": usage,
+                    "confidence": confidence, "spares": spares}
+        return returns_record(forecast, life, fleet, sha, command_line(args.argv),
+                              versions(), question)
+
+    def text(record: dict) -> str:
+        from qualbayes.evidence.forecast_record import returns_text  # noqa: PLC0415
+
+        return returns_text(record)
+
+    from qualbayes.evidence.files import protect_inputs  # noqa: PLC0415
+
+    protect_inputs(args.life)  # FILE is protected by the pipeline; the life data here
+    return execute(args, Command(compute, text, _evidence))
 
 
 def _plain_life(args, gate_time: float, reach: float) -> dict:
@@ -114,11 +124,6 @@ def _plain_life(args, gate_time: float, reach: float) -> dict:
     from qualbayes.models.life import fit_life  # noqa: PLC0415
     from qualbayes.models.weibull import group_stats, make_prior, posterior_mode  # noqa: PLC0415
 
-    if args.distribution != "weibull":
-        from qualbayes.errors import OptionError  # noqa: PLC0415
-
-        raise OptionError("--distribution lognormal needs the stress options (a plain life "
-                          "fit is Weibull, as in 'life')")
     prior = make_prior(args.shape_prior)
     table = read_life(args.life, sheet=args.life_sheet, columns=args.life_columns,
                       groups=[args.life_group] if args.life_group else None)
@@ -137,7 +142,7 @@ def _plain_life(args, gate_time: float, reach: float) -> dict:
             "summary": {"shape median": float(np.median(np.exp(b))),
                         "scale median": float(np.median(np.exp(log_eta))),
                         "units": st.units, "failures": st.failures},
-            "notes": _reach_note(table, reach),
+            "notes": _reach_note(table, reach), "sha256": table.sha256,
             "draws": LifeDraws(log_eta, np.exp(-b), "weibull")}
 
 
@@ -164,7 +169,7 @@ def _accelerated_life(args, terms, prior, gate_time: float) -> dict:
     draws, gate = posterior_at_use(data, terms, args.distribution, prior,
                                    SamplerSettings(seed=args.seed), gate_time)
     extra = extrapolation(data.stress, terms)
-    return {"file": data.life.file,
+    return {"file": data.life.file, "sha256": data.life.sha256,
             "source": f"accelerated fit ({args.distribution}) at the use condition "
                       + ", ".join(f"{t.column} {show_stress(t.use, t.relation, tu)}"
                                   for t, tu in zip(terms, data.temperature_units, strict=True)),
@@ -176,18 +181,22 @@ def _accelerated_life(args, terms, prior, gate_time: float) -> dict:
             "notes": extra["notes"], "draws": draws}
 
 
-def _write(record, targets, force) -> list:
-    from qualbayes.evidence.files import write_group  # noqa: PLC0415
-    from qualbayes.evidence.forecast_record import draw_forecast, returns_sheets  # noqa: PLC0415
-    from qualbayes.evidence.jsonout import dumps, without_draws  # noqa: PLC0415
+def _evidence(record: dict) -> dict:
+    """The files of --out DIR: workbook, run record and the forecast figures (all units,
+    then up to MAX_GROUP_FIGURES groups), rendered before the group write."""
+    from qualbayes.commands.pipeline import figure_writer, record_writer  # noqa: PLC0415
+    from qualbayes.evidence.forecast_record import forecast_figures, returns_sheets  # noqa: PLC0415
+    from qualbayes.evidence.html import png_bytes  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    files = [(targets[0], workbook_writer(returns_sheets(record))),
-             (targets[1], lambda p: p.write_text(dumps(without_draws(record)), encoding="utf-8"))]
-    fc = record["forecast"]
-    if fc is not None:
-        figs = [draw_forecast(record, fc["overall"])]
-        figs += [draw_forecast(record, g) for g in fc["groups"][:MAX_GROUP_FIGURES]]
-        for path, fig in zip(targets[2:], figs, strict=False):
-            files.append((path, lambda p, fig=fig: fig.savefig(p, format="png")))
-    return write_group(files, force)
+    files = {WORKBOOK: workbook_writer(returns_sheets(record)),
+             RECORD: record_writer(record)}
+    import matplotlib.pyplot as plt  # noqa: PLC0415
+
+    for k, (_, fig) in enumerate(forecast_figures(record, MAX_GROUP_FIGURES)):
+        try:
+            files[FIGURE if k == 0 else f"returns_forecast_{k}.png"] = figure_writer(
+                png_bytes(fig))
+        finally:
+            plt.close(fig)
+    return files

@@ -54,6 +54,7 @@ class FleetTable:
     sheet: str | None
     headers: dict[str, str]
     notes: list[str]
+    sha256: str = ""  # of exactly the bytes read
 
 
 def parse_as_of(text: str | None) -> dt.date | None:
@@ -142,4 +143,4 @@ def read_fleet(path, sheet=None, columns: str | None = None, max_rows: int = DEF
                      f"per {period}")
     return FleetTable(np.array(ages), np.array(counts, float),
                       np.array(groups, dtype=object) if groups else None, np.array(rows),
-                      table.file, table.sheet, headers, notes)
+                      table.file, table.sheet, headers, notes, table.sha256)

@@ -45,8 +45,8 @@ def _axis(relation: str):
     return lambda x: np.asarray(x, float)
 
 
-def draw_life_stress(record: dict, path, writer=None):
-    """The figure; saved to ``path`` through ``writer(fig)`` when given, else returned."""
+def life_stress_figure(record: dict):
+    """The life-stress figure of a converged at-use record, as a matplotlib Figure."""
     import matplotlib  # noqa: PLC0415
 
     matplotlib.use("Agg")
@@ -91,11 +91,7 @@ def draw_life_stress(record: dict, path, writer=None):
         ax.set_title(title, fontsize=9)
         ax.legend(loc="best", fontsize=7)
         fig.tight_layout()
-        if writer is None:
-            return fig
-        writer(fig)
-        plt.close(fig)
-    return path
+    return fig
 
 
 def _ticks(ax, s0: dict, grid) -> None:

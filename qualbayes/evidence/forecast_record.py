@@ -15,15 +15,16 @@ FORECAST_MODEL = (
     "of which units fail")
 
 
-def returns_record(forecast: dict, life: dict, fleet, sha256: dict, command: str,
-                   versions: dict, period: str, spares: int | None) -> dict:
-    c = forecast["confidence"]
+def returns_record(forecast: dict | None, life: dict, fleet, sha256: dict, command: str,
+                   versions: dict, question: dict) -> dict:
+    """``question``: horizon, period, usage, confidence, spares (as given, so that a record
+    without a forecast, after a failed gate, still says what was asked)."""
+    c, horizon, period = question["confidence"], question["horizon"], question["period"]
     return plain({
         "kind": "returns",
-        "question": {"horizon": forecast["horizon"], "period": period,
-                     "usage": forecast["usage"], "confidence": c, "spares": spares,
+        "question": {**question,
                      "asked": f"how many units in service will fail in each of the next "
-                              f"{forecast['horizon']} {period}s, and in total?",
+                              f"{horizon} {period}s, and in total?",
                      "interval": f"central {c:.0%} predictive interval"},
         "input": {"fleet": fleet.file, "fleet_sheet": fleet.sheet,
                   "fleet_sha256": sha256["fleet"], "life": life["file"],
@@ -114,6 +115,16 @@ def returns_sheets(record: dict) -> dict:
                 *[[s] for s in record["standards"]]]
     return {"Forecast per period": rows, "Totals": totals, "Model and life": model,
             "Diagnostics": diag, "Cautions": cautions, "Provenance": prov}
+
+
+def forecast_figures(record: dict, max_groups: int = 20) -> list[tuple[str, object]]:
+    """(name, Figure) for all units, then for each group up to ``max_groups`` (only with
+    more than one group); none when there is no forecast."""
+    fc = record.get("forecast")
+    if not fc:
+        return []
+    groups = fc["groups"][:max_groups]  # empty for a fleet of one group
+    return [(g["group"], draw_forecast(record, g)) for g in [fc["overall"], *groups]]
 
 
 def draw_forecast(record: dict, group: dict):

@@ -14,6 +14,10 @@ KINDS = {
     "lots": ("qualbayes.evidence.lots_report:build", "qualbayes.evidence.lots_record:lots_sheets"),
     "life": ("qualbayes.evidence.life_report:build", "qualbayes.evidence.life_record:life_sheets"),
     "plan": ("qualbayes.evidence.plan_report:build", "qualbayes.evidence.plan_record:plan_sheets"),
+    "at-use": ("qualbayes.evidence.accelerated_report:build",
+               "qualbayes.evidence.accelerated_record:at_use_sheets"),
+    "returns": ("qualbayes.evidence.forecast_report:build",
+                "qualbayes.evidence.forecast_record:returns_sheets"),
 }
 
 FILES = ("report.html", "report.pdf", "evidence.xlsx", "run.json")

@@ -231,6 +231,53 @@ def check_decisions(path, record: dict) -> None:
             passed = bool((g.get("diagnostics") or {}).get("passed", True))
             _check_one(path, f"groups[{i}] (group {g['group']!r})", g["decision"],
                        g["prob_meets_target"], c, passed)
+    elif kind == "at-use":
+        _check_at_use(path, record)
+    elif kind == "returns":
+        _check_returns(path, record)
+
+
+AT_USE_VERDICTS = {"accept": "meets", "reject": "does-not-meet", "undecided": "undecided",
+                   "too-close": "too-close-to-call"}
+
+
+def _check_at_use(path, record: dict) -> None:
+    """The verdict is recomputed from the recorded probability, its Monte Carlo error, the
+    confidence and the gate (the rule of accelerated_analysis.decide_at_use)."""
+    from qualbayes.mcse import decide_within_error  # noqa: PLC0415
+
+    r, c = record["result"], record["question"]["confidence"]
+    passed = bool(r["diagnostics"]["passed"])
+    _check_one(path, "result", r["decision"], r["prob_meets_target"], c, passed)
+    if not passed:
+        return
+    p, err = r["prob_meets_target"], r["prob_meets_target_mc_error"]
+    if p is None or err is None or err < 0:
+        raise _bad(path, "lacks the probability or its Monte Carlo error behind the "
+                   "decision. The record was altered", "result")
+    expected = AT_USE_VERDICTS[decide_within_error(p, err, c)]
+    if r["decision"] != expected:
+        raise _bad(path, f"says {r['decision']!r} but its recorded probability {p} (Monte "
+                   f"Carlo error {err}) at confidence {c} gives {expected!r}. The record was "
+                   "altered", "result")
+
+
+def _check_returns(path, record: dict) -> None:
+    """A forecast exists exactly when the life posterior passed its gate; every recorded
+    probability of enough spares is a probability."""
+    passed = bool(record["life"]["diagnostics"]["passed"])
+    fc = record["forecast"]
+    if passed != (fc is not None):
+        why = ("is present although the life posterior failed its convergence gate"
+               if fc is not None else "is missing although the life posterior passed its gate")
+        raise _bad(path, f"{why}. The record was altered", "forecast")
+    if fc is None:
+        return
+    for g in [*fc.get("groups", []), fc.get("overall") or {}]:
+        prob = (g.get("spares") or {}).get("prob_enough")
+        if prob is not None and not (isinstance(prob, int | float) and 0 <= prob <= 1):
+            raise _bad(path, f"P(enough spares) {prob!r} is not a probability. The record "
+                       "was altered", f"forecast ({g.get('group')!r})")
 
 
 def _check_one(path, where: str, decision: str, prob, confidence: float,

@@ -19,7 +19,7 @@ from scipy import special
 
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
-from qualbayes.life_precision import CLOSE_NOTE, Precision, close_call_note, settle
+from qualbayes.life_precision import RULE_TEXT, Precision, close_call_note, settle
 from qualbayes.models.weibull import (
     GroupStats,
     LifePrior,
@@ -214,8 +214,7 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
     out["prob_meets_target_mcse"] = mcse if ok else None
     out["prob_meets_target_mc_error"] = mcse if ok else None  # the earlier name, kept
     out["close_call"] = bool(ok and precision.close_call)
-    out["monte_carlo"] = precision.to_dict() | {"rule": (
-        f"within 3 MCSE of C: up to 2 extra rounds of 4x draws (same seed), then '{CLOSE_NOTE}'")}
+    out["monte_carlo"] = precision.to_dict() | {"rule": RULE_TEXT}
     out["decision"] = decision
     out["diagnostics"] = diagnostics
     out["notes"] = _group_notes(st, beta, prior, ok, precision, confidence)

@@ -47,6 +47,9 @@ MAX_ROUNDS = 2
 #: the cap: no extra round goes beyond this many draws per chain
 MAX_DRAWS_PER_CHAIN = 16_000
 CLOSE_NOTE = "too close to call at this Monte Carlo precision"
+RULE_TEXT = (f"P or 1 - P within {CLOSE_MCSE:g} MCSE of C: up to {MAX_ROUNDS} extra rounds of "
+             f"{MORE_DRAWS}x the draws per chain (same seed), at most {MAX_DRAWS_PER_CHAIN:,} "
+             f"per chain; still that close: undecided, '{CLOSE_NOTE}'")
 
 
 @dataclass(frozen=True)
@@ -112,11 +115,12 @@ def settle(chains: dict, gate, *, settings, refit: Callable, mission: float, tar
 def close_call_note(prec: Precision, confidence: float) -> str:
     """The group note of a close call (or of a call settled by extra draws)."""
     if prec.close_call:
+        level = (f"the confidence {confidence:g}" if abs(prec.prob - confidence)
+                 <= abs(1.0 - prec.prob - confidence) else f"1 - the confidence {confidence:g}")
         return (f"P(R >= target) = {prec.prob:.4f} (Monte Carlo error {prec.mcse:.4f}) is "
-                f"within {CLOSE_MCSE:g} Monte Carlo standard errors of the confidence "
-                f"{confidence:g} (or of 1 - {confidence:g}) after {prec.extra_rounds} extra "
-                f"round(s) of draws ({prec.draws_per_chain:,} per chain; cap "
-                f"{MAX_DRAWS_PER_CHAIN:,}): {CLOSE_NOTE}")
+                f"within {CLOSE_MCSE:g} Monte Carlo standard errors of {level} after "
+                f"{prec.extra_rounds} extra round(s) of draws ({prec.draws_per_chain:,} per "
+                f"chain; cap {MAX_DRAWS_PER_CHAIN:,}): {CLOSE_NOTE}")
     return (f"the first draws left P(R >= target) within {CLOSE_MCSE:g} Monte Carlo standard "
             f"errors of the confidence; {prec.extra_rounds} extra round(s) of draws "
             f"({prec.draws_per_chain:,} per chain, same seed) settled the call")

@@ -205,3 +205,17 @@ def test_run_record_accepts_the_close_call_rule_and_refuses_a_verdict_inside_it(
         check_decisions("run.json", _record("meets", 0.905, 0.004))
     with pytest.raises(InputError, match="too close to call"):
         check_decisions("run.json", _record("does-not-meet", 0.095, 0.004))
+
+
+def test_groups_with_different_numbers_of_draws_are_compared():
+    # a close-call group carries up to 16 times the draws of the others
+    from qualbayes.life_compare import compare_pair
+
+    rng = np.random.default_rng(11)
+    a = {"log_shape": np.zeros((4, 1000)), "log_scale": rng.normal(0.3, 1.0, (4, 1000))}
+    b = {"log_shape": np.zeros((4, 16000)), "log_scale": rng.normal(0.0, 1.0, (4, 16000))}
+    c = compare_pair("A", "B", a, b, mission=1.0, confidence=0.9)
+    # exponential life, R = exp(-1/eta): A better when its log scale is larger;
+    # P(N(0.3, 1) > N(0, 1)) = Phi(0.3 / sqrt 2)
+    exact = stats.norm.cdf(0.3 / math.sqrt(2.0))
+    assert abs(c["prob_a_more_reliable"] - exact) <= 4 * c["prob_a_more_reliable_mcse"]

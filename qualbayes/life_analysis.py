@@ -3,8 +3,10 @@
 
 For every group: posterior of shape and scale (NUTS, gated), the derived B1 and B10 lives,
 mean life and R(mission); the one-sided lower bound of R(mission) at confidence C;
-P(R(mission) >= target); and the decision ``meets`` / ``does-not-meet`` / ``undecided``
-by the rule of :func:`qualbayes.questions.decide`, or ``not-converged`` when the gate fails.
+P(R(mission) >= target) with its Monte Carlo error; and the decision ``meets`` /
+``does-not-meet`` / ``undecided`` by the rule of :func:`qualbayes.questions.decide`, or
+``not-converged`` when the gate fails. A call within 3 MCSE of C is sampled again with more
+draws and, if still close, is ``undecided`` (:mod:`qualbayes.life_precision`).
 """
 
 from __future__ import annotations
@@ -17,7 +19,7 @@ from scipy import special
 
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
-from qualbayes.mcse import mcse_mean
+from qualbayes.life_precision import RULE_TEXT, Precision, close_call_note, settle
 from qualbayes.models.weibull import (
     GroupStats,
     LifePrior,
@@ -27,7 +29,7 @@ from qualbayes.models.weibull import (
     reported_mode,
 )
 from qualbayes.models.weibull_ranks import plotting_positions
-from qualbayes.questions import DOES_NOT_MEET, MEETS, decide
+from qualbayes.questions import DOES_NOT_MEET, MEETS, UNDECIDED, decide
 
 MODEL_TEXT = (
     "t ~ Weibull(shape beta, scale eta), R(t) = exp(-(t/eta)^beta); failures log f(t), "
@@ -136,14 +138,21 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     for j, g in enumerate(names):
         fit_g, k = fits[g]
         gate = fit_g.gate.select(g)
-        beta = np.exp(fit_g.draws["log_shape"][:, :, k].reshape(-1))
-        eta = np.exp(fit_g.draws["log_scale"][:, :, k].reshape(-1))
-        draws[g] = {"shape": beta, "scale": eta,
-                    "chains": {"log_shape": fit_g.draws["log_shape"][:, :, k],
-                               "log_scale": fit_g.draws["log_scale"][:, :, k]}}
+        chains = {v: fit_g.draws[v][:, :, k] for v in ("log_shape", "log_scale")}
+
+        def refit(more, j=j, g=g):
+            again = fit_life([stats[g]], [modes[j]], prior, more, [g], mission)
+            return ({v: again.draws[v][:, :, 0] for v in ("log_shape", "log_scale")},
+                    again.gate.select(g))
+
+        chains, gate, prec = settle(chains, gate, settings=settings, refit=refit,
+                                    mission=mission, target=target, confidence=confidence)
+        beta = np.exp(chains["log_shape"].reshape(-1))
+        eta = np.exp(chains["log_scale"].reshape(-1))
+        draws[g] = {"shape": beta, "scale": eta, "chains": chains}
         arrays = data[g][0]
         groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta, gate.to_dict(),
-                                   mission, target, confidence, prior))
+                                   mission, target, confidence, prior, precision=prec))
     if not all(r["diagnostics"]["passed"] for r in groups):
         notes.append("the convergence gate failed for at least one group: it carries "
                      "'not-converged' and no decision")
@@ -177,16 +186,14 @@ def summarise(x: np.ndarray, confidence: float) -> dict:
 
 def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
                  diagnostics: dict, mission: float, target: float, confidence: float,
-                 prior: LifePrior) -> dict:
+                 prior: LifePrior, *, precision: Precision) -> dict:
     ok = diagnostics["passed"]
     q = weibull_quantities(beta, eta, mission)
     r = q["reliability_at_mission"]
-    prob = float(np.mean(r >= target))
-    # MCSE of the indicator's mean with its own autocorrelation (qualbayes.mcse); the draws
-    # are flattened chain by chain
-    chains = diagnostics.get("settings", {}).get("chains") or 1
-    mcse = float(mcse_mean((r >= target).astype(float).reshape(chains, -1)))
+    prob, mcse = precision.prob, precision.mcse
     decision = decide(prob, confidence, ok, labels=(MEETS, DOES_NOT_MEET))
+    if ok and precision.close_call:
+        decision = UNDECIDED  # too close to call at this Monte Carlo precision
     out = {
         "group": name,
         "units": st.units,
@@ -204,16 +211,19 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
     rel = summarise(r, confidence) | {"lower_bound": float(np.quantile(r, 1.0 - confidence))}
     out["reliability_at_mission"] = rel if ok else None
     out["prob_meets_target"] = prob if ok else None
-    out["prob_meets_target_mc_error"] = mcse if ok else None
+    out["prob_meets_target_mcse"] = mcse if ok else None
+    out["prob_meets_target_mc_error"] = mcse if ok else None  # the earlier name, kept
+    out["close_call"] = bool(ok and precision.close_call)
+    out["monte_carlo"] = precision.to_dict() | {"rule": RULE_TEXT}
     out["decision"] = decision
     out["diagnostics"] = diagnostics
-    out["notes"] = _group_notes(st, beta, prior, ok, prob, mcse, confidence)
+    out["notes"] = _group_notes(st, beta, prior, ok, precision, confidence)
     out["plot"] = plot_data(arrays, beta, eta, mission, confidence) if ok else None
     return out
 
 
-def _group_notes(st: GroupStats, beta, prior: LifePrior, ok: bool, prob: float,
-                 mcse: float, confidence: float) -> list[str]:
+def _group_notes(st: GroupStats, beta, prior: LifePrior, ok: bool, precision: Precision,
+                 confidence: float) -> list[str]:
     notes = []
     if not ok:
         notes.append("the sampler did not pass the convergence gate: no answer and no "
@@ -229,9 +239,8 @@ def _group_notes(st: GroupStats, beta, prior: LifePrior, ok: bool, prob: float,
         if share > PRIOR_SHARE_NOTE:
             notes.append(f"with {st.failures} failure(s) the shape is informed mainly by its "
                          f"prior (posterior spread of log shape is {share:.0%} of the prior's)")
-    if abs(prob - confidence) < 3 * mcse:
-        notes.append(f"P(R >= target) = {prob:.4f} lies within 3 Monte Carlo standard errors "
-                     f"({mcse:.4f}) of the confidence {confidence:g}; the verdict is close")
+    if precision.close_call or precision.extra_rounds:
+        notes.append(close_call_note(precision, confidence))
     return notes
 
 

@@ -50,9 +50,24 @@ def _interval(x: np.ndarray, confidence: float) -> dict:
     return {"median": float(med), "interval": [float(lo), float(hi)]}
 
 
+def _same_length(x: dict, y: dict) -> tuple[dict, dict]:
+    """The groups are independent, so any pairing of their draws is valid; a group sampled
+    with more draws (a close call, a retry) is thinned evenly, chain by chain, to the other's
+    length."""
+    n = min(x["log_shape"].shape[1], y["log_shape"].shape[1])
+
+    def thin(d: dict) -> dict:
+        m = d["log_shape"].shape[1]
+        take = np.linspace(0, m - 1, n).round().astype(int)
+        return d if m == n else {k: v[:, take] for k, v in d.items()}
+
+    return thin(x), thin(y)
+
+
 def compare_pair(a: str, b: str, chains_a: dict, chains_b: dict, mission: float,
                  confidence: float) -> dict:
     """One comparison from (chain, draw) arrays of ``log_shape`` and ``log_scale``."""
+    chains_a, chains_b = _same_length(chains_a, chains_b)
     lt = math.log(mission)
     ba, bb = np.exp(chains_a["log_shape"]), np.exp(chains_b["log_shape"])
     # log R = -H; R_a > R_b  <=>  H_a < H_b  <=>  log H_a < log H_b

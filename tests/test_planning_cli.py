@@ -194,7 +194,18 @@ def test_learned_history_prior_end_to_end(capsys):
         assert row["P(R >= goal | c of n)"] >= 0.9
         if n > c:  # one unit fewer no longer demonstrates the goal
             assert attribute.prob_demonstrated(h.prior, 0.995, n - 1, c) < 0.9
+    # the numbers that decide the plan carry the Monte Carlo error of the history's draws
+    assert h.chains == 4 and 0 < h.describe()["mean_defect_rate_mcse"] < h.prior.mean()
+    mc = {t["name"]: t for t in rec["tables"]}["Monte Carlo error"]
+    plan_rows = {r["allowed failures c"]: r for r in _rows(rec)}
+    for row in mc["rows"]:
+        named = dict(zip(mc["columns"], row, strict=True))
+        p = plan_rows[named["allowed failures c"]]["P(R >= goal | c of n)"]
+        assert named["P(R >= goal | c of n)"] == pytest.approx(p, rel=1e-12)
+        assert 0 < named["MCSE of P"] < 0.05
     samp = plans.plan_sampling(0.005, 0.05, 0.03, 0.10, history=h)
     assert any(t["name"] == "Accepted lots" for t in samp["tables"])
+    mc = {t["name"]: t for t in samp["tables"]}["Monte Carlo error"]
+    assert 0 < mc["rows"][0][2] < 0.05 and 0 < mc["rows"][0][4] < 0.05
     with pytest.raises(OptionError):
         plans.plan_attribute(0.9, 0.9, 0, analysis="history")

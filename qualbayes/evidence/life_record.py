@@ -19,6 +19,10 @@ from qualbayes.evidence.terminal import table as text_table
 from qualbayes.gate import ESS_MIN, RHAT_MAX
 from qualbayes.life_analysis import LifeAssessment
 
+MCSE_COLUMN = ("MCSE of P: the Monte Carlo standard error of P from the posterior draws; a P "
+               "within 3 MCSE of the confidence is sampled again with more draws and, if still "
+               "that close, is 'undecided': too close to call at this Monte Carlo precision.")
+
 
 def life_record(result: LifeAssessment, data: LifeTable, sha256: str, command: str,
                 versions: dict) -> dict:
@@ -62,6 +66,16 @@ def _with_interval(summary: dict | None) -> str | None:
     return f"{_num(summary['median'])} ({_num(lo)} - {_num(hi)})"
 
 
+def _mcse(g: dict):
+    """MCSE of P(R >= target); records written before the rename carry ``_mc_error``."""
+    return g.get("prob_meets_target_mcse", g.get("prob_meets_target_mc_error"))
+
+
+def _mcse_text(g: dict) -> str | None:
+    v = _mcse(g)
+    return None if v is None else f"{v:.4f}"
+
+
 def life_text(record: dict) -> str:
     q = record["question"]
     u = f" {q['units']}" if q["units"] else ""
@@ -81,7 +95,8 @@ def life_text(record: dict) -> str:
         for reason in d["reasons"]:
             head.append(f"  - {reason}")
     headers = ["group", "units", "fail", "susp", "shape", f"scale{u}", f"B10{u}",
-               f"R({q['mission']:g}) median", f"{c:.0%} lower", "P(R>=target)", "decision"]
+               f"R({q['mission']:g}) median", f"{c:.0%} lower", "P(R>=target)", "MCSE of P",
+               "decision"]
     rows = []
     for g in record["groups"]:
         rel = g["reliability_at_mission"]
@@ -92,8 +107,8 @@ def life_text(record: dict) -> str:
                      None if rel is None else probability(rel["lower_bound"]),
                      None if g["prob_meets_target"] is None else
                      probability(g["prob_meets_target"]),
-                     g["decision"]])
-    detail = [life_columns(c), f"(medians with {record['question']['interval']}s)"]
+                     _mcse_text(g), g["decision"]])
+    detail = [life_columns(c), MCSE_COLUMN, f"(medians with {record['question']['interval']}s)"]
     for g in record["groups"]:
         if g["b1"] is not None:
             detail.append(f"[{g['group']}] B1 life {_with_interval(g['b1'])}{u}; mean life "
@@ -107,7 +122,7 @@ def life_text(record: dict) -> str:
     head += prior_lines(record)
     detail += sensitivity_lines(record)
     more = extras_lines(record)
-    return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrl"), *more, "", *detail,
+    return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrrl"), *more, "", *detail,
                       "", *tail])
 
 
@@ -134,7 +149,7 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
         "R(mission) lower bound": None if g["reliability_at_mission"] is None
         else g["reliability_at_mission"]["lower_bound"],
         "P(R(mission) >= target)": g["prob_meets_target"],
-        "Monte Carlo error of P": g["prob_meets_target_mc_error"],
+        "Monte Carlo error of P": _mcse(g),
         "decision": g["decision"],
         "posterior mode shape": g["posterior_mode"]["shape"],
         "posterior mode scale": g["posterior_mode"]["scale"],

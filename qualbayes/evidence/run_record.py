@@ -231,6 +231,8 @@ def check_decisions(path, record: dict) -> None:
             passed = bool((g.get("diagnostics") or {}).get("passed", True))
             _check_one(path, f"groups[{i}] (group {g['group']!r})", g["decision"],
                        g["prob_meets_target"], c, passed)
+            _check_close_call(path, f"groups[{i}] (group {g['group']!r})", g["decision"],
+                              g["prob_meets_target"], g.get("prob_meets_target_mcse"), c)
     elif kind == "at-use":
         _check_at_use(path, record)
     elif kind == "returns":
@@ -291,3 +293,20 @@ def _check_one(path, where: str, decision: str, prob, confidence: float,
     if decision in REJECTING and (prob is None or 1.0 - prob < confidence):
         raise _bad(path, f"says {decision!r} but its recorded probability {prob} does not "
                    f"reach 1 - confidence ({1 - confidence:g}). The record was altered", where)
+
+
+def _check_close_call(path, where: str, decision: str, prob, mcse, confidence: float) -> None:
+    """The Monte Carlo rule (records that carry an MCSE): a verdict needs P (or 1 - P) more
+    than 3 MCSE from C; a P within 3 MCSE of C with ``undecided`` is consistent (too close
+    to call at this Monte Carlo precision). Records without an MCSE are not checked here."""
+    from qualbayes.mcse import is_close_call  # noqa: PLC0415
+
+    if prob is None or not isinstance(mcse, int | float) or isinstance(mcse, bool):
+        return
+    if mcse < 0:
+        raise _bad(path, f"records a negative Monte Carlo error {mcse}. The record was "
+                   "altered", where)
+    if (decision in ACCEPTING | REJECTING) and is_close_call(prob, mcse, confidence):
+        raise _bad(path, f"says {decision!r} but its recorded probability {prob} lies within 3 "
+                   f"Monte Carlo errors ({mcse}) of the confidence {confidence}: that call is "
+                   "'undecided', too close to call. The record was altered", where)

@@ -9,7 +9,7 @@ import numpy as np
 
 from qualbayes.errors import OptionError
 from qualbayes.planning import assurance as asr
-from qualbayes.planning import attribute, sampling
+from qualbayes.planning import attribute, draw_error, sampling
 from qualbayes.planning.history import HistoryPrior
 from qualbayes.planning.inputs import count, probability
 from qualbayes.planning.plan_common import (
@@ -131,6 +131,14 @@ def plan_attribute(reliability: float, confidence: float, failures=0,
                                       "that test to trust it"}
             summary.append(smallest_line(smallest, "units", lambda v: f"{v} units"))
             tables.append(smallest_table(smallest, "units n", lambda v: v))
+    if history is not None:
+        mc_rows, mc_notes = draw_error.attribute_errors(
+            history, analysis, design, r, conf, [(c, row["units"]) for c, row in zip(
+                cs, used, strict=True)])
+        notes += mc_notes
+        tables.append(table("Monte Carlo error", "Monte Carlo error of the numbers that rest "
+                            "on the history's posterior draws (exact given the draws)",
+                            draw_error.ATTRIBUTE_COLUMNS, mc_rows))
     curves = [_attribute_oc(r, cs, used)]
     if design is not None:
         top = max([row["units"] or 0 for row in used]

@@ -8,6 +8,11 @@ The prior for a new lot or design generation is its predictive,
 
 over the D posterior draws, and reliability is :math:`R = 1 - p_{new}`. The convergence gate
 must pass: otherwise no prior is returned and no plan is given (``not-converged``).
+
+Every plan number from this prior is exact given the draws; the draws themselves are a Monte
+Carlo sample, so :meth:`HistoryPrior.describe` gives the MCSE of the prior mean
+:math:`\frac1D\sum_d \mu_d` and the plans give the MCSE of the probabilities that decide
+them (:mod:`qualbayes.planning.draw_error`).
 jax and numpyro are imported only inside :func:`learn_prior`.
 """
 
@@ -34,6 +39,8 @@ class HistoryPrior:
     defectives: int
     sha256: str
     gate: dict = field(default_factory=dict)
+    #: the draws are stored chain after chain: the Monte Carlo error needs the chains
+    chains: int = 1
 
     @property
     def passed(self) -> bool:
@@ -47,7 +54,20 @@ class HistoryPrior:
             d["prior"] = self.prior.label
             d["components"] = self.prior.components
             d["mean_defect_rate"] = self.prior.mean()
+            d["mean_defect_rate_mcse"] = self.mean_mcse()
+            d["monte_carlo"] = ("plan numbers are exact given these posterior draws; the "
+                                "draws carry Monte Carlo error, given as MCSE")
         return d
+
+
+    def mean_mcse(self) -> float | None:
+        """MCSE of the prior mean defect rate (the mean over draws of mu)."""
+        if self.prior is None:
+            return None
+        from qualbayes.planning.draw_error import mean_mcse  # noqa: PLC0415
+
+        mu = self.prior.a / (self.prior.a + self.prior.b)
+        return mean_mcse(mu, chains=self.chains)[1]
 
 
 def learn_prior(path, part: str | None = None, sheet: str | None = None,
@@ -93,4 +113,4 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
             f"next-lot predictive of part {part} from {len(x)} lots: defect rate p (= 1 - R) "
             f"~ mixture of {mu.size} Beta(mu*kappa, (1-mu)*kappa) over posterior draws")
     return HistoryPrior(prior, str(path), table.sheet, part, int(len(x)), int(np.sum(n)),
-                        int(np.sum(x)), sha or "", gate)
+                        int(np.sum(x)), sha or "", gate, chains=int(fit.draws["mu"].shape[0]))

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.planning import sampling
+from qualbayes.planning import draw_error, sampling
 from qualbayes.planning.history import HistoryPrior
 from qualbayes.planning.inputs import probability
 from qualbayes.planning.plan_common import (
@@ -106,6 +106,13 @@ def plan_sampling(aql: float, alpha: float, ltpd: float, beta: float,
             "no lot is accepted under this prior" if key is None else
             f"{what} with probability {key:.4f} (before inspection {first[1]:.4f}): "
             f"{first[-1]} at level {level:.4g}"))
+        if history is not None:
+            mc_rows, mc_notes = draw_error.sampling_errors(history, plan.n, plan.c, limit,
+                                                           level, lot_size)
+            tables.append(table("Monte Carlo error", "Monte Carlo error of the numbers that "
+                                "rest on the history's posterior draws (exact given the draws)",
+                                draw_error.SAMPLING_COLUMNS, mc_rows))
+            summary += mc_notes
         assumptions.append(f"Bayesian view's decision: the plan protects the consumer when "
                            f"an accepted lot is within s = {pct(limit)} with probability at "
                            f"least {level:.4g} (default 1 - beta)")

@@ -92,6 +92,36 @@ def recording_fits():
         _RECORDER.reset(token)
 
 
+def _map_counts() -> tuple[int, int] | None:
+    """(memory mappings of this process, the system's limit), or None off Linux."""
+    try:
+        with open("/proc/self/maps", "rb") as f:
+            used = sum(1 for _ in f)
+        with open("/proc/sys/vm/max_map_count") as f:
+            return used, int(f.read().strip())
+    except (OSError, ValueError):
+        return None
+
+
+def relieve_memory_maps(share: float = 0.5) -> bool:
+    """Drop jax's in-memory compiled code when this process holds more than ``share`` of the
+    system's memory-mapping limit. Each new compilation keeps about 30 mappings alive (measured
+    with jax 0.10 on Linux), so a process that fits many models of different shapes (a study, a
+    notebook, a test run) otherwise ends with LLVM failing to allocate code memory after a
+    few thousand compilations. Compiled code is reloaded from the persistent cache when needed.
+    Returns True when it cleared."""
+    counts = _map_counts()
+    if counts is None or counts[0] < share * counts[1]:
+        return False
+    import gc  # noqa: PLC0415
+
+    import jax  # noqa: PLC0415
+
+    jax.clear_caches()
+    gc.collect()
+    return True
+
+
 @dataclass
 class SamplerSettings:
     num_chains: int = 4
@@ -187,6 +217,7 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
                           dict(coords or {}))
                 if (fits := _RECORDER.get()) is not None:
                     fits.append(fit)
+                relieve_memory_maps()
                 return fit
             attempt_settings = attempt_settings.harder()
 

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special
 
+from qualbayes import cross_check
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
 from qualbayes.mcse import mcse_mean
@@ -142,11 +143,17 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
                     "chains": {"log_shape": fit_g.draws["log_shape"][:, :, k],
                                "log_scale": fit_g.draws["log_scale"][:, :, k]}}
         arrays = data[g][0]
-        groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta, gate.to_dict(),
+        check = cross_check.life_group(stats[g], prior, modes[j], draws[g]["chains"]["log_shape"],
+                                       draws[g]["chains"]["log_scale"], mission, target
+                                       ) if gate.passed else None  # quadrature vs NUTS
+        groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta,
+                                   cross_check.attach(gate.to_dict(), check),
                                    mission, target, confidence, prior))
     if not all(r["diagnostics"]["passed"] for r in groups):
         notes.append("the convergence gate failed for at least one group: it carries "
                      "'not-converged' and no decision")
+    notes.append(cross_check.summary_line({r["group"]: r["diagnostics"].get("cross_check")
+                                           for r in groups}))
     result = LifeAssessment(groups, mission, target, confidence, prior, table.units,
                             settings.seed, draws=draws, notes=notes)
     add_extras(result, {g: data[g][0] for g in names}, compare=compare,

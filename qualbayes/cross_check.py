@@ -129,3 +129,13 @@ def summary_line(checks: dict[str, dict | None]) -> str:
                 f"verdict (largest difference {worst:.2g})")
     return (f"quadrature cross-check: NUTS agrees with quadrature for all {len(done)} "
             f"group(s) (largest difference {worst:.2g}, within tolerance)")
+
+
+def sheet_rows(label: str, diagnostics: dict) -> list[list]:
+    """The workbook's Diagnostics row of one group's cross-check (none if not run)."""
+    c = diagnostics.get("cross_check")
+    if not c:
+        return []
+    return [[label, "quadrature cross-check", None, None, None, c["agreed"], None, None,
+             f"max |NUTS - quadrature| {c['max_abs_diff']:.2g} over {c['quantities']} "
+             f"probabilities; tolerance max(4 MCSE, quadrature error) {c['tolerance']:.2g}"]]

@@ -136,6 +136,7 @@ def sheet_rows(label: str, diagnostics: dict) -> list[list]:
     c = diagnostics.get("cross_check")
     if not c:
         return []
+    diff = float("nan") if c["max_abs_diff"] is None else c["max_abs_diff"]
     return [[label, "quadrature cross-check", None, None, None, c["agreed"], None, None,
-             f"max |NUTS - quadrature| {c['max_abs_diff']:.2g} over {c['quantities']} "
+             f"max |NUTS - quadrature| {diff:.2g} over {c['quantities']} "
              f"probabilities; tolerance max(4 MCSE, quadrature error) {c['tolerance']:.2g}"]]

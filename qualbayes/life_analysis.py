@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special
 
+from qualbayes import cross_check
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
 from qualbayes.life_precision import RULE_TEXT, Precision, close_call_note, settle
@@ -151,11 +152,17 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
         eta = np.exp(chains["log_scale"].reshape(-1))
         draws[g] = {"shape": beta, "scale": eta, "chains": chains}
         arrays = data[g][0]
-        groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta, gate.to_dict(),
+        check = cross_check.life_group(stats[g], prior, modes[j], chains["log_shape"],
+                                       chains["log_scale"], mission, target
+                                       ) if gate.passed else None  # quadrature vs NUTS
+        groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta,
+                                   cross_check.attach(gate.to_dict(), check),
                                    mission, target, confidence, prior, precision=prec))
     if not all(r["diagnostics"]["passed"] for r in groups):
         notes.append("the convergence gate failed for at least one group: it carries "
                      "'not-converged' and no decision")
+    notes.append(cross_check.summary_line({r["group"]: r["diagnostics"].get("cross_check")
+                                           for r in groups}))
     result = LifeAssessment(groups, mission, target, confidence, prior, table.units,
                             settings.seed, draws=draws, notes=notes)
     add_extras(result, {g: data[g][0] for g in names}, compare=compare,

@@ -6,6 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from qualbayes import cross_check
 from qualbayes.lot_answers import (
     RESULT_COLUMNS,
     answer_lots,
@@ -43,13 +44,15 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
             break
         runs += 1
         fit = more_draws(fit, data, names, hyper, runs)
-    parts = _answer_groups(frame, groups, fit, spec, confidence, outliers)
+    checks = cross_check.lot_groups(fit, data, names, spec, hyper)  # quadrature vs NUTS
+    parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
+             _answer_groups(frame, groups, fit, spec, confidence, outliers).items()}
     out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
     out["decision_basis"] = list(frame["decision_basis"])  # kept for lots without a verdict
     diagnostics, next_lot, draws = {}, {}, {}
     for j, (label, idx) in enumerate(groups.items()):
         ans, ok = parts[label]
-        diagnostics[label] = fit.gate.select(label).to_dict()
+        diagnostics[label] = cross_check.attach(fit.gate.select(label).to_dict(), checks[label])
         draws[label] = {"mu": fit.draws["mu"][:, :, j], "kappa": fit.draws["kappa"][:, :, j]}
         if not ok:
             next_lot[label] = {"decision": NOT_CONVERGED}
@@ -81,6 +84,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     if any(not d["passed"] for d in diagnostics.values()):
         notes.append("the convergence gate failed for at least one group: those lots carry "
                      "'not-converged' and no decision")
+    notes.append(cross_check.summary_line(checks))
     if runs:
         notes.append(f"close calls: {runs} further NUTS run(s) of the same size were drawn "
                      f"(cap {MAX_EXTRA_RUNS}) to settle P within its Monte Carlo error")

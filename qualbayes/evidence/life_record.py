@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from qualbayes import cross_check
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.life import LifeTable
 from qualbayes.evidence.explain import NEXT_STEP, gate_line, life_columns
@@ -194,6 +195,7 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
             diag.append([g["group"], p["name"], p["rhat"], p["ess_bulk"], p["ess_tail"],
                          p["passed"], d["divergences"], d["attempts"],
                          f"R-hat <= {RHAT_MAX}, ESS >= {ESS_MIN:.0f}, no divergences"])
+        diag += cross_check.sheet_rows(g["group"], d)
     cautions = [[record["caution"]], ["Standards to defer to:"]] + [
         [s_] for s_ in record["standards"]]
     cautions += [[n] for n in record["notes"]]

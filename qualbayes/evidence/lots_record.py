@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from qualbayes import cross_check
 from qualbayes.acceptance import LotAssessment
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.lots import LotTable
@@ -212,6 +213,7 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
             diag.append([part, p["name"], p["rhat"], p["ess_bulk"], p["ess_tail"], p["passed"],
                          d["divergences"], d["attempts"],
                          f"R-hat <= {RHAT_MAX}, ESS >= {ESS_MIN:.0f}, no divergences"])
+        diag += cross_check.sheet_rows(part, d)
     cautions = [[record["caution"]], ["Standards to defer to:"]] + [[s] for s in
                                                                       record["standards"]]
     cautions += [[n] for n in record["notes"]]

@@ -34,6 +34,23 @@ def _python_command(name: str, options: dict) -> str:
     return f"python: qualbayes.{name}(data, {shown})"
 
 
+def _matching_diverging(fits: tuple, shape: tuple):
+    """The divergence flags (chain, draw) of the fits behind the draws: one fit's own, or the
+    fits' flags stacked along the chain axis when extra runs were added as chains (a close
+    call); None when no arrangement matches the draws."""
+    flags = [np.asarray(f.diverging) for f in fits if getattr(f, "diverging", None) is not None]
+    for d in reversed(flags):
+        if d.shape == shape:
+            return d
+    for start in range(len(flags)):
+        stacked = flags[start:]
+        if stacked and all(d.shape[1:] == shape[1:] for d in stacked):
+            joined = np.concatenate(stacked, axis=0)
+            if joined.shape == shape:
+                return joined
+    return None
+
+
 def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, observed: dict,
                      observed_dims: dict, observed_coords: dict):
     """One InferenceData from per-element draws ``{name: {var: (chain, draw)}}``; the
@@ -47,9 +64,7 @@ def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, obser
     variables = list(next(iter(draws.values())))
     posterior = {v: np.stack([np.asarray(draws[n][v]) for n in names], axis=-1)
                  for v in variables}
-    diverging = fits[-1].diverging if len(fits) == 1 else None
-    if diverging is not None and np.shape(diverging) != next(iter(shapes)):
-        diverging = None
+    diverging = _matching_diverging(fits, next(iter(shapes)))
     return to_idata(posterior, diverging, {v: [dim] for v in variables},
                     {dim: list(names)} | observed_coords, observed, observed_dims)
 

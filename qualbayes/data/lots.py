@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import pandas as pd
 
-from qualbayes.data.columns import Column, cell, locate, parse_mapping
+from qualbayes.data.columns import Column, cell, locate, parse_mapping, unused_note
+from qualbayes.data.notes import skipped_note
 from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
+from qualbayes.data.sheets import SheetPicker
 from qualbayes.data.values import describe, is_blank, parse_count, parse_date, parse_text
 from qualbayes.errors import InputError
 
@@ -40,20 +42,34 @@ class LotTable:
     header_row: int
     headers: dict[str, str]  # key -> header as written in the file
     notes: list[str]
+    #: rows left out because the lot has no result yet: {"row", "lot", "reason"}
+    skipped: list[dict] = field(default_factory=list)
+    unused_columns: tuple[str, ...] = ()  # headers in the file that were not read
+    #: with several input files: {"file", "sheet", "sha256", "header_row", "lots"} each
+    sources: list[dict] = field(default_factory=list)
 
 
 def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
-              max_rows: int = DEFAULT_MAX_ROWS) -> LotTable:
-    """Read and validate an inspection export; raises :class:`InputError` on the first fault."""
-    table = read_table(path, sheet=sheet, max_rows=max_rows)
+              max_rows: int = DEFAULT_MAX_ROWS, strict: bool = False) -> LotTable:
+    """Read and validate an inspection export; raises :class:`InputError` on the first fault.
+
+    A lot whose defectives cell is blank has no result yet (an open inspection lot): it is
+    left out and listed in ``skipped`` and the notes, or refused when ``strict``. Defectives
+    given with units inspected blank is an error (a count without its sample)."""
     mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
-    return validate_lots(table, mapping)
+    picker = SheetPicker(LOT_COLUMNS, mapping)
+    table = read_table(path, sheet=sheet, max_rows=max_rows, pick_sheet=picker)
+    if picker.note:
+        table.notes.append(picker.note)
+    return validate_lots(table, mapping, strict=strict)
 
 
-def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> LotTable:
+def validate_lots(table: RawTable, mapping: dict[str, str] | None = None,
+                  strict: bool = False) -> LotTable:
     loc = locate(table, LOT_COLUMNS, mapping)
     headers = {k: v[1] for k, v in loc.columns.items()}
     records = []
+    skipped: list[dict] = []
     seen: dict[str, int] = {}
     for i in range(loc.first_data, len(table.rows)):
         rownum = table.row_numbers[i]
@@ -77,6 +93,13 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
         if lot in seen:
             raise fail(f"lot id {lot!r} appears twice (rows {seen[lot]} and {rownum})", "lot")
         seen[lot] = rownum
+        if is_blank(get("defectives")):  # an open lot: sampled, perhaps, but no result yet
+            if strict:
+                raise fail(f"lot {lot!r} has no result yet (defectives blank); --strict "
+                           "refuses lots without a result (without it they are left out and "
+                           "listed)", "defectives")
+            skipped.append({"row": rownum, "lot": lot, "reason": "defectives blank"})
+            continue
         counts = {}
         for key in ("inspected", "defectives", "lot_size"):
             raw = get(key)
@@ -110,12 +133,16 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
                 raise fail(str(err), "date") from None
         records.append((lot, part, supplier, date, big_n, n, x, rownum))
     if not records:
-        raise table.error("no lots found below the header", row=loc.header_row)
+        what = f" ({len(skipped)} open lots left out)" if skipped else ""
+        raise table.error(f"no lots found below the header{what}", row=loc.header_row)
     frame = pd.DataFrame.from_records(
         records, columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
                           "defectives", "row"])
     frame["lot_size"] = frame["lot_size"].astype("Int64")
-    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, list(table.notes))
+    notes = [*table.notes, *unused_note(loc.unused), *skipped_note(skipped, "lot")]
+    return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes,
+                    skipped, loc.unused)
+
 
 
 #: Lot ids that label a summary row rather than a lot (common practice in exports; no source).

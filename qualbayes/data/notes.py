@@ -1,0 +1,17 @@
+"""Notes about rows of an export that were left out (shared by the lot and life readers)."""
+
+from __future__ import annotations
+
+
+def skipped_note(skipped: list[dict], label: str) -> list[str]:
+    """The note listing rows left out for want of a result (empty when none were).
+
+    >>> skipped_note([{"row": 5, "lot": "L-7", "reason": "defectives blank"}], "lot")[0][:39]
+    '1 row(s) without a result yet were left '
+    """
+    if not skipped:
+        return []
+    rows = ", ".join(f"row {s['row']} ({label} {s[label]})" for s in skipped[:50])
+    more = f" and {len(skipped) - 50} more" if len(skipped) > 50 else ""
+    return [f"{len(skipped)} row(s) without a result yet were left out: {rows}{more} "
+            "(--strict refuses them instead)"]

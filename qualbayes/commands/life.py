@@ -12,6 +12,7 @@ from qualbayes.commands.common import (
     emit,
     out_targets,
 )
+from qualbayes.commands.inputs import add_export_options, read_life_inputs, source_evidence
 from qualbayes.commands.prior_options import add_prior_options
 
 WORKBOOK = "life_results.xlsx"
@@ -29,6 +30,7 @@ def register(sub) -> None:
                     "stated confidence.",
         formatter_class=argparse.ArgumentDefaultsHelpFormatter)
     add_input_options(p)
+    add_export_options(p, life=True)
     p.add_argument("--mission", required=True, help="mission time, in the units of the file")
     p.add_argument("--target", required=True,
                    help="reliability required at the mission time: 0.9 or 90%%")
@@ -65,13 +67,13 @@ def _mission(text: str) -> float:
 
 def run(args) -> int:
     from qualbayes.commands.prior_options import life_prior, life_prior_evidence  # noqa: PLC0415
-    from qualbayes.data.life import parse_units, read_life  # noqa: PLC0415
+    from qualbayes.data.life import parse_units  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.life_plots import figure_names  # noqa: PLC0415
     from qualbayes.evidence.life_record import life_record, life_text  # noqa: PLC0415
     from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
     from qualbayes.models.weibull import make_prior  # noqa: PLC0415
-    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+    from qualbayes.provenance import command_line, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability  # noqa: PLC0415
 
     mission = _mission(args.mission)
@@ -83,8 +85,7 @@ def run(args) -> int:
     targets = _targets(args)
     check_targets(targets, args.force)
     check_report(args)
-    data = read_life(args.file, sheet=args.sheet, columns=args.columns,
-                     max_rows=args.max_rows, units=units, groups=args.group)
+    data = read_life_inputs(args, units)
     stats = {g: st for g, (_, st) in group_data(data).items()}
     check_prior_use(data, stats, prior)  # refuse before the sampler starts
     figures = []
@@ -94,9 +95,10 @@ def run(args) -> int:
         for _, prob_name, rel_name in figure_names(data.groups):
             figures += [Path(args.out) / prob_name, Path(args.out) / rel_name]
         check_targets(figures, args.force)
-    sha = sha256_file(args.file)
     result = assess_life(data, mission, target, confidence, prior, seed=args.seed)
-    record = life_record(result, data, sha, command_line(args.argv), versions())
+    record = life_record(result, data, data.sources[0]["sha256"], command_line(args.argv),
+                         versions())
+    source_evidence(record, data, ["group", "unit"])
     record.update(life_prior_evidence(args, result, data, prior, setup))
     written = _write(record, data, targets, args.force) if targets else []
     emit(args, record, "" if args.json else life_text(record), written)
@@ -120,6 +122,8 @@ def _write(record, data, targets, force) -> list:
         from qualbayes.evidence.files import write_atomic  # noqa: PLC0415
 
         write_atomic(targets[2], figure_file(record), force)
-    write_workbook(targets[0], life_sheets(record, data), force=force)
+    from qualbayes.evidence.inputs_sheets import with_input_rows  # noqa: PLC0415
+
+    write_workbook(targets[0], with_input_rows(life_sheets(record, data), record), force=force)
     write_text_atomic(targets[1], dumps(without_draws(record)), force=force)
     return [*targets, *figures]

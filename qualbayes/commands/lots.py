@@ -11,6 +11,7 @@ from qualbayes.commands.common import (
     emit,
     out_targets,
 )
+from qualbayes.commands.inputs import add_export_options, read_lot_inputs, source_evidence
 from qualbayes.commands.prior_options import add_prior_options
 
 WORKBOOK = "lot_decisions.xlsx"
@@ -25,6 +26,7 @@ def register(sub) -> None:
                     "accept / reject / undecided at the stated confidence.",
         formatter_class=argparse.ArgumentDefaultsHelpFormatter)
     add_input_options(p)
+    add_export_options(p)
     p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
     p.add_argument("--prior", default=None,
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
@@ -37,13 +39,12 @@ def register(sub) -> None:
 def run(args) -> int:
     from qualbayes.acceptance import assess_lots  # noqa: PLC0415
     from qualbayes.commands.prior_options import lot_prior, lot_prior_evidence  # noqa: PLC0415
-    from qualbayes.data.lots import read_lots  # noqa: PLC0415
     from qualbayes.evidence.files import check_targets  # noqa: PLC0415
     from qualbayes.evidence.lots_record import (  # noqa: PLC0415
         lots_record,
         lots_text,
     )
-    from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+    from qualbayes.provenance import command_line, versions  # noqa: PLC0415
     from qualbayes.questions import parse_probability, parse_rate  # noqa: PLC0415
 
     spec = parse_rate(args.spec)
@@ -52,10 +53,11 @@ def run(args) -> int:
     targets = _targets(args)
     check_targets(targets, args.force)
     check_report(args)
-    data = read_lots(args.file, sheet=args.sheet, columns=args.columns, max_rows=args.max_rows)
-    sha = sha256_file(args.file)
+    data = read_lot_inputs(args)
     result = assess_lots(data, spec, confidence, prior, seed=args.seed)
-    record = lots_record(result, data, sha, command_line(args.argv), versions())
+    record = lots_record(result, data, data.sources[0]["sha256"], command_line(args.argv),
+                         versions())
+    source_evidence(record, data, ["lot"])
     record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
     if targets:
         _write(record, data, targets, args.force)
@@ -72,6 +74,7 @@ def _write(record, data, targets, force) -> None:
     temporary names, then renamed into place, so a killed run never leaves a new workbook
     beside an old record."""
     from qualbayes.evidence.files import write_group  # noqa: PLC0415
+    from qualbayes.evidence.inputs_sheets import with_input_rows  # noqa: PLC0415
     from qualbayes.evidence.jsonout import dumps  # noqa: PLC0415
     from qualbayes.evidence.lots_record import lots_sheets, without_draws  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
@@ -82,6 +85,7 @@ def _write(record, data, targets, force) -> None:
         from qualbayes.commands.prior_options import figure_file  # noqa: PLC0415
 
         figure = [(targets[2], figure_file(record))]
-    write_group([(targets[0], workbook_writer(lots_sheets(record, data))),
+    write_group([(targets[0], workbook_writer(
+        with_input_rows(lots_sheets(record, data), record))),
                  (targets[1], lambda p: p.write_text(text, encoding="utf-8")), *figure],
                 force=force)

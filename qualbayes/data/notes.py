@@ -6,8 +6,8 @@ from __future__ import annotations
 def skipped_note(skipped: list[dict], label: str) -> list[str]:
     """The note listing rows left out for want of a result (empty when none were).
 
-    >>> skipped_note([{"row": 5, "lot": "L-7", "reason": "defectives blank"}], "lot")[0][:39]
-    '1 row(s) without a result yet were left '
+    >>> skipped_note([{"row": 5, "lot": "L-7", "reason": "defectives blank"}], "lot")[0][:32]
+    '1 row(s) without a result yet we'
     """
     if not skipped:
         return []

@@ -103,7 +103,7 @@ def life_text(record: dict) -> str:
         for n in g["notes"]:
             detail.append(f"[{g['group']}] {n}")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
-    tail = [f"decisions: {counts}", *record["notes"], CAUTION]
+    tail = [f"decisions: {counts}", *record["notes"], *record["input"]["notes"], CAUTION]
     head += prior_lines(record)
     detail += sensitivity_lines(record)
     return "\n".join([*head, "", text_table(headers, rows, "lrrrlllrrrl"), "", *detail, "",
@@ -145,7 +145,8 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
         sheets["Inputs as read"] = pd.DataFrame({
             "spreadsheet row": f["row"], "unit": f["unit"], "group": f["group"],
             "kind": f["kind"], "lower time": f["lower"],
-            "upper time": f["upper"].where(f["upper"] != float("inf"), None)})
+            "upper time": f["upper"].where(f["upper"] != float("inf"), None),
+            "source": f["source"] if "source" in f else data.file})
     plot_rows = [["group", "time", "adjusted rank", "median rank (Bernard)", "plotted as"]]
     curve_rows = [["group", "time", "R median", "R band low", "R band high"]]
     for g in record["groups"]:
@@ -178,7 +179,7 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
                          f"R-hat <= {RHAT_MAX}, ESS >= {ESS_MIN:.0f}, no divergences"])
     cautions = [[record["caution"]], ["Standards to defer to:"]] + [
         [s_] for s_ in record["standards"]]
-    cautions += [[n] for n in record["notes"]]
+    cautions += [[n] for n in record["notes"] + record["input"]["notes"]]
     cautions += [[f"[{g['group']}] {n}"] for g in record["groups"] for n in g["notes"]]
     prov = [["input file", record["input"]["file"]], ["sheet", record["input"]["sheet"]],
             ["SHA-256", record["input"]["sha256"]], ["header row", record["input"]["header_row"]],

@@ -104,7 +104,7 @@ def lots_text(record: dict) -> str:
             tail.append(f"next lot of {part}: predicted defect rate mean {_pct(nl['mean'])}, "
                         f"{c:.0%} upper {_pct(nl['upper_bound'])}, "
                         f"P(p<=spec) {nl['prob_within_spec']:.4f}")
-    tail += record["notes"]
+    tail += record["notes"] + record["input"]["notes"]
     tail.append(CAUTION)
     head += prior_lines(record)
     table = [text_table(headers, rows, "llrrrrrrll"), *sensitivity_lines(record)]
@@ -128,7 +128,8 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
     inputs = pd.DataFrame([{
         "spreadsheet row": r["row"], "lot": r["lot"], "part": r["part"],
         "supplier": r["supplier"], "date": r["date"], "lot size": r["lot_size"],
-        "inspected": r["inspected"], "defectives": r["defectives"]} for r in record["lots"]])
+        "inspected": r["inspected"], "defectives": r["defectives"],
+        "source": r.get("source", record["input"]["file"])} for r in record["lots"]])
     model = [["question", q["asked"]], ["spec limit", q["spec"]],
              ["confidence", q["confidence"]], ["interval", q["interval"]],
              ["upper bound", q["upper_bound"]], ["model", record["model"]],
@@ -148,7 +149,7 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
                          f"R-hat <= {RHAT_MAX}, ESS >= {ESS_MIN:.0f}, no divergences"])
     cautions = [[record["caution"]], ["Standards to defer to:"]] + [[s] for s in
                                                                       record["standards"]]
-    cautions += [[n] for n in record["notes"]]
+    cautions += [[n] for n in record["notes"] + record["input"]["notes"]]
     prov = [["input file", record["input"]["file"]], ["sheet", record["input"]["sheet"]],
             ["SHA-256", record["input"]["sha256"]], ["header row", record["input"]["header_row"]],
             ["rows read", record["input"]["rows_read"]], ["command", record["command"]]]

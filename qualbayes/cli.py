@@ -15,6 +15,7 @@ COMMAND_MODULES = (
     "qualbayes.commands.life",
     "qualbayes.commands.plan",
     "qualbayes.commands.report",
+    "qualbayes.commands.suppliers",
 )
 
 

@@ -23,8 +23,8 @@ TOO_CLOSE = "too close to call"
 TARGET_ACCEPT = 0.95
 
 MODEL = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot (marginalised); "
-         "logit mu[s,t] = a[s] + sigma_w*e[s,t], e ~ N(0,1); a[s] = m + sigma_b*z[s], "
-         "z ~ N(0,1); m ~ N(-5, 2^2), sigma_b ~ HalfNormal(1), sigma_w ~ HalfNormal(0.5), "
+         "logit mu[s,t] = a[s] + sigma_w[s]*e[s,t], e ~ N(0,1); a[s] = m + sigma_b*z[s], "
+         "z ~ N(0,1); m ~ N(-5, 2^2), sigma_b ~ HalfNormal(1), sigma_w[s] ~ HalfNormal(0.5), "
          "phi = 1/sqrt(kappa+1) ~ Uniform(1e-4, 1); NUTS")
 MODEL_NO_PERIOD = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot "
                    "(marginalised); logit mu[s] = a[s] = m + sigma_b*z[s], z ~ N(0,1); "
@@ -128,6 +128,8 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
                "defectives": int(sum(c[2].sum() for c in mine)), "periods": len(mine),
                "latest_period": mine[-1][1] if period else None}
         row |= {k: float(v[j]) if ok else None for k, v in per_s.items() if k != "latest_cell"}
+        row["period_spread_median"] = (float(np.median(fit.draws["sigma_w"][:, :, j]))
+                                       if ok and period else None)
         row["limit_call"] = _limit_call(row, confidence) if ok else NOT_CONVERGED
         row["latest_call"] = _latest_call(row, confidence, period) if ok else NOT_CONVERGED
         rows.append(row)
@@ -140,8 +142,8 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
         "inspected": int(c[3].sum()), "defectives": int(c[2].sum()),
         **{k: float(v[i]) if ok else None for k, v in per_c.items()}}
         for i, c in enumerate(cells)])
-    hyper = {k: float(np.median(v)) for k, v in fit.draws.items()
-             if k in ("m", "sigma_b", "sigma_w", "phi")} if ok else {}
+    hyper = {k: float(np.median(fit.draws[k])) for k in ("m", "sigma_b", "phi")} if ok else {}
+
     return SupplierScorecard(frame.reset_index(drop=True), periods, spec, confidence, period,
                              MODEL if period else MODEL_NO_PERIOD, fit.settings.seed,
                              fit.gate.to_dict(), _notes(frame, ok), hyper)

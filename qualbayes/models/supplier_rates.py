@@ -6,15 +6,16 @@ For supplier s, period t (a month or a quarter) and lot i of that period:
 
     x_{sti} \mid p_{sti} &\sim \mathrm{Binomial}(n_{sti}, p_{sti}) \\
     p_{sti} \mid \mu_{st}, \kappa &\sim \mathrm{Beta}(\mu_{st}\kappa, (1-\mu_{st})\kappa) \\
-    \mathrm{logit}\,\mu_{st} &= a_s + \sigma_w e_{st}, \qquad e_{st} \sim N(0, 1) \\
+    \mathrm{logit}\,\mu_{st} &= a_s + \sigma_{w,s} e_{st}, \qquad e_{st} \sim N(0, 1) \\
     a_s &= m + \sigma_b z_s, \qquad z_s \sim N(0, 1) \\
     m &\sim N(-5, 2^2), \quad \sigma_b \sim \mathrm{HalfNormal}(1), \quad
-    \sigma_w \sim \mathrm{HalfNormal}(0.5), \quad
+    \sigma_{w,s} \sim \mathrm{HalfNormal}(0.5), \quad
     \phi = (\kappa+1)^{-1/2} \sim \mathrm{Uniform}(10^{-4}, 1)
 
 :math:`\mu_{st}` is the mean defect rate of the supplier's lots in period t, :math:`a_s` the
 supplier's typical level on the logit scale, :math:`\sigma_b` the spread between suppliers,
-:math:`\sigma_w` the spread of a supplier's periods about its level, and :math:`\phi^2` the
+:math:`\sigma_{w,s}` the spread of supplier s's periods about its level (its own: a steady
+supplier's periods are pooled hard, a drifting one's much less), and :math:`\phi^2` the
 intra-class correlation of lots within a period (shared by all suppliers, as in the lot
 history model, ``models/lot_history.py``). Without periods the :math:`e_{st}` level is left
 out and :math:`\mathrm{logit}\,\mu_s = a_s`.
@@ -22,7 +23,7 @@ out and :math:`\mathrm{logit}\,\mu_s = a_s`.
 The lot rates are integrated out: :math:`x_{sti} \sim \mathrm{BetaBinomial}(n_{sti},
 \mu_{st}\kappa, (1-\mu_{st})\kappa)`, and lots of a cell that share (x, n) are collapsed into
 one weighted term (exact), so NUTS samples :math:`4 + S + C` dimensions (C the number of
-supplier-periods with lots), all in one vectorised model with non-centred :math:`z, e`.
+supplier-periods with lots; 3 + 2S + C with periods), all in one vectorised model with non-centred :math:`z, e`.
 
 The quantities reported are computed from the draws: the supplier's rate over the periods
 shown, :math:`r_s = \frac{1}{T_s}\sum_t \mu_{st}`; whether its latest period is worse than its
@@ -50,12 +51,13 @@ import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
 
 
-def _level(supplier_template):
+def _level(supplier_template, periods: bool):
     m = numpyro.sample("m", dist.Normal(M_MEAN, M_SD))
     sigma_b = numpyro.sample("sigma_b", dist.HalfNormal(SIGMA_B_SCALE))
     with numpyro.plate("suppliers", supplier_template.shape[0]):
         z = numpyro.sample("z", dist.Normal(0.0, 1.0))
-    return numpyro.deterministic("a", m + sigma_b * z)
+        sigma_w = numpyro.sample("sigma_w", dist.HalfNormal(SIGMA_W_SCALE)) if periods else None
+    return numpyro.deterministic("a", m + sigma_b * z), sigma_w
 
 
 def _lots(theta, x, n, w):
@@ -68,17 +70,16 @@ def _lots(theta, x, n, w):
 
 def supplier_model(x, n, w, cell_supplier, supplier_template):
     """Suppliers only: ``x, n, w`` (suppliers, terms); one cell per supplier."""
-    a = _level(supplier_template)
+    a, _ = _level(supplier_template, periods=False)
     _lots(a[cell_supplier], x, n, w)
 
 
 def supplier_period_model(x, n, w, cell_supplier, supplier_template):
     """Suppliers and periods: ``x, n, w`` (cells, terms), ``cell_supplier`` (cells,)."""
-    a = _level(supplier_template)
-    sigma_w = numpyro.sample("sigma_w", dist.HalfNormal(SIGMA_W_SCALE))
+    a, sigma_w = _level(supplier_template, periods=True)
     with numpyro.plate("cells", x.shape[0]):
         e = numpyro.sample("e", dist.Normal(0.0, 1.0))
-    _lots(a[cell_supplier] + sigma_w * e, x, n, w)
+    _lots(a[cell_supplier] + sigma_w[cell_supplier] * e, x, n, w)
 
 
 def cell_terms(cells: list[tuple[np.ndarray, np.ndarray]]):
@@ -109,15 +110,15 @@ def fit_suppliers(cells: list[tuple[np.ndarray, np.ndarray]], cell_supplier: np.
 
     def theta_of(draws: dict) -> np.ndarray:
         a = draws["a"][..., cell_supplier]
-        return a + draws["sigma_w"][..., None] * draws["e"] if periods else a
+        return a + draws["sigma_w"][..., cell_supplier] * draws["e"] if periods else a
 
     def gate_on(draws: dict) -> dict:
         out = {"m": draws["m"], "log_sigma_b": np.log(draws["sigma_b"]),
                "logit_phi": np.log(draws["phi"]) - np.log1p(-draws["phi"])}
-        if periods:
-            out["log_sigma_w"] = np.log(draws["sigma_w"])
         for j, name in enumerate(suppliers):
             out[f"a[{name}]"] = draws["a"][:, :, j]
+            if periods:
+                out[f"log_sigma_w[{name}]"] = np.log(draws["sigma_w"][:, :, j])
         if periods:
             theta = theta_of(draws)
             for c, name in enumerate(cell_names):

@@ -119,11 +119,12 @@ def test_worse_than_before_and_worst_of_all_match_direct_simulation():
 
 def test_summaries_against_hand_counts():
     """Indicator means by hand on a tiny set of draws (no sampler)."""
-    mu = np.array([[[0.01, 0.03, 0.02, 0.02], [0.02, 0.01, 0.05, 0.04]]])  # 1 chain, 2 draws
+    mu = np.array([[[0.01, 0.03, 0.02, 0.01], [0.02, 0.01, 0.05, 0.04]]])  # 1 chain, 2 draws
+    mu = np.tile(mu, (1, 4, 1))  # 8 draws, the same two four times (ESS needs 8 per chain)
     got = supplier_summaries(special.logit(mu), np.array([0, 0, 1, 1]), 2, spec=0.025,
                              confidence=0.9)
-    # rates: draw 1 (0.02, 0.02) tie -> both worst; draw 2 (0.015, 0.045)
-    assert got["prob_worst"].tolist() == pytest.approx([0.5, 1.0])
+    # supplier rates: draw 1 (0.02, 0.015), draw 2 (0.015, 0.045)
+    assert got["prob_worst"].tolist() == pytest.approx([0.5, 0.5])
     assert got["prob_latest_worse"].tolist() == pytest.approx([0.5, 0.0])
     assert got["prob_above"].tolist() == pytest.approx([0.0, 0.5])
 

@@ -39,7 +39,7 @@ from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
 from qualbayes.models.lot_history import PHI_MIN, bucket, collapse
 
 #: Hyperprior constants (docs/suppliers.md; operating characteristics in docs/calibration.md)
-M_MEAN, M_SD = -5.0, 2.0  # logit of a typical supplier's rate: 95% in about 0.01% to 27%
+M_MEAN, M_SD = -5.0, 2.0  # logit of a typical supplier's rate: 95% in about 0.013% to 25%
 SIGMA_B_SCALE = 1.0  # supplier-to-supplier spread (logit scale)
 SIGMA_W_SCALE = 0.5  # period-to-period spread within a supplier (logit scale)
 

@@ -26,9 +26,9 @@ import numpy as np
 import pandas as pd
 
 from qualbayes.data.columns import Column, cell, locate, parse_mapping, unused_note
-from qualbayes.data.notes import skipped_note
-from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
-from qualbayes.data.sheets import SheetPicker
+from qualbayes.data.notes import leave_out, skipped_note
+from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable
+from qualbayes.data.sheets import read_sheet
 from qualbayes.data.status import StatusMap
 from qualbayes.data.values import describe, is_blank, parse_real, parse_text
 from qualbayes.errors import InputError, OptionError
@@ -120,10 +120,7 @@ def read_life(path, sheet: str | None = None, columns: str | dict | None = None,
     when ``strict``. ``status`` reads the plant's own status words (every use is noted).
     """
     mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
-    picker = SheetPicker(LIFE_COLUMNS, mapping)
-    table = read_table(path, sheet=sheet, max_rows=max_rows, pick_sheet=picker)
-    if picker.note:
-        table.notes.append(picker.note)
+    table = read_sheet(path, LIFE_COLUMNS, mapping, sheet, max_rows)
     return validate_life(table, mapping, units=units, groups=groups, strict=strict,
                          status=status)
 
@@ -174,11 +171,8 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
         status_raw = get("status")
         if is_blank(status_raw) and all(is_blank(get(k)) for k in (
                 "time", "seen_working", "found_failed")):
-            if strict:
-                raise fail(f"unit {unit!r} has no result yet (time and status blank); "
-                           "--strict refuses units without a result (without it they are "
-                           "left out and listed)", "status")
-            skipped.append({"row": rownum, "unit": unit, "reason": "time and status blank"})
+            leave_out(skipped, strict=strict, fail=fail, label="unit", ident=unit, row=rownum,
+                      blank="time and status blank", column="status")
             continue
         if is_blank(status_raw):
             raise fail(f"status of unit {unit!r} is empty; write F (failed) or S "

@@ -7,9 +7,9 @@ from dataclasses import dataclass, field
 import pandas as pd
 
 from qualbayes.data.columns import Column, cell, locate, parse_mapping, unused_note
-from qualbayes.data.notes import skipped_note
-from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
-from qualbayes.data.sheets import SheetPicker
+from qualbayes.data.notes import leave_out, skipped_note
+from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable
+from qualbayes.data.sheets import read_sheet
 from qualbayes.data.values import describe, is_blank, parse_count, parse_date, parse_text
 from qualbayes.errors import InputError
 
@@ -57,10 +57,7 @@ def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
     left out and listed in ``skipped`` and the notes, or refused when ``strict``. Defectives
     given with units inspected blank is an error (a count without its sample)."""
     mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
-    picker = SheetPicker(LOT_COLUMNS, mapping)
-    table = read_table(path, sheet=sheet, max_rows=max_rows, pick_sheet=picker)
-    if picker.note:
-        table.notes.append(picker.note)
+    table = read_sheet(path, LOT_COLUMNS, mapping, sheet, max_rows)
     return validate_lots(table, mapping, strict=strict)
 
 
@@ -94,11 +91,8 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None,
             raise fail(f"lot id {lot!r} appears twice (rows {seen[lot]} and {rownum})", "lot")
         seen[lot] = rownum
         if is_blank(get("defectives")):  # an open lot: sampled, perhaps, but no result yet
-            if strict:
-                raise fail(f"lot {lot!r} has no result yet (defectives blank); --strict "
-                           "refuses lots without a result (without it they are left out and "
-                           "listed)", "defectives")
-            skipped.append({"row": rownum, "lot": lot, "reason": "defectives blank"})
+            leave_out(skipped, strict=strict, fail=fail, label="lot", ident=lot, row=rownum,
+                      blank="defectives blank", column="defectives")
             continue
         counts = {}
         for key in ("inspected", "defectives", "lot_size"):

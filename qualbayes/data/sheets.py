@@ -15,7 +15,7 @@ True
 from __future__ import annotations
 
 from qualbayes.data.columns import HEADER_SEARCH_ROWS, Column, locate
-from qualbayes.data.readers import MAX_COLUMNS, RawTable
+from qualbayes.data.readers import MAX_COLUMNS, RawTable, read_table
 from qualbayes.errors import InputError
 
 
@@ -72,3 +72,14 @@ class SheetPicker:
         except InputError:
             return False
         return True
+
+
+def read_sheet(path, schema: tuple[Column, ...], mapping: dict[str, str], sheet: str | None,
+               max_rows: int) -> RawTable:
+    """:func:`read_table` with the sheet picked by its columns when none is named; the pick
+    is stated in the table's notes."""
+    picker = SheetPicker(schema, mapping)
+    table = read_table(path, sheet=sheet, max_rows=max_rows, pick_sheet=picker)
+    if picker.note:
+        table.notes.append(picker.note)
+    return table

@@ -22,8 +22,9 @@ out and :math:`\mathrm{logit}\,\mu_s = a_s`.
 
 The lot rates are integrated out: :math:`x_{sti} \sim \mathrm{BetaBinomial}(n_{sti},
 \mu_{st}\kappa, (1-\mu_{st})\kappa)`, and lots of a cell that share (x, n) are collapsed into
-one weighted term (exact), so NUTS samples :math:`4 + S + C` dimensions (C the number of
-supplier-periods with lots; 3 + 2S + C with periods), all in one vectorised model with non-centred :math:`z, e`.
+one weighted term (exact), so NUTS samples :math:`3 + 2S + C` dimensions (C the number of
+supplier-periods with lots; :math:`3 + S` without periods), all in one vectorised model with
+non-centred :math:`z, e`.
 
 The quantities reported are computed from the draws: the supplier's rate over the periods
 shown, :math:`r_s = \frac{1}{T_s}\sum_t \mu_{st}`; whether its latest period is worse than its

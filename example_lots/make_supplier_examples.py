@@ -3,7 +3,7 @@
 Scenario (fictional): the Dunmore plant of the invented Kestrel Fluid Systems buys machined
 and moulded parts from six invented suppliers over two years (2025-Q1 to 2026-Q4). Five are
 steady; Wrenholt Fasteners drifts: its defect rate climbs in the last two quarters (from
-about 0.4% to 0.8%, then 2%). Two lots of the last quarter are still open (no result yet).
+about 0.4% to 1%, then 3%). Two lots of the last quarter are still open (no result yet).
 
 The export imitates a plant ERP layout: a cover sheet, a title row, ERP-style headers
 ("Inspection lot", "Sample Qty", "Defective qty", "Insp. start date") and a column the tool
@@ -29,7 +29,7 @@ SUPPLIERS = [
     ("Pettlebrook Machining", "SH-7", "PM", [0.0025] * 8),
     ("Faldstone Springs", "SP-40", "FS", [0.008] * 8),
     ("Ossery Gaskets", "GK-5", "OG", [0.004] * 8),
-    ("Wrenholt Fasteners", "FB-12", "WF", [0.004] * 6 + [0.008, 0.02]),
+    ("Wrenholt Fasteners", "FB-12", "WF", [0.004] * 6 + [0.01, 0.03]),
 ]
 SAMPLES = {500: 50, 1200: 80, 3000: 125, 8000: 200}  # lot size -> sample (illustrative)
 

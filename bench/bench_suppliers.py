@@ -71,22 +71,21 @@ def main(argv: list[str]) -> None:
         print(json.dumps(one_fit(*map(int, argv[1:4]))))
         return
     shape = [int(a) for a in argv[:3]] or [200, 8, 30]
-    rows = []
-    with tempfile.TemporaryDirectory() as cache:
-        env = {**os.environ, "QUALBAYES_JAX_CACHE": cache, "PYTHONPATH": str(ROOT)}
-        for label in ("cold", "warm"):
-            out = subprocess.run([sys.executable, __file__, "--child", *map(str, shape)],
-                                 env=env, check=True, capture_output=True, text=True)
-            rows.append((label, json.loads(out.stdout.strip().splitlines()[-1])))
     s, q, lt = shape
     print(f"suppliers x quarters x lots = {s} x {q} x {lt} ({s * q * lt:,} lots)\n")
     print("| run | wall s | gate | min bulk ESS | min tail ESS | max R-hat | divergences "
           "| attempts | gated parameters |")
-    print("| --- | ---: | --- | ---: | ---: | ---: | ---: | ---: | ---: |")
-    for label, r in rows:
-        print(f"| {label} | {r['seconds']:.1f} | {'passed' if r['passed'] else 'FAILED'} | "
-              f"{r['min_ess_bulk']:.0f} | {r['min_ess_tail']:.0f} | {r['max_rhat']:.4f} | "
-              f"{r['divergences']} | {r['attempts']} | {r['parameters']:,} |")
+    print("| --- | ---: | --- | ---: | ---: | ---: | ---: | ---: | ---: |", flush=True)
+    with tempfile.TemporaryDirectory() as cache:
+        env = {**os.environ, "QUALBAYES_JAX_CACHE": cache, "PYTHONPATH": str(ROOT)}
+        for label in ("cold", "warm"):  # each row printed as soon as its run ends
+            out = subprocess.run([sys.executable, __file__, "--child", *map(str, shape)],
+                                 env=env, check=True, capture_output=True, text=True)
+            r = json.loads(out.stdout.strip().splitlines()[-1])
+            print(f"| {label} | {r['seconds']:.1f} | {'passed' if r['passed'] else 'FAILED'} "
+                  f"| {r['min_ess_bulk']:.0f} | {r['min_ess_tail']:.0f} | "
+                  f"{r['max_rhat']:.4f} | {r['divergences']} | {r['attempts']} | "
+                  f"{r['parameters']:,} |", flush=True)
 
 
 if __name__ == "__main__":

@@ -97,7 +97,7 @@ def test_hyperprior_operating_characteristics_ci_sized():
           "| undecided or too close |")
     print("| ---: | ---: | ---: | ---: | ---: |")
     for r, c in oc.items():
-        print(f"| {100 * r:.2g}% | {per_rate} | {c['above limit']} | {c['within limit']} | "
+        print(f"| {100 * r:.3g}% | {per_rate} | {c['above limit']} | {c['within limit']} | "
               f"{c['undecided'] + c['too close to call']} |")
     assert _at_most(oc[0.005]["above limit"], per_rate, 0.05)   # within: rarely flagged
     assert _at_most(oc[0.02]["within limit"], per_rate, 0.05)   # above: rarely passed

@@ -15,7 +15,7 @@ error from :func:`qualbayes.mcse.mcse_mean`.
 >>> import numpy as np
 >>> theta = np.log(np.full((2, 8, 2), 0.01) / 0.99)
 >>> out = supplier_summaries(theta, np.array([0, 1]), 2, spec=0.02, confidence=0.95)
->>> out["prob_above"].tolist(), out["prob_worst"].sum()
+>>> out["prob_above"].tolist(), float(out["prob_worst"].sum())
 ([0.0, 0.0], 1.0)
 """
 
@@ -46,7 +46,9 @@ def supplier_summaries(theta: np.ndarray, cell_supplier: np.ndarray, n_suppliers
     rate = mu @ averaging(cell_supplier, n_suppliers)  # (chain, draw, suppliers)
     flat = rate.reshape(-1, n_suppliers)
     above = (rate > spec).astype(float)
-    worst = (rate == rate.max(axis=-1, keepdims=True)).astype(float)
+    # the highest rate of each draw (a tie, which continuous draws almost never give, goes
+    # to the first supplier, so the probabilities sum to 1)
+    worst = np.eye(n_suppliers)[rate.argmax(axis=-1)]
     worse, worse_mcse, latest = _latest_worse(mu, cell_supplier, n_suppliers)
     return {
         "rate_median": np.median(flat, axis=0),

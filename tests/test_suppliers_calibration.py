@@ -48,6 +48,7 @@ def _at_most(count: int, n: int, rate: float) -> bool:
     return count <= stats.binom.isf(0.001, n, rate)
 
 
+@pytest.mark.slow  # 16 suppliers x 8 quarters: about 200 s of NUTS under load
 def test_drifting_supplier_is_found_ci_sized():
     k = 8
     calls, _ = _calls(drift_rates(k, k), seed=21)

@@ -275,3 +275,17 @@ def test_several_files_on_the_command_line(tmp_path, capsys):
 def test_parse_source():
     assert parse_source("book.xlsx:Sheet 1") == ("book.xlsx", "Sheet 1")
     assert parse_source("book.csv") == ("book.csv", None)
+
+
+def test_pipeline_protects_every_input_file_sheet_names_included(tmp_path):
+    """Further exports and FILE:SHEET names reach the pipeline's input protection (checked
+    before any output target), so no input can be written over."""
+    import argparse
+
+    from qualbayes.commands.pipeline import input_paths
+
+    a, b = tmp_path / "a.xlsx", tmp_path / "b.csv"
+    a.write_bytes(b"PK")
+    b.write_text("x\n")
+    args = argparse.Namespace(file=f"{a}:Lots", more=[str(b), f"{tmp_path / 'gone.csv'}:S"])
+    assert input_paths(args) == [str(a), str(b)]

@@ -25,6 +25,7 @@ COMMAND_MODULES = (
     "qualbayes.commands.report",
     "qualbayes.commands.at_use",
     "qualbayes.commands.returns",
+    "qualbayes.commands.suppliers",
 )
 
 

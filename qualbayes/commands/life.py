@@ -4,6 +4,7 @@ requirement at the mission time?"""
 from __future__ import annotations
 
 from qualbayes.commands.common import HelpFormatter, add_input_options, add_output_options
+from qualbayes.commands.inputs import add_export_options, status_map
 from qualbayes.commands.prior_options import add_prior_options
 
 LIFE_COLUMNS_EXAMPLE = "time=Op Hours,status=Condition,unit=Tag No"
@@ -22,6 +23,7 @@ def register(sub) -> None:
                     "stated confidence.",
         formatter_class=HelpFormatter)
     add_input_options(p, LIFE_COLUMNS_EXAMPLE)
+    add_export_options(p, life=True)
     p.add_argument("--mission", required=True, help="mission time, in the units of the file")
     p.add_argument("--target", required=True,
                    help="reliability required at the mission time: 0.9 or 90%%")
@@ -68,29 +70,29 @@ def run(args) -> int:
     convert.max_rows(args.max_rows)
     base_prior = make_prior(args.shape_prior, args.blife_prior, args.reliability_prior)
     units = convert.units(args.units)
+    status = status_map(args)
     if args.new_units is not None and args.new_units < 1:
         raise OptionError(f"--new-units {args.new_units}: give a positive number of units")
 
     def compute() -> dict:
+        from qualbayes.commands.inputs import read_life_inputs, source_evidence  # noqa: PLC0415
         from qualbayes.commands.prior_options import (  # noqa: PLC0415
             life_prior,
             life_prior_evidence,
         )
-        from qualbayes.data.life import read_life  # noqa: PLC0415
         from qualbayes.evidence.life_record import life_record  # noqa: PLC0415
         from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
-        from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+        from qualbayes.provenance import command_line, versions  # noqa: PLC0415
 
         prior, setup = life_prior(args, base_prior)  # --earlier read after the target checks
-        data = read_life(args.file, sheet=args.sheet, columns=args.columns,
-                         max_rows=args.max_rows, units=units, groups=args.group)
+        data = read_life_inputs(args, units, status)  # FILE [MORE ...], --strict, --status
         stats = {g: st for g, (_, st) in group_data(data).items()}
         check_prior_use(data, stats, prior)  # refuse before the sampler starts
-        sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
         result = assess_life(data, mission, target, confidence, prior, seed=args.seed,
                              compare=args.compare, compare_models=args.compare_models,
                              check_fit=args.check_fit, new_units=args.new_units)
-        record = life_record(result, data, sha, command_line(args.argv), versions())
+        record = life_record(result, data, data.sha256, command_line(args.argv), versions())
+        source_evidence(record, data, ["group", "unit"])
         record.update(life_prior_evidence(args, result, data, prior, setup))
         return record
 
@@ -107,6 +109,7 @@ def _evidence(record: dict, args) -> dict:
     answer and, with a prior option, the prior figure; written as one group."""
     from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
     from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
+    from qualbayes.evidence.inputs_sheets import with_input_rows  # noqa: PLC0415
     from qualbayes.evidence.life_plots import (  # noqa: PLC0415
         draw_fit_check,
         draw_probability,
@@ -116,7 +119,7 @@ def _evidence(record: dict, args) -> dict:
     from qualbayes.evidence.life_record import life_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    files = {WORKBOOK: workbook_writer(life_sheets(record)),
+    files = {WORKBOOK: workbook_writer(with_input_rows(life_sheets(record), record)),
              RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
     q = record["question"]
     checked = any(g.get("fit_check") for g in record["groups"])

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from qualbayes.commands.common import HelpFormatter, add_input_options, add_output_options
+from qualbayes.commands.inputs import add_export_options
 from qualbayes.commands.prior_options import add_prior_options
 
 WORKBOOK = "lot_decisions.xlsx"
@@ -17,6 +18,7 @@ def register(sub) -> None:
                     "accept / reject / undecided at the stated confidence.",
         formatter_class=HelpFormatter)
     add_input_options(p)
+    add_export_options(p)
     p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
     p.add_argument("--prior", default=None,
                    help="uniform | jeffreys | beta:A,B | history (hierarchical over the "
@@ -48,22 +50,21 @@ def run(args) -> int:
 
     def compute() -> dict:
         from qualbayes.acceptance import assess_lots  # noqa: PLC0415
+        from qualbayes.commands.inputs import read_lot_inputs, source_evidence  # noqa: PLC0415
         from qualbayes.commands.prior_options import (  # noqa: PLC0415
             lot_prior,
             lot_prior_evidence,
         )
-        from qualbayes.data.lots import read_lots  # noqa: PLC0415
         from qualbayes.evidence.lots_record import lots_record  # noqa: PLC0415
         from qualbayes.evidence.numbers import rate_unit_of  # noqa: PLC0415
-        from qualbayes.provenance import command_line, sha256_file, versions  # noqa: PLC0415
+        from qualbayes.provenance import command_line, versions  # noqa: PLC0415
 
         prior, setup = lot_prior(args)  # --earlier is read here, after the target checks
-        data = read_lots(args.file, sheet=args.sheet, columns=args.columns,
-                         max_rows=args.max_rows)
-        sha = data.sha256 or sha256_file(args.file)  # the hash of the bytes parsed
+        data = read_lot_inputs(args)  # FILE [MORE ...], --strict; each file hashed once
         result = assess_lots(data, spec, confidence, prior, seed=args.seed,
                              **_lot_options(args, prior), check_prior_conflict=setup is not None)
-        record = lots_record(result, data, sha, command_line(args.argv), versions())
+        record = lots_record(result, data, data.sha256, command_line(args.argv), versions())
+        source_evidence(record, data, ["lot"])
         record.update(lot_prior_evidence(args, result, prior, setup, spec, confidence))
         record["question"]["rate_unit"] = rate_unit_of(args.spec)
         return record
@@ -106,10 +107,11 @@ def _evidence(record: dict, args) -> dict:
     prior figure (all rendered from the record; written as one group)."""
     from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
     from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
+    from qualbayes.evidence.inputs_sheets import with_input_rows  # noqa: PLC0415
     from qualbayes.evidence.lots_record import lots_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    files = {WORKBOOK: workbook_writer(lots_sheets(record)),
+    files = {WORKBOOK: workbook_writer(with_input_rows(lots_sheets(record), record)),
              RECORD: record_writer(record, draws=True)}  # rebuilds the report (figures)
     if used(args):
         files[FIGURE] = figure_file(record)

@@ -35,11 +35,17 @@ class Command:
 
 
 def input_paths(args) -> list:
-    """Every path the run reads: FILE, --earlier (when it is a file), --history, RECORD."""
+    """Every path the run reads: FILE and further exports (each may be written FILE:SHEET),
+    --earlier (when it is a file), --history, RECORD."""
+    names = [getattr(args, name, None) for name in ("file", "earlier", "history", "record")]
+    names += list(getattr(args, "more", None) or [])
     found = []
-    for name in ("file", "earlier", "history", "record"):
-        value = getattr(args, name, None)
-        if isinstance(value, str) and value and os.path.lexists(value):
+    for value in names:
+        if not isinstance(value, str) or not value:
+            continue
+        if not os.path.lexists(value) and ":" in value:
+            value = value.rsplit(":", 1)[0]  # FILE:SHEET (data/combine.py parse_source)
+        if value and os.path.lexists(value):
             found.append(value)
     return found
 

@@ -20,6 +20,50 @@ from qualbayes.errors import InputError, OptionError
 #: before keeping them), each cell normalised from at most 200 characters.
 HEADER_SEARCH_ROWS = 20
 
+#: Header spellings of ERP and quality-system exports, by column key, tried after the
+#: spellings each schema lists itself (so an existing file reads as before). English, German
+#: and French, as plants export them; each spelling is one key's only (tested).
+EXPORT_SPELLINGS: dict[str, tuple[str, ...]] = {
+    # incoming-inspection lots
+    "lot": ("Inspection lot", "Inspection lot no.", "Insp. lot", "Batch No.", "Batch Number",
+            "Prüflos", "Prüflosnummer", "Los", "Losnummer", "Charge", "Chargennummer",
+            "Lot de contrôle", "Numéro de lot", "N° de lot", "Lot n°"),
+    "inspected": ("Sample Qty", "Sample Quantity", "Inspected Qty", "Inspected Quantity",
+                  "Insp. Qty", "Qty Tested", "Tested Qty", "Stichprobenumfang",
+                  "Stichprobengröße", "Stichprobe", "Prüfmenge", "Geprüfte Menge",
+                  "Anzahl geprüft", "Taille de l'échantillon", "Taille échantillon",
+                  "Échantillon", "Quantité contrôlée", "Qté contrôlée"),
+    "defectives": ("Defective qty", "Defective Quantity", "Qty Defective", "Defective units",
+                   "No. defective", "Nonconforming Qty", "NC Qty", "Rejected Qty",
+                   "Reject Qty", "Fehlerhafte Teile", "Anzahl fehlerhaft", "Fehlerhaft",
+                   "Ausschuss", "Ausschussmenge", "n.i.O.", "n.i.O. Teile",
+                   "Quantité défectueuse", "Qté défectueuse", "Défectueux",
+                   "Pièces défectueuses", "Non conformes", "Quantité non conforme", "Rebuts"),
+    "lot_size": ("Received Qty", "Receipt Qty", "GR Qty", "Delivery Qty", "Delivered Qty",
+                 "Losgröße", "Losumfang", "Liefermenge", "Eingangsmenge", "Taille du lot",
+                 "Quantité du lot", "Quantité reçue", "Qté reçue"),
+    "part": ("Material No.", "Material Number", "Item No.", "Item Number", "Article",
+             "Materialnummer", "Sachnummer", "Teilenummer", "Artikelnummer", "Référence",
+             "Numéro de pièce", "Code article"),
+    "supplier": ("Supplier No.", "Supplier Code", "Vendor No.", "Vendor Number", "Lieferant",
+                 "Lieferantenname", "Fournisseur", "Nom du fournisseur"),
+    "date": ("Insp. start date", "Inspection start date", "Inspection start", "Insp. date",
+             "GR Date", "Posting Date", "Datum", "Prüfdatum", "Prüfbeginn", "Eingangsdatum",
+             "Wareneingangsdatum", "Date de contrôle", "Date d'inspection",
+             "Date de réception"),
+    # life tests and field returns
+    "unit": ("Unit serial", "Seriennummer", "Prüfling", "Numéro de série", "N° de série",
+             "Éprouvette"),
+    "time": ("Operating time", "Hours run", "Test hours", "Cycles to failure", "Laufzeit",
+             "Betriebsstunden", "Zyklen", "Lastwechsel", "Laufleistung",
+             "Durée de fonctionnement", "Heures de fonctionnement", "Cycles à rupture",
+             "Kilométrage"),
+    "status": ("Failure status", "Zustand", "Ausfall", "Ergebnis", "Statut", "État",
+               "Défaillance", "Résultat"),
+    "group": ("Design rev", "Design rev.", "Revision level", "Gruppe", "Variante",
+              "Konstruktionsstand", "Groupe", "Révision", "Indice"),
+}
+
 
 @dataclass(frozen=True)
 class Column:
@@ -49,6 +93,20 @@ class Located:
     header_row: int
     columns: dict[str, tuple[int, str]]
     first_data: int  # index into table.rows
+    unused: tuple[str, ...] = ()  # headers of the header row that no key took
+
+
+def spellings(col: Column) -> tuple[str, ...]:
+    """Every spelling of a column: its schema's own, then the export spellings."""
+    return col.spellings + EXPORT_SPELLINGS.get(col.key, ())
+
+
+def unused_note(unused: tuple[str, ...]) -> list[str]:
+    """The note naming the columns of the file that were not read (empty when all were)."""
+    if not unused:
+        return []
+    return [f"columns not used: {', '.join(repr(h) for h in unused)} (name one with "
+            "--columns key=Header if it should be)"]
 
 
 def parse_mapping(text: str | None) -> dict[str, str]:
@@ -81,7 +139,10 @@ def locate(table: RawTable, schema: tuple[Column, ...],
         if not missing:
             _check_duplicate_headers(table, i, row, found)
             _check_shared_columns(table, i, found, mapping)
-            return Located(table.row_numbers[i], found, i + 1)
+            taken = {j for j, _ in found.values()}
+            unused = tuple(str(h).strip()[:60] for j, h in enumerate(row)
+                           if j not in taken and h is not None and str(h).strip())
+            return Located(table.row_numbers[i], found, i + 1, unused)
         if best is None or len(found) > len(best[1]):
             best = (i, found, missing)
     assert best is not None
@@ -101,7 +162,7 @@ def _match(row: list[object], schema: tuple[Column, ...], mapping: dict[str, str
     for col in schema:
         explicit = col.key in mapping
         targets = [normalise(mapping[col.key])] if explicit else [
-            normalise(s) for s in col.spellings]
+            normalise(s) for s in spellings(col)]
         for t in targets:
             if not t:
                 continue

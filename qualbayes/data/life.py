@@ -20,13 +20,23 @@ How a row is read (the optional interval columns are "last seen working" and "fo
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
-from qualbayes.data.columns import Column, cell, locate, number_style, parse_mapping
-from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
+from qualbayes.data.columns import (
+    Column,
+    cell,
+    locate,
+    number_style,
+    parse_mapping,
+    unused_note,
+)
+from qualbayes.data.notes import leave_out, skipped_note
+from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable
+from qualbayes.data.sheets import read_sheet
+from qualbayes.data.status import StatusMap
 from qualbayes.data.values import describe, is_blank, parse_real, parse_text
 from qualbayes.errors import InputError, OptionError
 
@@ -72,6 +82,11 @@ class LifeTable:
     notes: list[str]
     units: str = ""
     sha256: str = ""  # of exactly the bytes read ("" for a table built in memory)
+    #: rows left out because the unit has no result yet: {"row", "unit", "reason"}
+    skipped: list[dict] = field(default_factory=list)
+    unused_columns: tuple[str, ...] = ()  # headers in the file that were not read
+    #: with several input files: {"file", "sheet", "sha256", "header_row", "units"} each
+    sources: list[dict] = field(default_factory=list)
 
     @property
     def groups(self) -> list[str]:
@@ -104,23 +119,30 @@ def parse_status(value: object) -> str:
 
 def read_life(path, sheet: str | None = None, columns: str | dict | None = None,
               max_rows: int = DEFAULT_MAX_ROWS, units: str = "",
-              groups: list[str] | None = None) -> LifeTable:
+              groups: list[str] | None = None, strict: bool = False,
+              status: StatusMap | None = None) -> LifeTable:
     """Read and validate a life-data export; raises :class:`InputError` on the first fault.
 
-    ``groups`` keeps only the named groups (each must have units in the file).
+    ``groups`` keeps only the named groups (each must have units in the file). A unit whose
+    time and status are both blank has no result yet: it is left out and listed, or refused
+    when ``strict``. ``status`` reads the plant's own status words (every use is noted).
     """
-    table = read_table(path, sheet=sheet, max_rows=max_rows)
     mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
-    return validate_life(table, mapping, units=units, groups=groups)
+    table = read_sheet(path, LIFE_COLUMNS, mapping, sheet, max_rows)
+    return validate_life(table, mapping, units=units, groups=groups, strict=strict,
+                         status=status)
 
 
 def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units: str = "",
-                  groups: list[str] | None = None) -> LifeTable:
+                  groups: list[str] | None = None, strict: bool = False,
+                  status: StatusMap | None = None) -> LifeTable:
     loc = locate(table, LIFE_COLUMNS, mapping)
     headers = {k: v[1] for k, v in loc.columns.items()}
     style = number_style(table, loc, ("time", "seen_working", "found_failed"))
     has_group = "group" in loc.columns
     records = []
+    skipped: list[dict] = []
+    status_map = status if status is not None else StatusMap({})
     seen: dict[tuple[str, str], int] = {}
     for i in range(loc.first_data, len(table.rows)):
         rownum = table.row_numbers[i]
@@ -156,22 +178,29 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
                        f"{rownum})", "unit")
         seen[(group, unit)] = rownum
         status_raw = get("status")
+        if is_blank(status_raw) and all(is_blank(get(k)) for k in (
+                "time", "seen_working", "found_failed")):
+            leave_out(skipped, strict=strict, fail=fail, label="unit", ident=unit, row=rownum,
+                      blank="time and status blank", column="status")
+            continue
         if is_blank(status_raw):
             raise fail(f"status of unit {unit!r} is empty; write F (failed) or S "
                        "(suspended, still running)", "status")
         try:
-            status = parse_status(status_raw)
+            state = status_map.read(status_raw, rownum) or parse_status(status_raw)
         except ValueError as err:
             raise fail(str(err), "status") from None
         times = {k: _time(get(k), style, fail, k, allow_zero=k == "seen_working")
                  for k in ("time", "seen_working", "found_failed")}
-        kind, lower, upper = _classify(status, times, fail)
+        kind, lower, upper = _classify(state, times, fail)
         records.append((unit, group, kind, lower, upper, rownum))
     if not records:
-        raise table.error("no units found below the header", row=loc.header_row)
+        what = f" ({len(skipped)} without a result left out)" if skipped else ""
+        raise table.error(f"no units found below the header{what}", row=loc.header_row)
     frame = pd.DataFrame.from_records(
         records, columns=["unit", "group", "kind", "lower", "upper", "row"])
-    notes = list(table.notes) + ([style.note()] if style.note() else [])
+    notes = [*table.notes, *([style.note()] if style.note() else []), *unused_note(loc.unused),
+             *status_map.notes(), *skipped_note(skipped, "unit")]
     if groups:
         present = set(frame["group"])
         for g in groups:
@@ -182,7 +211,7 @@ def validate_life(table: RawTable, mapping: dict[str, str] | None = None, units:
                                  f"present: {names})", file=table.file, sheet=table.sheet)
         frame = frame[frame["group"].isin(groups)].reset_index(drop=True)
     return LifeTable(frame, table.file, table.sheet, loc.header_row, headers, notes, units,
-                     table.sha256)
+                     table.sha256, skipped, loc.unused)
 
 
 def _time(raw, style, fail, key: str, allow_zero: bool) -> float | None:

@@ -2,12 +2,21 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import pandas as pd
 
-from qualbayes.data.columns import Column, cell, locate, number_style, parse_mapping
-from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable, read_table
+from qualbayes.data.columns import (
+    Column,
+    cell,
+    locate,
+    number_style,
+    parse_mapping,
+    unused_note,
+)
+from qualbayes.data.notes import leave_out, skipped_note
+from qualbayes.data.readers import DEFAULT_MAX_ROWS, RawTable
+from qualbayes.data.sheets import read_sheet
 from qualbayes.data.values import describe, is_blank, parse_count, parse_date, parse_text
 from qualbayes.errors import InputError
 
@@ -41,21 +50,32 @@ class LotTable:
     headers: dict[str, str]  # key -> header as written in the file
     notes: list[str]
     sha256: str = ""  # of exactly the bytes read ("" for a table built in memory)
+    #: rows left out because the lot has no result yet: {"row", "lot", "reason"}
+    skipped: list[dict] = field(default_factory=list)
+    unused_columns: tuple[str, ...] = ()  # headers in the file that were not read
+    #: with several input files: {"file", "sheet", "sha256", "header_row", "lots"} each
+    sources: list[dict] = field(default_factory=list)
 
 
 def read_lots(path, sheet: str | None = None, columns: str | dict | None = None,
-              max_rows: int = DEFAULT_MAX_ROWS) -> LotTable:
-    """Read and validate an inspection export; raises :class:`InputError` on the first fault."""
-    table = read_table(path, sheet=sheet, max_rows=max_rows)
+              max_rows: int = DEFAULT_MAX_ROWS, strict: bool = False) -> LotTable:
+    """Read and validate an inspection export; raises :class:`InputError` on the first fault.
+
+    A lot whose defectives cell is blank has no result yet (an open inspection lot): it is
+    left out and listed in ``skipped`` and the notes, or refused when ``strict``. Defectives
+    given with units inspected blank is an error (a count without its sample)."""
     mapping = parse_mapping(columns) if isinstance(columns, str | type(None)) else dict(columns)
-    return validate_lots(table, mapping)
+    table = read_sheet(path, LOT_COLUMNS, mapping, sheet, max_rows)
+    return validate_lots(table, mapping, strict=strict)
 
 
-def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> LotTable:
+def validate_lots(table: RawTable, mapping: dict[str, str] | None = None,
+                  strict: bool = False) -> LotTable:
     loc = locate(table, LOT_COLUMNS, mapping)
     headers = {k: v[1] for k, v in loc.columns.items()}
     style = number_style(table, loc, ("inspected", "defectives", "lot_size"))
     records = []
+    skipped: list[dict] = []
     seen: dict[str, int] = {}
     for i in range(loc.first_data, len(table.rows)):
         rownum = table.row_numbers[i]
@@ -79,6 +99,10 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
         if lot in seen:
             raise fail(f"lot id {lot!r} appears twice (rows {seen[lot]} and {rownum})", "lot")
         seen[lot] = rownum
+        if is_blank(get("defectives")):  # an open lot: sampled, perhaps, but no result yet
+            leave_out(skipped, strict=strict, fail=fail, label="lot", ident=lot, row=rownum,
+                      blank="defectives blank", column="defectives")
+            continue
         counts = {}
         for key in ("inspected", "defectives", "lot_size"):
             raw = get(key)
@@ -112,15 +136,17 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None) -> Lot
                 raise fail(str(err), "date") from None
         records.append((lot, part, supplier, date, big_n, n, x, rownum))
     if not records:
-        raise table.error("no lots found below the header", row=loc.header_row)
+        what = f" ({len(skipped)} open lots left out)" if skipped else ""
+        raise table.error(f"no lots found below the header{what}", row=loc.header_row)
     _refuse_arithmetic_total(table, records, headers)
-    notes = list(table.notes) + ([style.note()] if style.note() else [])
+    notes = [*table.notes, *([style.note()] if style.note() else []), *unused_note(loc.unused),
+             *skipped_note(skipped, "lot")]
     frame = pd.DataFrame.from_records(
         records, columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
                           "defectives", "row"])
     frame["lot_size"] = frame["lot_size"].astype("Int64")
     return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes,
-                    table.sha256)
+                    table.sha256, skipped, loc.unused)
 
 
 #: Lot ids that label a summary row rather than a lot, in the languages of plant exports

@@ -55,8 +55,9 @@ class RawTable:
 
 
 def read_table(path: str | os.PathLike, sheet: str | None = None,
-               max_rows: int = DEFAULT_MAX_ROWS) -> RawTable:
-    """Read one sheet of an xlsx/xlsm file or a csv/txt file."""
+               max_rows: int = DEFAULT_MAX_ROWS, pick_sheet=None) -> RawTable:
+    """Read one sheet of an xlsx/xlsm file or a csv/txt file. ``pick_sheet(workbook, file)``
+    chooses the worksheet when no sheet is named (default: the first visible one)."""
     if isinstance(max_rows, bool) or not isinstance(max_rows, int) or max_rows < 1:
         raise OptionError(f"--max-rows {max_rows!r}: give a whole number of at least 1")
     p = Path(path)
@@ -68,7 +69,7 @@ def read_table(path: str | os.PathLike, sheet: str | None = None,
     if head.startswith(b"PK"):
         if sheet is None and suffix in (".csv", ".txt"):
             raise InputError("the file is named .csv but is a zip/xlsx file", file=name)
-        table = _read_xlsx(io.BytesIO(data), name, sheet, max_rows)
+        table = _read_xlsx(io.BytesIO(data), name, sheet, max_rows, pick_sheet)
     else:
         if suffix in (".xlsx", ".xlsm"):
             raise InputError("not a valid xlsx file (it is not a zip archive; truncated or "
@@ -183,7 +184,9 @@ def _is_entity_error(err: BaseException | None) -> bool:
     return False
 
 
-def _pick_sheet(wb, name: str, sheet: str | None):
+def _pick_sheet(wb, name: str, sheet: str | None, pick_sheet=None):
+    if sheet is None and pick_sheet is not None:
+        return pick_sheet(wb, name)
     if sheet is not None:
         if sheet not in wb.sheetnames:
             raise InputError(f"no sheet named {sheet!r}; the sheets are "
@@ -275,13 +278,14 @@ def _values(cells: list[dict]) -> list[object]:
     return values
 
 
-def _read_xlsx(p, name: str, sheet: str | None, max_rows: int) -> RawTable:
+def _read_xlsx(p, name: str, sheet: str | None, max_rows: int,
+               pick_sheet=None) -> RawTable:
     _check_zip(p, name)
     wb = _open_workbook(p, name, data_only=True)
     title: str | None = None
     progress = [0]
     try:
-        ws = _pick_sheet(wb, name, sheet)
+        ws = _pick_sheet(wb, name, sheet, pick_sheet)
         title = ws.title
         rows: list[list[object]] = []
         numbers: list[int] = []

@@ -119,7 +119,8 @@ def life_text(record: dict) -> str:
         for n in g["notes"]:
             detail.append(f"[{g['group']}] {n}")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
-    tail = [f"decisions: {counts}", *record["notes"], NEXT_STEP, CAUTION]
+    tail = [f"decisions: {counts}", *record["notes"], *record["input"]["notes"], NEXT_STEP,
+            CAUTION]
     head += prior_lines(record)
     detail += sensitivity_lines(record)
     more = extras_lines(record)
@@ -164,7 +165,8 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
         sheets["Inputs as read"] = pd.DataFrame({
             "spreadsheet row": f["row"], "unit": f["unit"], "group": f["group"],
             "kind": f["kind"], "lower time": f["lower"],
-            "upper time": f["upper"].where(f["upper"] != float("inf"), None)})
+            "upper time": f["upper"].where(f["upper"] != float("inf"), None),
+            "source": f["source"] if "source" in f else data.file})
     plot_rows = [["group", "time", "adjusted rank", "median rank (Bernard)", "plotted as"]]
     curve_rows = [["group", "time", "R median", "R band low", "R band high"]]
     for g in record["groups"]:
@@ -198,7 +200,7 @@ def life_sheets(record: dict, data: LifeTable | None = None) -> dict:
         diag += cross_check.sheet_rows(g["group"], d)
     cautions = [[record["caution"]], ["Standards to defer to:"]] + [
         [s_] for s_ in record["standards"]]
-    cautions += [[n] for n in record["notes"]]
+    cautions += [[n] for n in record["notes"] + record["input"]["notes"]]
     cautions += [[f"[{g['group']}] {n}"] for g in record["groups"] for n in g["notes"]]
     prov = [["input file", record["input"]["file"]], ["sheet", record["input"]["sheet"]],
             ["SHA-256", record["input"]["sha256"]], ["header row", record["input"]["header_row"]],

@@ -153,7 +153,7 @@ def lots_text(record: dict) -> str:
                         f"{probability(nl['prob_within_spec'])} (MCSE "
                         f"{probability(nl['prob_within_spec_mcse'])}); mean {pct(nl['mean'])}"
                         + (f" ({nl['mean_note']})" if nl["mean"] > nl["upper_bound"] else ""))
-    tail += record["notes"]
+    tail += record["notes"] + record["input"]["notes"]
     tail += [NEXT_STEP, CAUTION]
     head += prior_lines(record)
     table = [text_table(headers, rows, "llrrrlrr" + ("r" if sampled else "") + "lrll"
@@ -186,7 +186,8 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
     inputs = pd.DataFrame([{
         "spreadsheet row": r["row"], "lot": r["lot"], "part": r["part"],
         "supplier": r["supplier"], "date": r["date"], "lot size": r["lot_size"],
-        "inspected": r["inspected"], "defectives": r["defectives"]} for r in record["lots"]])
+        "inspected": r["inspected"], "defectives": r["defectives"],
+        "source": r.get("source", record["input"]["file"])} for r in record["lots"]])
     model = [["question", q["asked"]], ["spec limit", q["spec"]],
              ["confidence", q["confidence"]], ["interval", q["interval"]],
              ["upper bound", q["upper_bound"]], ["model", record["model"]],
@@ -216,7 +217,7 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
         diag += cross_check.sheet_rows(part, d)
     cautions = [[record["caution"]], ["Standards to defer to:"]] + [[s] for s in
                                                                       record["standards"]]
-    cautions += [[n] for n in record["notes"]]
+    cautions += [[n] for n in record["notes"] + record["input"]["notes"]]
     prov = [["input file", record["input"]["file"]], ["sheet", record["input"]["sheet"]],
             ["SHA-256", record["input"]["sha256"]], ["header row", record["input"]["header_row"]],
             ["rows read", record["input"]["rows_read"]], ["command", record["command"]]]

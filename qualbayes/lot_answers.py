@@ -111,8 +111,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 a0, b0, x, n, rem, size, spec, confidence, basis)
         if rem is not None:
             cols["remaining_units"][j] = rem
-            med, med_exact = mixtures.betabinom_quantile(0.5, rem, alpha, beta)
-            up, up_exact = mixtures.betabinom_quantile(confidence, rem, alpha, beta)
+            (med, med_exact), (up, up_exact) = mixtures.betabinom_quantiles(
+                (0.5, confidence), rem, alpha, beta)
             cols["remaining_defectives_median"][j] = med
             cols["remaining_defectives_upper"][j] = up
             approx[j] = approx[j] or not (med_exact and up_exact)

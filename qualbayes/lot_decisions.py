@@ -62,7 +62,8 @@ def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
     ratio = ((remaining - j) / (j + 1.0)) * ((a + j) / (b + remaining - j - 1.0))
     if log0.min() > -600.0:  # products of ratios stay within float range: no logarithms
         return np.exp(log0[:, 0]) * (1.0 + np.cumprod(ratio, axis=1).sum(axis=1))
-    return np.exp(log0[:, 0]) * (1.0 + np.exp(np.cumsum(np.log(ratio), axis=1)).sum(axis=1))
+    logpmf = log0 + np.cumsum(np.log(ratio), axis=1)
+    return np.exp(log0[:, 0]) + np.exp(logpmf).sum(axis=1)
 
 
 def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basis: str,

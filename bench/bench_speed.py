@@ -106,14 +106,14 @@ def measure(case: str, cache: str, tmp: Path) -> dict:
 def main(cases: list[str]) -> None:
     tmp = Path(tempfile.mkdtemp(prefix="qualbayes-speed-"))
     cache = tempfile.mkdtemp(prefix="qualbayes-speed-cache-")
-    rows = [measure(c, cache, tmp) for c in cases]
     print("| case | fit (warm) | whole command | command / fit | peak memory | min bulk ESS"
           " | gate | exit |")
     print("| --- | --- | --- | --- | --- | --- | --- | --- |")
-    for r in rows:
+    for case in cases:  # each row as soon as it is measured
+        r = measure(case, cache, tmp)
         print(f"| {r['case']} | {r['fit']:.1f} s | {r['wall']:.1f} s | "
               f"{r['wall'] / r['fit']:.1f}x | {r['peak_mb']:.0f} MB | {r['ess']:.0f} | "
-              f"{'passed' if r['passed'] else 'FAILED'} | {r['rc']} |")
+              f"{'passed' if r['passed'] else 'FAILED'} | {r['rc']} |", flush=True)
     if "--cold" in sys.argv:
         path = tmp / "cold-1000.csv"
         write_case(path, 1000, 1)

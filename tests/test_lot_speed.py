@@ -55,3 +55,26 @@ def test_per_part_sampler_matches_quadrature_within_monte_carlo_error():
             m = float(np.sum(g.weight * exact))
             sd = float(np.sqrt(np.sum(g.weight * (exact - m) ** 2)))
             assert abs(values.mean() - m) <= 4 * sd / np.sqrt(ess) + 0.01 * sd
+
+
+def test_answers_reusing_known_probabilities_equal_a_fresh_computation():
+    import pandas as pd
+
+    from qualbayes.lot_answers import answer_lots
+
+    rng = np.random.default_rng(3)
+    k = 300
+    n = rng.choice([50, 80, 125, 200], size=k)
+    frame = pd.DataFrame({"defectives": rng.binomial(n, 0.01).astype(float),
+                          "inspected": n.astype(float),
+                          "lot_size": pd.array(rng.choice([800, 2000, None], size=k),
+                                               dtype="Int64")})
+    frame["decision_basis"] = np.where(frame["lot_size"].notna(), "lot", "process")
+    mu = rng.beta(20, 2000, 2000)
+    kappa = np.exp(rng.normal(np.log(300), 0.5, 2000))
+    a0, b0 = mu * kappa, (1 - mu) * kappa
+    known = answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False)
+    fresh = answer_lots(frame, a0, b0, 4, 0.01, 0.95)
+    reused = answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known)
+    for column, values in fresh.items():
+        assert pd.Series(list(values)).equals(pd.Series(list(reused[column]))), column

@@ -10,7 +10,7 @@ from qualbayes.models import mixtures
 
 
 def test_shared_quantile_sum_equals_separate_quantiles_and_scipy():
-    # reference: scipy.stats.betabinom (docs/references.md, reference libraries)
+    # reference: scipy.stats.betabinom (docs/references.md, "Reference libraries")
     rng = np.random.default_rng(7)
     a, b = rng.uniform(1, 5, 400), rng.uniform(100, 900, 400)
     for rem in (1, 37, 1875, 4700):

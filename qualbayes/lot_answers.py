@@ -69,17 +69,25 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 
 
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
-                confidence: float, full: bool = True) -> dict[str, object]:
+                confidence: float, full: bool = True,
+                known: dict | None = None) -> dict[str, object]:
     """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
-    only P, its MCSE and the decision (enough to see whether more draws are needed)."""
+    only P, its MCSE and the decision (enough to see whether more draws are needed).
+    ``known``: the ``full=False`` answers of the same lots from the same draws, reused
+    instead of summing P over every draw again."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}
     approx: list[bool] = [False] * k
     tail = (1.0 - confidence) / 2.0
+    if known is not None:
+        first = np.unique(index, return_index=True)[1]  # one lot of each combination
+        for c in ("prob_within_spec", "prob_within_spec_mcse", "decision", "too_close"):
+            cols[c] = list(np.asarray(known[c], dtype=object)[first])
+        approx = [bool(v) for v in np.asarray(known["_approximate"])[first]]
     for basis in (LOT, PROCESS):
         sel = [j for j, c in enumerate(combos) if c[4] == basis]
-        if not sel:
+        if not sel or known is not None:
             continue
         sub = [(combos[j][0], combos[j][1], combos[j][2], combos[j][3]) for j in sel]
         prob, err, exact = probabilities(a0, b0, chains, sub, spec, basis)
@@ -111,8 +119,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 a0, b0, x, n, rem, size, spec, confidence, basis)
         if rem is not None:
             cols["remaining_units"][j] = rem
-            med, med_exact = mixtures.betabinom_quantile(0.5, rem, alpha, beta)
-            up, up_exact = mixtures.betabinom_quantile(confidence, rem, alpha, beta)
+            (med, med_exact), (up, up_exact) = mixtures.betabinom_quantiles(
+                (0.5, confidence), rem, alpha, beta)
             cols["remaining_defectives_median"][j] = med
             cols["remaining_defectives_upper"][j] = up
             approx[j] = approx[j] or not (med_exact and up_exact)

@@ -59,10 +59,11 @@ def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
     a = np.asarray(alpha, float)[:, None]
     b = np.asarray(beta, float)[:, None]
     log0 = special.betaln(a, b + remaining) - special.betaln(a, b)
-    steps = (np.log(remaining - j) + np.log(a + j) - np.log(j + 1.0)
-             - np.log(b + remaining - j - 1.0))
-    logpmf = np.concatenate([log0, log0 + np.cumsum(steps, axis=1)], axis=1)
-    return np.exp(logpmf).sum(axis=1)
+    ratio = ((remaining - j) / (j + 1.0)) * ((a + j) / (b + remaining - j - 1.0))
+    if log0.min() > -600.0:  # products of ratios stay within float range: no logarithms
+        return np.exp(log0[:, 0]) * (1.0 + np.cumprod(ratio, axis=1).sum(axis=1))
+    logpmf = log0 + np.cumsum(np.log(ratio), axis=1)
+    return np.exp(log0[:, 0]) + np.exp(logpmf).sum(axis=1)
 
 
 def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basis: str,

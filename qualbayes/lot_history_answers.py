@@ -46,7 +46,8 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         fit = more_draws(fit, data, names, hyper, runs)
     checks = cross_check.lot_groups(fit, data, names, spec, hyper)  # quadrature vs NUTS
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
-             _answer_groups(frame, groups, fit, spec, confidence, outliers).items()}
+             _answer_groups(frame, groups, fit, spec, confidence, outliers,
+                            known=parts).items()}
     out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
     out["decision_basis"] = list(frame["decision_basis"])  # kept for lots without a verdict
     diagnostics, next_lot, draws = {}, {}, {}
@@ -119,8 +120,10 @@ def _outliers(frame, groups, hyper) -> dict[str, np.ndarray]:
     return out
 
 
-def _answer_groups(frame, groups, fit, spec, confidence, outliers, full=True) -> dict:
-    """label -> (answers of the group's lots, converged)."""
+def _answer_groups(frame, groups, fit, spec, confidence, outliers, full=True,
+                   known=None) -> dict:
+    """label -> (answers of the group's lots, converged); ``known``: the same call's
+    ``full=False`` answers from the same draws (P is not summed again)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
     chains = fit.draws["mu"].shape[0]
@@ -132,7 +135,7 @@ def _answer_groups(frame, groups, fit, spec, confidence, outliers, full=True) ->
         mu = fit.draws["mu"][:, :, j].reshape(-1)
         kappa = fit.draws["kappa"][:, :, j].reshape(-1)
         ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, chains, spec,
-                          confidence, full)
+                          confidence, full, known=None if known is None else known[label][0])
         ans["outlier_p"] = outliers[label]
         ans["outlier"] = list(outliers[label] < OUTLIER_LEVEL)
         out[label] = (ans, True)

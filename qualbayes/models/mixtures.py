@@ -120,47 +120,83 @@ def betabinom_quantile(q: float, remaining: int, alpha: np.ndarray,
     r"""The q-quantile of the number of defectives among ``remaining`` units, mixed over
     draws, and whether it is exact.
 
-    Exact: the smallest k whose mixture CDF reaches q, summing
-    :math:`\binom{R}{k} B(k+\alpha_d, R-k+\beta_d)/B(\alpha_d, \beta_d)` in blocks. When
-    that would take more than MAX_PMF_TERMS terms (a lot of millions of units, or many
+    Exact: the smallest k whose mixture CDF reaches q, summing the probabilities
+    :math:`\binom{R}{k} B(k+\alpha_d, R-k+\beta_d)/B(\alpha_d, \beta_d)` in blocks, by the
+    ratio of successive terms (one pair of log-beta functions per draw, then logarithms).
+    When that would take more than MAX_PMF_TERMS terms (a lot of millions of units, or many
     draws), the continuous limit :math:`\lceil R\,p_q \rceil` is returned, :math:`p_q` the
     mixture's q-quantile of the rate: D = R p + O(sqrt(R p)) binomial noise, which shifts
     the quantile by about :math:`\tfrac{z}{2}\sqrt{(\alpha+\beta)\,p(1-p)}` units, a few
     times the square root of the defectives found (checked in the tests).
     """
+    return betabinom_quantiles((q,), remaining, alpha, beta)[0]
+
+
+def betabinom_quantiles(qs, remaining: int, alpha: np.ndarray,
+                        beta: np.ndarray) -> list[tuple[int, bool]]:
+    """:func:`betabinom_quantile` at several levels ``qs`` from one shared sum of the
+    mixture's probabilities (the median and the one-sided bound of a lot in one pass)."""
     if remaining <= 0:
-        return 0, True
+        return [(0, True) for _ in qs]
     a = np.atleast_1d(np.asarray(alpha, float))
     b = np.atleast_1d(np.asarray(beta, float))
     k_limit = max(16, MAX_PMF_TERMS // a.size)
-    p_q = ppf(q, a, b)
-    continuous = min(int(remaining), int(np.ceil(remaining * p_q - 1e-9)))
-    if continuous > 2 * k_limit:
-        return continuous, False
-    block = min(max(16, _BLOCK_TERMS // a.size), 2 * max(16, continuous) + 16)
+    # Markov's inequality bounds the rate's q-quantile by mean / (1 - q): when even that
+    # many defectives fit the exact sum, the continuous value is not needed to decide
+    top = max(qs)
+    if remaining * mean(a, b) / max(1.0 - top, 1e-300) > 2 * k_limit:
+        continuous = [min(int(remaining), int(np.ceil(remaining * ppf(q, a, b) - 1e-9)))
+                      for q in qs]
+        if any(c > 2 * k_limit for c in continuous):
+            if len(qs) > 1:
+                return [betabinom_quantile(q, remaining, a, b) for q in qs]
+            return [(continuous[0], False)]
+    else:
+        continuous = None
+    out: dict[int, tuple[int, bool]] = {}
+    block = min(max(16, _BLOCK_TERMS // a.size), 2 * max(16, int(remaining * mean(a, b)))
+                + 16)
     total = 0.0
     k0 = 0
+    log_pmf = special.betaln(a, b + remaining) - special.betaln(a, b)  # log pmf(0) per draw
     while k0 <= min(remaining, k_limit):
         k1 = min(k0 + block, remaining + 1)
-        pmf = _pmf_block(k0, k1, remaining, a, b).mean(axis=0)
-        cum = total + np.cumsum(pmf)
-        hit = np.flatnonzero(cum >= q - 1e-12)
-        if hit.size:
-            return k0 + int(hit[0]), True
+        logs, log_pmf = _log_pmf_block(k0, k1, remaining, a, b, log_pmf)
+        cum = total + np.cumsum(np.exp(logs).mean(axis=0))
+        for i, q in enumerate(qs):
+            if i not in out:
+                hit = np.flatnonzero(cum >= q - 1e-12)
+                if hit.size:
+                    out[i] = (k0 + int(hit[0]), True)
+        if len(out) == len(qs):
+            return [out[i] for i in range(len(qs))]
         total = float(cum[-1])
         k0 = k1
         block = min(2 * block, max(16, _BLOCK_TERMS // a.size))
-    if k0 > remaining:
-        return int(remaining), True
-    return continuous, False
+    for i, q in enumerate(qs):
+        if i not in out:
+            if k0 > remaining:
+                out[i] = (int(remaining), True)
+            else:
+                c = (continuous[i] if continuous is not None else
+                     min(int(remaining), int(np.ceil(remaining * ppf(q, a, b) - 1e-9))))
+                out[i] = (c, False)
+    return [out[i] for i in range(len(qs))]
 
 
-def _pmf_block(k0: int, k1: int, remaining: int, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def _log_pmf_block(k0: int, k1: int, remaining: int, a: np.ndarray, b: np.ndarray,
+                   log_first: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """log pmf at k = k0..k1-1 per draw, shape (draws, k1 - k0), from log pmf(k0) by
+    pmf(k + 1) / pmf(k) = (R - k)(alpha + k) / ((k + 1)(beta + R - k - 1)); also log
+    pmf(k1) (the start of the next block; -inf past R)."""
     k = np.arange(k0, k1, dtype=float)[None, :]
-    log_choose = (special.gammaln(remaining + 1.0) - special.gammaln(k + 1)
-                  - special.gammaln(remaining - k + 1))
-    return np.exp(log_choose + special.betaln(k + a[:, None], remaining - k + b[:, None])
-                  - special.betaln(a, b)[:, None])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        steps = (np.log((remaining - k) / (k + 1.0))
+                 + np.log((a[:, None] + k) / (b[:, None] + remaining - k - 1.0)))
+    steps = np.where(k < remaining, steps, -np.inf)
+    cum = log_first[:, None] + np.cumsum(steps, axis=1)
+    logs = np.concatenate([log_first[:, None], cum[:, :-1]], axis=1)
+    return logs, cum[:, -1]
 
 
 def betabinom_ppf(q: float, remaining: int, alpha: np.ndarray, beta: np.ndarray) -> int:

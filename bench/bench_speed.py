@@ -1,0 +1,131 @@
+"""Benchmark: the whole ``lots --prior history`` command against its fit (issue 18).
+
+Run: ``python bench/bench_speed.py [case ...]`` with cases such as ``lots:1000`` (1,000 lots
+of one part) or ``parts:100`` (100 parts x 20 lots); no case: the full table (20, 100, 1,000,
+10,000 and 200,000 lots of one part; 10, 100 and 1,000 parts x 20 lots), then a cold run
+(empty compilation cache) of the 1,000-lot command.
+
+Every measurement is a fresh process on a CSV written once per case (simulated lots: rates
+from Beta(mu kappa, (1 - mu) kappa) with mu = 1%, kappa = 300, sample sizes 50..315, lot
+sizes 800..5,000), with the same warm compilation cache (one unmeasured warm-up command
+first):
+
+* **fit**: ``fit_histories`` on the case's data, timed from the call to the gated result
+  (imports excluded), with its minimum bulk ESS;
+* **command**: ``python -m qualbayes lots FILE --spec 1% --prior history``, wall of the
+  whole process (interpreter start, imports, reading, fit, close-call draws, per-lot
+  answers, outlier check, printing), and its peak resident memory (getrusage).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parent.parent
+LOTS = (20, 100, 1000, 10_000, 200_000)
+PARTS = (10, 100, 1000)
+
+_WRAP = ("import atexit, resource, runpy, sys; atexit.register(lambda: print('MAXRSS', "
+         "resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, file=sys.stderr)); "
+         "sys.argv = ['qualbayes'] + sys.argv[1:]; runpy.run_module('qualbayes', "
+         "run_name='__main__')")
+
+
+def write_case(path: Path, lots: int, parts: int, seed: int = 1) -> None:
+    rng = np.random.default_rng(seed)
+    k = lots * parts
+    p = rng.beta(0.01 * 300, 0.99 * 300, size=k)
+    n = rng.choice([50, 80, 125, 200, 315], size=k)
+    x = rng.binomial(n, p)
+    size = rng.choice([800, 2000, 3200, 5000], size=k)
+    part = np.repeat([f"P{j}" for j in range(parts)], lots)
+    with path.open("w") as f:
+        f.write("Lot No.,Part Number,Lot Qty,Qty Inspected,Nonconforming\n")
+        for i in range(k):
+            f.write(f"L{i},{part[i]},{size[i]},{n[i]},{x[i]}\n")
+
+
+def fit_only(path: str) -> dict:
+    """In a fresh process: the fit of the case's data alone (imports excluded)."""
+    import pandas as pd
+
+    from qualbayes.inference import SamplerSettings, configure_process
+
+    configure_process()
+    from qualbayes.lot_history_answers import TARGET_ACCEPT
+    from qualbayes.models.lot_history import fit_histories
+
+    frame = pd.read_csv(path)
+    groups = [(g["Nonconforming"].to_numpy(float), g["Qty Inspected"].to_numpy(float))
+              for _, g in frame.groupby("Part Number", sort=False)]
+    t0 = time.perf_counter()
+    fit = fit_histories(groups, SamplerSettings(target_accept=TARGET_ACCEPT),
+                        names=[str(j) for j in range(len(groups))])
+    return {"fit": time.perf_counter() - t0, "ess": fit.gate.min_ess_bulk,
+            "passed": fit.gate.passed}
+
+
+def command(path: str, cache: str) -> dict:
+    env = dict(os.environ, QUALBAYES_JAX_CACHE=cache, CI="true", PYTHONPATH=str(ROOT))
+    t0 = time.perf_counter()
+    done = subprocess.run([sys.executable, "-c", _WRAP, "lots", path, "--spec", "1%",
+                           "--prior", "history"], env=env, capture_output=True, text=True,
+                          check=False)
+    wall = time.perf_counter() - t0
+    rss = [ln for ln in done.stderr.splitlines() if ln.startswith("MAXRSS")]
+    return {"wall": wall, "rc": done.returncode,
+            "peak_mb": int(rss[-1].split()[1]) / 1024 if rss else float("nan")}
+
+
+def fit_in_process(path: str, cache: str) -> dict:
+    env = dict(os.environ, QUALBAYES_JAX_CACHE=cache, CI="true", PYTHONPATH=str(ROOT))
+    out = subprocess.run([sys.executable, __file__, "--fit", path], env=env, check=True,
+                         capture_output=True, text=True).stdout
+    return json.loads(out.strip().splitlines()[-1])
+
+
+def measure(case: str, cache: str, tmp: Path) -> dict:
+    kind, count = case.split(":")
+    lots, parts = (int(count), 1) if kind == "lots" else (20, int(count))
+    path = tmp / f"{kind}-{count}.csv"
+    write_case(path, lots, parts)
+    command(str(path), cache)  # warm-up: this shape's compiled code in the cache
+    fit = fit_in_process(str(path), cache)
+    cmd = command(str(path), cache)
+    return {"case": f"{lots:,} lots x {parts:,} part(s)", **fit, **cmd}
+
+
+def main(cases: list[str]) -> None:
+    tmp = Path(tempfile.mkdtemp(prefix="qualbayes-speed-"))
+    cache = tempfile.mkdtemp(prefix="qualbayes-speed-cache-")
+    print("| case | fit (warm) | whole command | command / fit | peak memory | min bulk ESS"
+          " | gate | exit |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- |")
+    for case in cases:  # each row as soon as it is measured
+        r = measure(case, cache, tmp)
+        print(f"| {r['case']} | {r['fit']:.1f} s | {r['wall']:.1f} s | "
+              f"{r['wall'] / r['fit']:.1f}x | {r['peak_mb']:.0f} MB | {r['ess']:.0f} | "
+              f"{'passed' if r['passed'] else 'FAILED'} | {r['rc']} |", flush=True)
+    if "--cold" in sys.argv:
+        path = tmp / "cold-1000.csv"
+        write_case(path, 1000, 1)
+        cold = command(str(path), tempfile.mkdtemp(prefix="qualbayes-speed-cold-"))
+        print(f"\ncold cache, 1,000 lots x 1 part: whole command {cold['wall']:.1f} s, "
+              f"peak {cold['peak_mb']:.0f} MB, exit {cold['rc']}")
+    print(f"machine: {os.cpu_count()} cores; load average {os.getloadavg()[0]:.1f}")
+
+
+if __name__ == "__main__":
+    if len(sys.argv) == 3 and sys.argv[1] == "--fit":
+        print(json.dumps(fit_only(sys.argv[2])))
+    else:
+        chosen = [a for a in sys.argv[1:] if ":" in a]
+        main(chosen or [f"lots:{k}" for k in LOTS] + [f"parts:{k}" for k in PARTS])

@@ -71,3 +71,24 @@ def test_same_input_and_seed_same_numbers_history(tmp_path, capsys, examples):
     by_lot = {lot["lot"]: lot for lot in docs[0]["lots"]}
     assert by_lot["G-1108"]["decision"] == "reject"
     assert by_lot["A-1102"]["decision"] == "accept"
+
+
+def test_terminal_shows_at_most_its_row_cap_and_counts_the_rest(monkeypatch):
+    """A terminal of 200,000 rows helps nobody: the text shows TERMINAL_ROWS lots, says how
+    many more there are, and the decision counts still cover every lot."""
+    import pandas as pd
+
+    import qualbayes.evidence.lots_record as lr
+    from qualbayes.acceptance import assess_lots
+    from qualbayes.data.frames import lots_table
+    from qualbayes.evidence.lots_record import lots_record, lots_text
+
+    monkeypatch.setattr(lr, "TERMINAL_ROWS", 3)
+    frame = pd.DataFrame({"lot": [f"L{i}" for i in range(5)], "inspected": [50] * 5,
+                          "defectives": [0, 1, 0, 2, 0]})
+    table = lots_table(frame)
+    record = lots_record(assess_lots(table, 0.05, 0.9, "uniform"), table, "0" * 64, "cmd", {})
+    text = lots_text(record)
+    assert "L2" in text and "L3" not in text and "L4" not in text
+    assert "... and 2 more lots not shown here" in text
+    assert sum(record["decision_counts"].values()) == 5

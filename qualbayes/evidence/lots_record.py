@@ -90,6 +90,10 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
     })
 
 
+#: A terminal shows at most this many lot rows; the rest are counted and left to the files.
+TERMINAL_ROWS = 2000
+
+
 def lots_text(record: dict) -> str:
     q = record["question"]
     unit = q.get("rate_unit", "%")
@@ -125,7 +129,8 @@ def lots_text(record: dict) -> str:
     if finite:
         headers += ["units left", "defectives left"]
     rows = []
-    for lot in record["lots"]:
+    shown = record["lots"][:TERMINAL_ROWS]
+    for lot in shown:
         p = lot["prob_within_spec"]
         own = lot["own_data_decision"]
         row = [lot["lot"], lot["group"] if sampled else lot["part"], lot["inspected"],
@@ -156,8 +161,12 @@ def lots_text(record: dict) -> str:
     tail += record["notes"] + record["input"]["notes"]
     tail += [NEXT_STEP, CAUTION]
     head += prior_lines(record)
+    hidden = len(record["lots"]) - len(shown)
+    more = ([f"... and {count(hidden)} more lots not shown here (the decision counts below cover "
+             "every lot; every lot is in the workbook of --out, the report and --json)"]
+            if hidden else [])
     table = [text_table(headers, rows, "llrrrlrr" + ("r" if sampled else "") + "lrll"
-                        + "rr" * finite),
+                        + "rr" * finite), *more,
              lots_columns(finite, c), *sensitivity_lines(record)]
     return "\n".join([*head, "", *table, "", *tail])
 

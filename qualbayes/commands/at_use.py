@@ -149,9 +149,7 @@ def run(args) -> int:
 
     mission = convert.mission(args.mission)
     target = convert.probability(args.target, "--target")
-    confidence = convert.confidence(args.confidence)
-    convert.seed(args.seed)
-    convert.max_rows(args.max_rows)
+    confidence = convert.shared(args)
     units = convert.units(args.units)
     terms = stress_terms(args)
     prior = stress_prior(args)

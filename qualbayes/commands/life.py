@@ -65,9 +65,7 @@ def run(args) -> int:
 
     mission = convert.mission(args.mission)
     target = convert.probability(args.target, "--target")
-    confidence = convert.confidence(args.confidence)
-    convert.seed(args.seed)
-    convert.max_rows(args.max_rows)
+    confidence = convert.shared(args)
     base_prior = make_prior(args.shape_prior, args.blife_prior, args.reliability_prior)
     units = convert.units(args.units)
     status = status_map(args)

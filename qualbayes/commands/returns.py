@@ -57,9 +57,7 @@ def run(args) -> int:
     usage = convert.positive(args.usage, "--usage", "300")
     horizon = convert.horizon(args.horizon)
     spares = convert.spares(args.spares)
-    confidence = convert.confidence(args.confidence)
-    convert.seed(args.seed)
-    convert.max_rows(args.max_rows)
+    confidence = convert.shared(args)
     as_of = convert.as_of(args.as_of)
     accelerated = bool(args.stress_column or args.relation or args.use)
     terms = prior = None

@@ -49,9 +49,7 @@ def run(args) -> int:
     from qualbayes.commands.pipeline import Command, execute  # noqa: PLC0415
 
     spec = convert.rate(args.spec)
-    confidence = convert.confidence(args.confidence)
-    convert.seed(args.seed)
-    convert.max_rows(args.max_rows)
+    confidence = convert.shared(args)
 
     def compute() -> dict:
         from qualbayes.commands.inputs import read_lot_inputs, source_evidence  # noqa: PLC0415

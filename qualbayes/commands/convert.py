@@ -92,16 +92,16 @@ def max_rows(value) -> int:
     return value
 
 
-_NUM = r"[0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?"
-
-
-
 def shared(args) -> float:
     """The options every data command shares, checked before any work (confidence, seed,
     row limit); returns the confidence."""
     seed(args.seed)
     max_rows(args.max_rows)
     return confidence(args.confidence)
+
+
+_NUM = r"[0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?"
+
 
 def parse_number(text: str, option: str) -> float:
     t = str(text).strip()

@@ -7,9 +7,6 @@ written against the earlier layout and go through the same safe target checks an
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
-
-from qualbayes.caution import CAUTION
 
 
 class HelpFormatter(argparse.ArgumentDefaultsHelpFormatter):
@@ -55,75 +52,3 @@ def add_analyst_option(p: argparse.ArgumentParser) -> None:
     p.add_argument("--analyst", metavar="NAME",
                    help="who prepared the analysis: recorded in the run record and shown in "
                         "the report's sign-off block")
-
-
-def stamp(record: dict, args) -> dict:
-    """Add the run metadata (UTC time, report id, tool version, analyst) to ``record``."""
-    from qualbayes.evidence.report_common import run_metadata  # noqa: PLC0415
-
-    record.update(run_metadata(record, getattr(args, "analyst", None)))
-    return record
-
-
-def check_report(args) -> None:
-    """Refuse before any work if the --report folder holds an earlier report."""
-    if getattr(args, "report", None):
-        from qualbayes.evidence.report_folder import check_report_target  # noqa: PLC0415
-
-        check_report_target(args.report, args.force)
-
-
-def write_report(args, record: dict) -> str | None:
-    if not getattr(args, "report", None):
-        return None
-    from qualbayes import progress  # noqa: PLC0415
-    from qualbayes.evidence.report_folder import write_report_folder  # noqa: PLC0415
-
-    with progress.task("building the report (figures, HTML, PDF)"):
-        write_report_folder(args.report, record, force=args.force)
-    return f"report written: {args.report}/report.html, report.pdf"
-
-
-def print_text(text: str) -> None:
-    """Print to the terminal with control characters escaped."""
-    from qualbayes.evidence.terminal import print_text as _print  # noqa: PLC0415
-
-    _print(text)
-
-
-def caution_line() -> str:
-    return CAUTION
-
-
-def out_path(args, filename: str) -> Path | None:
-    return Path(args.out) / filename if getattr(args, "out", None) else None
-
-
-def emit(args, record: dict, text: str, written: list) -> None:
-    """Finish a run: write the report if asked, then print the JSON document (without the
-    posterior draws) or the text with the files written."""
-    from qualbayes.evidence.jsonout import dumps_for_terminal, without_draws  # noqa: PLC0415
-    from qualbayes.evidence.terminal import print_text as _print  # noqa: PLC0415
-
-    report_note = write_report(args, record)
-    if args.json:
-        _print(dumps_for_terminal(without_draws(record)), raw=True)
-        return
-    print_text(text)
-    if written:
-        print_text(f"evidence written: {', '.join(str(t) for t in written)}")
-    if report_note:
-        print_text(report_note)
-
-
-def out_targets(args, workbook: str, record: str, prior_figure: str) -> list:
-    """Files ``--out DIR`` will hold: the workbook, the run record, and the prior figure
-    when a prior option was used."""
-    from pathlib import Path  # noqa: PLC0415
-
-    from qualbayes.commands.prior_options import used  # noqa: PLC0415
-
-    if not args.out:
-        return []
-    figure = [Path(args.out) / prior_figure] if used(args) else []
-    return [Path(args.out) / workbook, Path(args.out) / record, *figure]

@@ -1,5 +1,5 @@
 """The convergence gate's cost: ArviZ called one scalar at a time (the earlier gate) against
-one vectorised numpy call per variable (qualbayes.diagnostics), for K parts with two
+one vectorised numpy call per variable (qualbayes.inference.diagnostics), for K parts with two
 parameters each, 4 chains x 1000 draws. Prints a markdown table.
 
     python bench/bench_gate.py [--parts 10 100 300]
@@ -30,7 +30,7 @@ def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--parts", type=int, nargs="+", default=[10, 100, 300])
     args = ap.parse_args()
-    from qualbayes.gate import diagnose_arrays
+    from qualbayes.inference.gate import diagnose_arrays
 
     rng = np.random.default_rng(0)
     print("| parts | ArviZ per scalar (CPU s) | numpy vectorised (CPU s) | speed-up |")

@@ -117,7 +117,7 @@ def run_case(name: str, path: Path) -> dict:
                          "--max-rows", "1000000", "--json"])
             outcome = f"exit {code}"
         else:
-            from qualbayes.data.lots import read_lots  # noqa: PLC0415
+            from qualbayes.data.lot_table import read_lots  # noqa: PLC0415
 
             rows = 1_000_000 if kind == "read-all" else 500_000
             table = read_lots(path, max_rows=rows)

@@ -43,7 +43,7 @@ def main() -> None:
     args = ap.parse_args()
     os.environ.setdefault("CI", "true")
 
-    from qualbayes.inference import SamplerSettings, configure_process
+    from qualbayes.inference.run import SamplerSettings, configure_process
     configure_process()
     cache = os.environ.get("QUALBAYES_JAX_CACHE",
                            str(Path.home() / ".cache" / "qualbayes" / "jax"))
@@ -101,7 +101,7 @@ def assess_timing(t, failed, mission: float, extra: list[str]) -> str:
     import pandas as pd
 
     from qualbayes.data.life import read_life
-    from qualbayes.life_analysis import assess_life
+    from qualbayes.life_question import assess_life
 
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "units.csv"

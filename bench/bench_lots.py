@@ -58,7 +58,7 @@ def stable(k: int = 200, seed: int = 9):
 
 
 def hierarchical(model_name: str, x, n) -> dict:
-    from qualbayes.inference import SamplerSettings, configure_process
+    from qualbayes.inference.run import SamplerSettings, configure_process
 
     configure_process()
     from qualbayes.models import lot_history
@@ -86,7 +86,7 @@ def fit_in_subprocess(model_name: str, cache: str, case: str = "sim") -> dict:  
 def lot_table(k: int, seed: int = 1):
     import pandas as pd
 
-    from qualbayes.data.lots import LotTable
+    from qualbayes.data.lot_table import LotTable
 
     x, n = simulate(k, seed=seed)
     rng = np.random.default_rng(seed + 1)
@@ -100,8 +100,8 @@ def lot_table(k: int, seed: int = 1):
 
 def question(k: int) -> dict:
     """Fit alone, then the whole question, in one warm process."""
-    from qualbayes.acceptance import assess_lots
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.run import SamplerSettings
+    from qualbayes.lot_question import assess_lots
     from qualbayes.models import lot_history
 
     table = lot_table(k)

@@ -90,7 +90,7 @@ def plans() -> list[tuple[str, float]]:
 
 def life() -> list[tuple[str, float]]:
     from qualbayes.data.life import read_life
-    from qualbayes.life_analysis import assess_life, group_data
+    from qualbayes.life_question import assess_life, group_data
     from qualbayes.models.weibull import make_prior
     from qualbayes.priors.life_sensitivity import life_rows, life_sensitivity
 

@@ -57,7 +57,7 @@ def fit_only(path: str) -> dict:
     """In a fresh process: the fit of the case's data alone (imports excluded)."""
     import pandas as pd
 
-    from qualbayes.inference import SamplerSettings, configure_process
+    from qualbayes.inference.run import SamplerSettings, configure_process
 
     configure_process()
     from qualbayes.lot_history_answers import TARGET_ACCEPT

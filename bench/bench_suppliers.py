@@ -30,7 +30,7 @@ def history(suppliers: int, quarters: int, lots: int, seed: int = 15):
     import numpy as np
     import pandas as pd
 
-    from qualbayes.data.lots import LotTable
+    from qualbayes.data.lot_table import LotTable
 
     rng = np.random.default_rng(seed)
     level = np.exp(rng.normal(np.log(0.005), 0.6, suppliers))

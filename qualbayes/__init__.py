@@ -26,9 +26,9 @@ _LAZY = {
     "plan_mtbf": "qualbayes.api", "plan_sampling": "qualbayes.api",
     "LotResult": "qualbayes.results", "LifeResult": "qualbayes.results",
     "PlanResult": "qualbayes.results",
-    "read_lots": "qualbayes.data.lots", "LotTable": "qualbayes.data.lots",
+    "read_lots": "qualbayes.data.lot_table", "LotTable": "qualbayes.data.lot_table",
     "read_life": "qualbayes.data.life", "LifeTable": "qualbayes.data.life",
-    "LotAssessment": "qualbayes.acceptance", "LifeAssessment": "qualbayes.life_analysis",
+    "LotAssessment": "qualbayes.lot_question", "LifeAssessment": "qualbayes.life_question",
     "parse_probability": "qualbayes.questions", "parse_rate": "qualbayes.questions",
 }
 

@@ -19,8 +19,8 @@ import numpy as np
 
 from qualbayes.data.stress_life import StressLifeTable
 from qualbayes.errors import InputError, OptionError
-from qualbayes.life_analysis import check_question
-from qualbayes.mcse import decide_within_error, mcse_mean
+from qualbayes.inference.mcse import decide_within_error, mcse_mean
+from qualbayes.life_question import check_question
 from qualbayes.models import life_stress as ls
 from qualbayes.questions import DOES_NOT_MEET, MEETS, NOT_CONVERGED, UNDECIDED
 
@@ -93,7 +93,7 @@ def assess_at_use(table: StressLifeTable, terms, mission: float, target: float,
                   prior: ls.StressPrior | None = None, seed: int = 20261202,
                   settings=None, check_shape: bool = True) -> AcceleratedAssessment:
     """Answer "is P(R_use(mission) >= target | data) >= confidence?"."""
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.models.accelerated import fit_accelerated  # noqa: PLC0415
 
     check_question(mission, target, confidence)
@@ -199,7 +199,7 @@ def posterior_at_use(table: StressLifeTable, terms, distribution: str = "weibull
                      prior: ls.StressPrior | None = None, settings=None,
                      time_at_use: float = 1.0):
     """Draws of (mu_use, sigma) as a forecast needs them: returns (LifeDraws, gate dict)."""
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.models.accelerated import fit_accelerated  # noqa: PLC0415
     from qualbayes.models.forecast import LifeDraws  # noqa: PLC0415
 

@@ -17,7 +17,7 @@ import itertools
 
 import numpy as np
 
-from qualbayes.mcse import mcse_mean
+from qualbayes.inference.mcse import mcse_mean
 from qualbayes.models import life_stress as ls
 
 CHECK_MIN_FAILURES = 2

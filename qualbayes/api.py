@@ -4,7 +4,7 @@ Every argument after the data is keyword-only and checked on entry; a value that
 used raises :class:`~qualbayes.errors.ParameterError` (a ``ValueError``) naming the
 parameter. Bad rows in the data raise :class:`~qualbayes.errors.InputError` naming row and
 column, exactly as for a file. No call changes the process: jax runs inside a float64 scope
-that restores the caller's configuration (:func:`qualbayes.inference.jax_scope`).
+that restores the caller's configuration (:func:`qualbayes.inference.run.jax_scope`).
 
 >>> import pandas as pd
 >>> lots = pd.DataFrame({"lot": ["L1", "L2"], "inspected": [300, 50], "defectives": [0, 3]})
@@ -37,7 +37,7 @@ def _looks_like_statement(text: str) -> bool:
 def lot_prior(prior):
     """The lots question's prior from what a Python caller gives: "uniform", "jeffreys",
     "beta:A,B", "history", a statement ("p<0.5%@90%"), a Beta object or a BetaPrior."""
-    from qualbayes.models.priors import BetaPrior, parse_lot_prior  # noqa: PLC0415
+    from qualbayes.models.lot_prior import BetaPrior, parse_lot_prior  # noqa: PLC0415
     from qualbayes.priors.distributions import Beta  # noqa: PLC0415
 
     if isinstance(prior, BetaPrior):
@@ -73,7 +73,7 @@ def _statement_prior(text: str, name: str, kind):
 
 def _rate_prior(prior, name: str):
     """A plan's prior on p (= 1 - R): None, a Beta, a BetaMixture, a RatePrior, text."""
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
     from qualbayes.priors.distributions import Beta, BetaMixture  # noqa: PLC0415
 
     if prior is None or isinstance(prior, RatePrior):
@@ -123,7 +123,7 @@ def _sampling(active: bool):
     if not active:
         yield []
         return
-    from qualbayes.inference import jax_scope, recording_fits  # noqa: PLC0415
+    from qualbayes.inference.run import jax_scope, recording_fits  # noqa: PLC0415
 
     with jax_scope(), recording_fits() as fits:
         yield fits
@@ -139,11 +139,11 @@ def assess_lots(data, *, spec, confidence=0.95, prior="uniform", columns=None,
     the path of an xlsx/csv export. ``spec``: 0.01, "1%" or "10000ppm". ``prior``: see
     :func:`lot_prior`; ``"history"`` fits the hierarchical model per part with NUTS
     (``seed`` and ``settings`` control the sampler; ``seed`` wins over ``settings.seed``).
-    Other keywords go to :func:`qualbayes.acceptance.assess_lots`: ``decision_basis``
+    Other keywords go to :func:`qualbayes.lot_question.assess_lots`: ``decision_basis``
     ("lot": the lot's own fraction defective when its size is given, the default; "process":
     the rate p), ``group_by`` (columns whose values make one history, default ("part",)),
     ``lot_spread`` (scale of the lot-to-lot spread prior, default 0.5)."""
-    from qualbayes import acceptance  # noqa: PLC0415
+    from qualbayes import lot_question  # noqa: PLC0415
     from qualbayes.data.frames import lots_table, source_sha256  # noqa: PLC0415
 
     spec_value = check.rate(spec, "spec")
@@ -154,7 +154,7 @@ def assess_lots(data, *, spec, confidence=0.95, prior="uniform", columns=None,
     run_settings = check.settings_with_seed(settings, seed_value) if history else None
     table = lots_table(data, columns=columns, sheet=sheet)
     with _sampling(history) as fits:
-        result = acceptance.assess_lots(table, spec_value, conf, chosen,
+        result = lot_question.assess_lots(table, spec_value, conf, chosen,
                                         seed=run_settings.seed if history else 20261202,
                                         settings=run_settings, **options)
     shown = {"spec": spec_value, "confidence": conf, "prior": prior if isinstance(prior, str)
@@ -201,8 +201,8 @@ def assess_life(data, *, mission, target, confidence=0.9, prior=None, shape=None
     ``data``: a DataFrame with columns unit, time, status (and optionally seen_working,
     found_failed, group), a LifeTable, or the path of an export. ``shape``: the Weibull
     shape's central 95% range (low, high) from engineering knowledge (needed when a group
-    has no failure). Other keywords go to :func:`qualbayes.life_analysis.assess_life`."""
-    from qualbayes import life_analysis  # noqa: PLC0415
+    has no failure). Other keywords go to :func:`qualbayes.life_question.assess_life`."""
+    from qualbayes import life_question  # noqa: PLC0415
     from qualbayes.data.frames import life_table, source_sha256  # noqa: PLC0415
 
     mission_value = check.positive(mission, "mission")
@@ -218,7 +218,7 @@ def assess_life(data, *, mission, target, confidence=0.9, prior=None, shape=None
                                              "give its range from engineering knowledge, e.g. "
                                              "shape=(1.5, 4)")
     with _sampling(True) as fits:
-        result = life_analysis.assess_life(table, mission_value, target_value, conf, chosen,
+        result = life_question.assess_life(table, mission_value, target_value, conf, chosen,
                                            seed=run_settings.seed, settings=run_settings,
                                            **options)
     shown = {"mission": mission_value, "target": target_value, "confidence": conf,

@@ -64,7 +64,7 @@ def _terminated(signum, frame):
 
 
 def main(argv: list[str] | None = None) -> int:
-    from qualbayes.inference import configure_process  # noqa: PLC0415 - environment only
+    from qualbayes.inference.run import configure_process  # noqa: PLC0415 - environment only
 
     configure_process()  # the process is the command's: jax float64, CPU devices, cache
     parser = build_parser()

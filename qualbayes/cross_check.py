@@ -16,7 +16,7 @@ Each difference must be within the tolerance
 
     \max\bigl(4\,\mathrm{MCSE},\ 4\sqrt{q(1-q)/S},\ \epsilon_{quad}\bigr)
 
-with MCSE from the draws (:func:`qualbayes.mcse.mcse_mean`, chain by chain), :math:`q` the
+with MCSE from the draws (:func:`qualbayes.inference.mcse.mcse_mean`, chain by chain), :math:`q` the
 quadrature answer and :math:`S` the number of draws (the floor for an indicator whose draws
 are all equal, where the MCSE is zero), and :math:`\epsilon_{quad}` the quadrature error
 (difference from the grid of every other point plus the border mass). A disagreement fails
@@ -30,7 +30,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from qualbayes.mcse import mcse_mean
+from qualbayes.inference.mcse import mcse_mean
 
 MCSE_TIMES = 4.0
 

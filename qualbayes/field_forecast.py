@@ -14,7 +14,7 @@ import math
 import numpy as np
 
 from qualbayes.errors import OptionError
-from qualbayes.mcse import mcse_mean
+from qualbayes.inference.mcse import mcse_mean
 from qualbayes.models.forecast import LifeDraws, forecast_counts
 
 MAX_DRAWS = 1000  # posterior draws used for the forecast (evenly thinned within chains)

@@ -35,8 +35,8 @@ import warnings
 import numpy as np
 from scipy.special import logsumexp
 
+from qualbayes.inference.mcse import mcse_mean
 from qualbayes.life_models import LABELS, log_lik_pointwise, log_reliability
-from qualbayes.mcse import mcse_mean
 from qualbayes.models.censored import Observations
 
 ELPD_SMALL = 4.0  # an elpd difference below this is small (Sivula et al. 2022)

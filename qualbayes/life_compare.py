@@ -5,7 +5,7 @@ the product of the two: draw s of A paired with draw s of B is a draw of the pai
 pair (a, b):
 
 * :math:`P(R_a(T) > R_b(T) \mid \text{data})` with its Monte Carlo standard error
-  (:mod:`qualbayes.mcse`), and the statement it supports at confidence C (within 3 MCSE of
+  (:mod:`qualbayes.inference.mcse`), and the statement it supports at confidence C (within 3 MCSE of
   C or 1 - C: "too close to call at this Monte Carlo precision");
 * the posterior of the ratio :math:`B10_a / B10_b` (median, central C interval,
   :math:`P(\text{ratio} > 1)`);
@@ -21,7 +21,7 @@ from itertools import combinations
 import numpy as np
 
 from qualbayes.errors import OptionError
-from qualbayes.mcse import decide_within_error, mcse_mean
+from qualbayes.inference.mcse import decide_within_error, mcse_mean
 
 LN_R10 = math.log(-math.log1p(-0.10))
 

@@ -1,6 +1,6 @@
 """The questions after "does it meet?": group comparisons, remaining test time, other
 distributions (PSIS-LOO), checks of fit, extrapolation and the data-alone answer. Each adds
-to the group results of :func:`qualbayes.life_analysis.assess_life`; the costly ones
+to the group results of :func:`qualbayes.life_question.assess_life`; the costly ones
 (``compare_models``, ``check_fit``) run only when asked.
 """
 
@@ -8,17 +8,17 @@ from __future__ import annotations
 
 import numpy as np
 
+from qualbayes.inference.mcse import is_close_call, mcse_mean
 from qualbayes.life_checks import check_fit as fit_check
 from qualbayes.life_checks import compare, extrapolation, loo
 from qualbayes.life_compare import compare_groups, pairs
 from qualbayes.life_models import FAMILIES, LABELS, fit_alternatives, max_likelihood, reliability
 from qualbayes.life_remaining import remaining_time
-from qualbayes.mcse import is_close_call, mcse_mean
 from qualbayes.models.censored import observations
 from qualbayes.models.lognormal import LognormalPrior, sigma_from_shape_range
 from qualbayes.questions import DOES_NOT_MEET, MEETS, UNDECIDED, decide
 
-PRIOR_SHARE = 0.5  # as life_analysis.PRIOR_SHARE_NOTE: the prior dominates the shape
+PRIOR_SHARE = 0.5  # as life_question.PRIOR_SHARE_NOTE: the prior dominates the shape
 
 
 def add_extras(result, arrays: dict[str, dict], *, compare: list[str] | None = None,

@@ -263,7 +263,7 @@ def _fit_lognormal(obs_list, names, mission, settings, prior, rng):
 
     import jax.numpy as jnp  # noqa: PLC0415
 
-    from qualbayes.inference import run_nuts  # noqa: PLC0415
+    from qualbayes.inference.run import run_nuts  # noqa: PLC0415
     from qualbayes.models.censored import pad  # noqa: PLC0415
 
     modes = [lognormal_sampling_mode(o, prior) for o in obs_list]
@@ -289,7 +289,7 @@ def _fit_lognormal(obs_list, names, mission, settings, prior, rng):
 def _fit_exponential(obs_list, names, settings, rng):
     import jax.numpy as jnp  # noqa: PLC0415
 
-    from qualbayes.inference import run_nuts  # noqa: PLC0415
+    from qualbayes.inference.run import run_nuts  # noqa: PLC0415
     from qualbayes.models.censored import pad  # noqa: PLC0415
 
     modes = [exponential_mode(o) for o in obs_list]

@@ -8,13 +8,14 @@ For one group with posterior draws :math:`(\beta_s, \eta_s)` over chains,
     \hat P = \frac1S \sum_s 1\{R_s \ge r^*\},\qquad R_s = \exp(-(t_m/\eta_s)^{\beta_s}),
 
 and :math:`\mathrm{MCSE}(\hat P) = \mathrm{sd}(1\{\cdot\}) / \sqrt{\mathrm{ESS}}` with the ESS of
-the indicator sequence itself (:func:`qualbayes.mcse.mcse_mean`). No Rao-Blackwellisation is
+the indicator sequence itself (:func:`qualbayes.inference.mcse.mcse_mean`). No
+Rao-Blackwellisation is
 available: :math:`R(t_m)` is a deterministic function of :math:`(\beta, \eta)` and the
 posterior has no closed-form conditional under censoring and the general priors, so the
 indicator is the per-draw quantity.
 
 Rule (:func:`settle`). When :math:`\hat P` or :math:`1 - \hat P` lies within
-:data:`qualbayes.mcse.CLOSE_MCSE` (3) MCSE of the confidence C, the group is sampled again
+:data:`qualbayes.inference.mcse.CLOSE_MCSE` (3) MCSE of the confidence C, the group is sampled again
 alone with :data:`MORE_DRAWS` (4) times the draws per chain, then 16 times: at most
 :data:`MAX_ROUNDS` (2) extra rounds and at most :data:`MAX_DRAWS_PER_CHAIN` (16,000) draws
 per chain (64,000 with the default 4 chains; the default 1,000 per chain reaches the cap in
@@ -40,7 +41,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from qualbayes.mcse import CLOSE_MCSE, is_close_call, mcse_mean
+from qualbayes.inference.mcse import CLOSE_MCSE, is_close_call, mcse_mean
 
 MORE_DRAWS = 4
 MAX_ROUNDS = 2
@@ -71,7 +72,7 @@ class Precision:
 def prob_meets(log_shape: np.ndarray, log_scale: np.ndarray, *, mission: float,
                target: float) -> tuple[float, float]:
     """P(R(mission) >= target) and its MCSE from (chain, draw) arrays of log shape and log
-    scale (the same arithmetic as :func:`qualbayes.life_analysis.weibull_quantities`)."""
+    scale (the same arithmetic as :func:`qualbayes.life_question.weibull_quantities`)."""
     beta, eta = np.exp(log_shape), np.exp(log_scale)
     with np.errstate(over="ignore"):
         r = np.exp(-np.exp(beta * (math.log(mission) - np.log(eta))))

@@ -28,7 +28,7 @@ import warnings
 
 import numpy as np
 
-from qualbayes.mcse import mcse_mean
+from qualbayes.inference.mcse import mcse_mean
 
 K_MAX = 0.7
 ESS_MIN = 400.0

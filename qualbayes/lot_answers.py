@@ -206,7 +206,7 @@ def next_lot_summary(a0, b0, spec: float, confidence: float, chains: int) -> dic
     with its MCSE, and the mean (which a heavy upper tail can put above the bound)."""
     from scipy import special  # noqa: PLC0415
 
-    from qualbayes.mcse import mcse_mean  # noqa: PLC0415
+    from qualbayes.inference.mcse import mcse_mean  # noqa: PLC0415
 
     g = special.betainc(a0, b0, spec)
     return {

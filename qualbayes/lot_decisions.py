@@ -16,7 +16,8 @@ is the average of g_d:
   is decided exactly (g = 1 when x <= sN, else 0).
 
 Decision at confidence C, with the Monte Carlo standard error of the average
-(:mod:`qualbayes.mcse`): ``accept`` when P >= C, ``reject`` when 1 - P >= C and the lot has
+(:mod:`qualbayes.inference.mcse`): ``accept`` when P >= C, ``reject`` when 1 - P >= C and the lot
+has
 at least one defective (a lot with none is never rejected: it is ``undecided`` with its
 clean-unit count), else ``undecided``; a side of C within 3 MCSE is "too close to call".
 """
@@ -26,14 +27,14 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from qualbayes.mcse import CLOSE_MCSE, mcse_mean
+from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
 
 LOT, PROCESS = "lot", "process"
 MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
 MAX_PMF_TERMS = 2**24  # draws x counts summed exactly for one lot's P; beyond: continuous limit
-MAX_EXTRA_UNITS = 10**9  # as qualbayes.models.lots
+MAX_EXTRA_UNITS = 10**9  # as qualbayes.models.lot_posterior
 TOO_CLOSE = "too close to call at this Monte Carlo precision"
 
 

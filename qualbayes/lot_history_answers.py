@@ -24,8 +24,8 @@ TARGET_ACCEPT = 0.99
 
 
 def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, decision_basis):
-    from qualbayes.acceptance import MAX_EXTRA_RUNS, MODEL_HISTORY, LotAssessment, _columns  # noqa: PLC0415
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.lot_question import MAX_EXTRA_RUNS, MODEL_HISTORY, LotAssessment, _columns  # noqa: PLC0415
     from qualbayes.models.lot_history import fit_histories, more_draws  # noqa: PLC0415
 
     settings = settings or SamplerSettings(seed=seed, target_accept=TARGET_ACCEPT)

@@ -115,12 +115,13 @@ def settings_with_seed(settings, seed_value):
     """Sampler settings (default ones when None) with ``seed_value`` honoured when given."""
     from dataclasses import replace  # noqa: PLC0415
 
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415
 
     if settings is None:
         return SamplerSettings() if seed_value is None else SamplerSettings(seed=seed_value)
     if not isinstance(settings, SamplerSettings):
-        raise ParameterError("settings", settings, "expected qualbayes.inference.SamplerSettings")
+        raise ParameterError("settings", settings,
+                             "expected qualbayes.inference.run.SamplerSettings")
     return settings if seed_value is None else replace(settings, seed=seed_value)
 
 

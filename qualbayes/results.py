@@ -55,7 +55,7 @@ def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, obser
                      observed_dims: dict, observed_coords: dict):
     """One InferenceData from per-element draws ``{name: {var: (chain, draw)}}``; the
     sample stats come from the fit that produced them (one joint fit)."""
-    from qualbayes.inference import to_idata  # noqa: PLC0415
+    from qualbayes.inference.run import to_idata  # noqa: PLC0415
 
     shapes = {np.shape(v) for d in draws.values() for v in d.values()}
     if len(shapes) != 1:
@@ -99,14 +99,14 @@ class LotResult:
         return self.lots.copy()
 
     def to_record(self) -> dict:
-        from qualbayes.evidence.lots_record import lots_record  # noqa: PLC0415
+        from qualbayes.evidence.lot_record import lots_record  # noqa: PLC0415
         from qualbayes.provenance import versions  # noqa: PLC0415
 
         return lots_record(self.assessment, self.table, self.sha256 or "",
                            _python_command("assess_lots", self.options), versions())
 
     def summary(self) -> str:
-        from qualbayes.evidence.lots_record import lots_text  # noqa: PLC0415
+        from qualbayes.evidence.lot_record import lots_text  # noqa: PLC0415
 
         return lots_text(self.to_record())
 
@@ -293,7 +293,7 @@ class PlanResult:
         the plans themselves are closed forms or quadrature."""
         if not self.fits:
             return None
-        from qualbayes.inference import to_idata  # noqa: PLC0415
+        from qualbayes.inference.run import to_idata  # noqa: PLC0415
 
         part, fit = self.fits[-1]
         return to_idata(fit.draws, fit.diverging, {k: ["part"] for k in fit.draws},

@@ -13,9 +13,9 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from qualbayes.data.lots import LotTable
+from qualbayes.data.lot_table import LotTable
 from qualbayes.errors import InputError, OptionError
-from qualbayes.mcse import decide_within_error
+from qualbayes.inference.mcse import decide_within_error
 
 PERIODS = ("quarter", "month")
 NOT_CONVERGED = "not-converged"
@@ -96,7 +96,7 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
                      period: str | None = None, seed: int = 20261202,
                      settings=None) -> SupplierScorecard:
     """Fit the hierarchical model and summarise it per supplier and per period."""
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.models.supplier_rates import fit_suppliers  # noqa: PLC0415
     from qualbayes.models.supplier_summary import (  # noqa: PLC0415
         cell_summaries,

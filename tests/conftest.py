@@ -5,7 +5,7 @@ import pytest
 
 os.environ.setdefault("CI", "true")  # numpyro: no progress bars in tests
 
-from qualbayes.inference import configure_process  # noqa: E402
+from qualbayes.inference.run import configure_process  # noqa: E402
 
 configure_process()  # as the command line does: tests call internals that assume it
 

@@ -7,7 +7,7 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 
-from qualbayes.data.lots import LotTable
+from qualbayes.data.lot_table import LotTable
 
 
 def simulate(rates: np.ndarray, *, lots: int, n: int, kappa: float, seed: int) -> LotTable:

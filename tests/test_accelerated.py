@@ -239,7 +239,7 @@ def test_acceleration_factor_is_the_arrhenius_formula(simulated_fit):
 
 
 def test_decision_carries_its_monte_carlo_error(simulated_fit):
-    from qualbayes.mcse import decide_within_error
+    from qualbayes.inference.mcse import decide_within_error
 
     result, _, _, mission = simulated_fit
     r = result.result
@@ -266,7 +266,7 @@ def test_extrapolation_is_flagged_far_from_the_tested_range(simulated_fit):
 def test_common_shape_check_flags_different_shapes():
     """Shapes 1 and 5 at two levels (40 failures each): the check must say they differ."""
     from qualbayes.accelerated_check import common_shape_check
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.run import SamplerSettings
 
     rng = np.random.default_rng(8)
     t = np.concatenate([1000 * rng.weibull(1.0, 40), 300 * rng.weibull(5.0, 40)])

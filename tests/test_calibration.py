@@ -31,7 +31,7 @@ import numpy as np
 import pytest
 import sbc
 
-from qualbayes.inference import SamplerSettings
+from qualbayes.inference.run import SamplerSettings
 
 CI_SETTINGS = SamplerSettings(num_chains=4, num_warmup=500, num_samples=500, seed=11,
                               retry=False)

@@ -96,7 +96,7 @@ def test_tolerance_floor_for_indicators_whose_draws_are_all_equal():
 # ------------------------------------------------------------------ lots, end to end
 
 def _lot_table():
-    from qualbayes.data.lots import LotTable
+    from qualbayes.data.lot_table import LotTable
 
     rng = np.random.default_rng(4)
     n = rng.choice([80, 125, 200], size=30)
@@ -109,7 +109,7 @@ def _lot_table():
 
 
 def test_lots_cross_check_agrees_and_a_shifted_fit_fails_the_gate(monkeypatch):
-    from qualbayes.acceptance import assess_lots
+    from qualbayes.lot_question import assess_lots
     from qualbayes.models import lot_history
 
     res = assess_lots(_lot_table(), spec=0.01, confidence=0.9, prior="history", seed=3)
@@ -158,7 +158,7 @@ def _life_table(path):
 
 
 def test_life_cross_check_agrees_and_shifted_draws_fail_the_gate(tmp_path, monkeypatch):
-    from qualbayes.life_analysis import assess_life
+    from qualbayes.life_question import assess_life
     from qualbayes.models import life
 
     res = assess_life(_life_table(tmp_path / "l.csv"), 300.0, 0.9, 0.9)

@@ -13,7 +13,7 @@ from qualbayes.cli import main
 from qualbayes.data.columns import EXPORT_SPELLINGS, normalise, spellings
 from qualbayes.data.combine import parse_source, read_life_files, read_lots_files
 from qualbayes.data.life import LIFE_COLUMNS, read_life
-from qualbayes.data.lots import LOT_COLUMNS, read_lots
+from qualbayes.data.lot_table import LOT_COLUMNS, read_lots
 from qualbayes.data.status import StatusMap
 from qualbayes.errors import InputError, OptionError
 

@@ -13,8 +13,8 @@ import warnings
 import numpy as np
 import pytest
 
-from qualbayes import diagnostics
-from qualbayes.gate import diagnose, diagnose_arrays, diagnose_idata
+from qualbayes.inference import diagnostics
+from qualbayes.inference.gate import diagnose, diagnose_arrays, diagnose_idata
 
 
 def _draws(shape, seed):
@@ -67,7 +67,7 @@ def test_constant_draws_are_reported_as_constant():
 
 
 def test_the_gate_reads_an_inference_data_by_coordinate():
-    from qualbayes.inference import to_idata
+    from qualbayes.inference.run import to_idata
 
     rng = np.random.default_rng(2)
     mu = rng.normal(size=(4, 400, 2))

@@ -43,7 +43,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from qualbayes.cli import main
-from qualbayes.data.lots import LOT_COLUMNS, TOTAL_LABELS, LotTable, read_lots, validate_lots
+from qualbayes.data.lot_table import LOT_COLUMNS, TOTAL_LABELS, LotTable, read_lots, validate_lots
 from qualbayes.data.readers import MAX_COLUMNS, RawTable, read_table
 from qualbayes.data.values import parse_count, parse_real
 from qualbayes.errors import InputError

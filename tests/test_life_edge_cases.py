@@ -16,8 +16,8 @@ from scipy import stats
 
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
-from qualbayes.gate import diagnose
-from qualbayes.life_analysis import assess_life
+from qualbayes.inference.gate import diagnose
+from qualbayes.life_question import assess_life
 from qualbayes.models.weibull import FLAT, group_stats, make_prior, reported_mode
 
 

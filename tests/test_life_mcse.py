@@ -25,8 +25,7 @@ from qualbayes.data.frames import life_table
 from qualbayes.errors import InputError
 from qualbayes.evidence.life_record import life_record, life_text
 from qualbayes.evidence.run_record import check_decisions
-from qualbayes.inference import SamplerSettings
-from qualbayes.life_analysis import assess_life
+from qualbayes.inference.run import SamplerSettings
 from qualbayes.life_precision import (
     CLOSE_NOTE,
     MAX_DRAWS_PER_CHAIN,
@@ -34,6 +33,7 @@ from qualbayes.life_precision import (
     prob_meets,
     settle,
 )
+from qualbayes.life_question import assess_life
 from qualbayes.models.weibull import group_stats, make_prior
 
 # invented small test: four failures and twelve units still running at 1,500 h

@@ -104,7 +104,7 @@ def test_binned_sums_equal_exact_sums():
 
 def test_jax_and_numpy_log_densities_agree():
     jnp = pytest.importorskip("jax.numpy")
-    from qualbayes.inference import jax_scope
+    from qualbayes.inference.run import jax_scope
 
     with jax_scope():
         _compare_log_densities(jnp)
@@ -279,7 +279,7 @@ def test_plotting_positions_handle_every_kind():
 
 
 def test_gammaln_mean_life_formula():
-    from qualbayes.life_analysis import weibull_quantities
+    from qualbayes.life_question import weibull_quantities
 
     q = weibull_quantities(np.array([2.0]), np.array([100.0]), 50.0)
     d = stats.weibull_min(2.0, scale=100.0)

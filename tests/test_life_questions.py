@@ -19,8 +19,7 @@ from scipy import stats
 
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
-from qualbayes.inference import SamplerSettings
-from qualbayes.life_analysis import assess_life
+from qualbayes.inference.run import SamplerSettings
 from qualbayes.life_checks import check_fit, loo
 from qualbayes.life_models import (
     fit_alternatives,
@@ -28,6 +27,7 @@ from qualbayes.life_models import (
     lognormal_mode,
     reliability,
 )
+from qualbayes.life_question import assess_life
 from qualbayes.models import exponential as expo
 from qualbayes.models import lognormal as logn
 from qualbayes.models.censored import arrays, observations

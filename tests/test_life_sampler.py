@@ -20,8 +20,8 @@ from scipy import stats
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
 from qualbayes.evidence.output_set import MARKER  # written with every output set
-from qualbayes.inference import SamplerSettings
-from qualbayes.life_analysis import assess_life, weibull_quantities
+from qualbayes.inference.run import SamplerSettings
+from qualbayes.life_question import assess_life, weibull_quantities
 from qualbayes.models.weibull import (
     FLAT,
     LifePrior,

@@ -18,13 +18,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from qualbayes.acceptance import assess_lots
 from qualbayes.cli import main
-from qualbayes.data.lots import LotTable
+from qualbayes.data.lot_table import LotTable
 from qualbayes.lot_decisions import LOT, PROCESS, decide
+from qualbayes.lot_question import assess_lots
 from qualbayes.models import lot_history_grid as grid
+from qualbayes.models.lot_prior import JEFFREYS, UNIFORM
 from qualbayes.models.lot_spread import HistoryPrior, spread_floor
-from qualbayes.models.priors import JEFFREYS, UNIFORM
 
 
 def _table(rows):
@@ -201,7 +201,7 @@ def test_options_pool_by_and_spread_are_checked_and_shown(tmp_path, capsys):
 
 @pytest.fixture(scope="module")
 def history_run():
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.run import SamplerSettings
 
     rows = [(f"G{i}", "G", 125, 0, 2000) for i in range(9)] + [("G9", "G", 80, 9, 800)]
     rows += [(f"K{i}", "K", n, x, None) for i, (n, x) in enumerate(
@@ -243,7 +243,7 @@ def test_reported_mcse_agrees_with_spread_over_independent_chains():
     is an independent estimate of the same number, so sum((P_k - mean)^2) / mean(MCSE^2)
     is about chi-square with 23 degrees of freedom when the MCSE is right. Two-sided test at
     the 0.001 level (a reported MCSE off by a factor of two fails it)."""
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.run import SamplerSettings
     from qualbayes.lot_decisions import probabilities
     from qualbayes.models.lot_history import fit_histories
 

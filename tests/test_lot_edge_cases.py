@@ -14,12 +14,12 @@ import pytest
 from helpers import write_csv
 from scipy import special, stats
 
-from qualbayes.acceptance import assess_lots
 from qualbayes.cli import main
-from qualbayes.data.lots import LotTable, read_lots
-from qualbayes.models import lots as conj
+from qualbayes.data.lot_table import LotTable, read_lots
+from qualbayes.lot_question import assess_lots
+from qualbayes.models import lot_posterior as conj
 from qualbayes.models import mixtures
-from qualbayes.models.priors import UNIFORM
+from qualbayes.models.lot_prior import UNIFORM
 from qualbayes.questions import ACCEPT, REJECT
 
 
@@ -205,7 +205,7 @@ def grid_moments(x: np.ndarray, n: np.ndarray) -> dict[str, tuple[float, float]]
 
 @pytest.fixture(scope="module")
 def history():
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.run import SamplerSettings
 
     return assess_lots(_edge_table(), 0.01, 0.95, "history", settings=SamplerSettings(seed=3))
 

@@ -5,10 +5,10 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from qualbayes.acceptance import assess_lots, extra_clean_units_reweighted
-from qualbayes.data.lots import LotTable
-from qualbayes.inference import SamplerSettings
-from qualbayes.models import lots as conj
+from qualbayes.data.lot_table import LotTable
+from qualbayes.inference.run import SamplerSettings
+from qualbayes.lot_question import assess_lots, extra_clean_units_reweighted
+from qualbayes.models import lot_posterior as conj
 from qualbayes.models import mixtures
 
 # A small history with clear lot-to-lot variation (invented numbers for the check).

@@ -33,8 +33,8 @@ def test_betabinom_cdf_by_products_and_by_logs_against_scipy():
 
 @pytest.mark.slow
 def test_per_part_sampler_matches_quadrature_within_monte_carlo_error():
-    from qualbayes.diagnostics import ess_bulk
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.diagnostics import ess_bulk
+    from qualbayes.inference.run import SamplerSettings
     from qualbayes.models.lot_history import lot_history_model, pad
     from qualbayes.models.lot_history_grid import posterior_grid
     from qualbayes.models.lot_history_parts import sample_parts

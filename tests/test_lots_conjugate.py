@@ -4,10 +4,10 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from qualbayes.acceptance import assess_lots
-from qualbayes.data.lots import LotTable
-from qualbayes.models import lots as conj
-from qualbayes.models.priors import JEFFREYS, UNIFORM, parse_lot_prior
+from qualbayes.data.lot_table import LotTable
+from qualbayes.lot_question import assess_lots
+from qualbayes.models import lot_posterior as conj
+from qualbayes.models.lot_prior import JEFFREYS, UNIFORM, parse_lot_prior
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED, decide, parse_rate
 
 

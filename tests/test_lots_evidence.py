@@ -78,10 +78,10 @@ def test_terminal_shows_at_most_its_row_cap_and_counts_the_rest(monkeypatch):
     many more there are, and the decision counts still cover every lot."""
     import pandas as pd
 
-    import qualbayes.evidence.lots_record as lr
-    from qualbayes.acceptance import assess_lots
+    import qualbayes.evidence.lot_record as lr
     from qualbayes.data.frames import lots_table
-    from qualbayes.evidence.lots_record import lots_record, lots_text
+    from qualbayes.evidence.lot_record import lots_record, lots_text
+    from qualbayes.lot_question import assess_lots
 
     monkeypatch.setattr(lr, "TERMINAL_ROWS", 3)
     frame = pd.DataFrame({"lot": [f"L{i}" for i in range(5)], "inspected": [50] * 5,

@@ -9,7 +9,7 @@ import pytest
 from helpers import GOOD_ROWS, LOT_HEADER, write_csv, write_xlsx
 
 from qualbayes.cli import main
-from qualbayes.data.lots import read_lots
+from qualbayes.data.lot_table import read_lots
 from qualbayes.errors import InputError
 
 

@@ -1,10 +1,10 @@
 """Many compilations in one process must not exhaust the system's memory mappings: each jax
 compilation keeps mappings alive until its compiled code is dropped (measured in
-qualbayes.inference.relieve_memory_maps); the guard drops it past half the limit."""
+qualbayes.inference.run.relieve_memory_maps); the guard drops it past half the limit."""
 
 import pytest
 
-from qualbayes import inference
+from qualbayes.inference import run as inference
 
 
 def test_the_guard_clears_only_past_its_share(monkeypatch):

@@ -18,7 +18,7 @@ from hostile_files import deadline, sheet_xml, xlsx_with_sheet
 
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
-from qualbayes.data.lots import read_lots
+from qualbayes.data.lot_table import read_lots
 from qualbayes.data.readers import MAX_CELLS, read_table
 from qualbayes.errors import InputError
 

@@ -20,7 +20,7 @@ import jax
 before = (jax.config.jax_enable_x64, jax.config.jax_platforms, os.environ.get("XLA_FLAGS"))
 import numpy as np, pandas as pd
 import qualbayes as qb
-from qualbayes.inference import SamplerSettings
+from qualbayes.inference.run import SamplerSettings
 rng = np.random.default_rng(4)
 n = rng.choice([80, 125, 200], size=10)
 lots = pd.DataFrame({"lot": [f"L{i}" for i in range(10)], "part": ["1"] * 5 + ["X[1"] * 5,

@@ -164,7 +164,7 @@ def test_force_rerun_leaves_no_stale_file(tmp_path, examples, capsys):
 
 def test_unwritable_place_is_refused_before_any_computation(tmp_path, src, capsys,
                                                             monkeypatch):
-    import qualbayes.acceptance as acceptance
+    import qualbayes.lot_question as acceptance
 
     def never(*a, **k):
         raise AssertionError("computed before the targets were checked")

@@ -11,7 +11,7 @@ from scipy import special, stats
 from qualbayes.planning import assurance as asr
 from qualbayes.planning import mtbf, weibull
 from qualbayes.planning.mtbf import GammaPrior
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.planning.weibull import ShapePrior
 
 SIMS = 200_000

@@ -8,7 +8,7 @@ import pytest
 from scipy import integrate, stats
 
 from qualbayes.planning import attribute
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 
 # Success-run theorem n = ceil(ln(1-C)/ln R): common practice (reliability handbooks, e.g.
 # Kececioglu, Reliability and Life Testing Handbook); values as listed in docs/references.md.

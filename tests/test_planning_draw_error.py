@@ -16,7 +16,7 @@ from scipy import special, stats
 
 from qualbayes.planning import assurance as asr
 from qualbayes.planning import draw_error, sampling
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 
 CHAINS, DRAWS, REPLICATES = 4, 500, 200
 

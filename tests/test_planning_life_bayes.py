@@ -15,7 +15,7 @@ from scipy import integrate, stats
 from qualbayes.planning import assurance as asr
 from qualbayes.planning import attribute, life_bayes, weibull
 from qualbayes.planning.plans import plan_life
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.planning.weibull import ShapePrior
 
 

@@ -9,7 +9,7 @@ from scipy import stats
 
 from qualbayes.errors import OptionError
 from qualbayes.planning import sampling
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 
 CASES = [(0.01, 0.05, 0.05, 0.10), (0.005, 0.05, 0.03, 0.10), (0.02, 0.10, 0.08, 0.05),
          (0.001, 0.05, 0.01, 0.10)]

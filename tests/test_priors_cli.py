@@ -185,7 +185,7 @@ def test_plan_bad_prior_options_exit_2(capsys, argv, words):
 @pytest.fixture
 def small_sampler(monkeypatch):
     """Keep the life runs small (2 shared cores); the gate still applies to each."""
-    import qualbayes.inference as inference
+    import qualbayes.inference.run as inference
     import qualbayes.priors.life_sensitivity as ls
 
     small = functools.partial(inference.SamplerSettings, num_warmup=300, num_samples=500)

@@ -59,7 +59,7 @@ def test_members_follow_scipy(prior, ref):
 
 def test_to_numpyro_has_the_same_density():
     jnp = pytest.importorskip("jax.numpy")
-    from qualbayes.inference import jax_scope
+    from qualbayes.inference.run import jax_scope
 
     with jax_scope():
         for prior, x in ((Beta(2.0, 30.0), 0.05), (Gamma(2.0, 10.0), 0.3),
@@ -131,7 +131,7 @@ def test_a_plan_sensitivity_table_through_the_api():
 
 @pytest.mark.slow
 def test_a_life_sensitivity_table_through_the_api():
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.inference.run import SamplerSettings
 
     rng = np.random.default_rng(8)
     t = np.sort(rng.weibull(2.0, 12) * 1000.0)

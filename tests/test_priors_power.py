@@ -14,10 +14,10 @@ import pytest
 from helpers import LOT_HEADER, write_csv
 from scipy import integrate, stats
 
-from qualbayes.acceptance import assess_lots
-from qualbayes.data.lots import read_lots
+from qualbayes.data.lot_table import read_lots
 from qualbayes.errors import OptionError
-from qualbayes.models.priors import BetaPrior
+from qualbayes.lot_question import assess_lots
+from qualbayes.models.lot_prior import BetaPrior
 from qualbayes.models.weibull import (
     FLAT,
     LifePrior,
@@ -213,8 +213,8 @@ def test_weibull_weight_one_nuts_matches_a_direct_fit_of_the_pooled_data(tmp_pat
     the means of log shape, log scale and R(mission) agree within
     4 sqrt(sd1^2/ESS1 + sd2^2/ESS2)."""
     from qualbayes.data.life import read_life
-    from qualbayes.inference import SamplerSettings
-    from qualbayes.life_analysis import assess_life
+    from qualbayes.inference.run import SamplerSettings
+    from qualbayes.life_question import assess_life
 
     def life_csv(name, times):
         p = tmp_path / name

@@ -13,10 +13,10 @@ import pytest
 from conftest import EXAMPLES
 from scipy import integrate, special, stats
 
-from qualbayes.acceptance import assess_lots
 from qualbayes.commands.prior_options import beta_setup
-from qualbayes.data.lots import read_lots
-from qualbayes.models.priors import BetaPrior
+from qualbayes.data.lot_table import read_lots
+from qualbayes.lot_question import assess_lots
+from qualbayes.models.lot_prior import BetaPrior
 from qualbayes.priors.elicit import elicit
 from qualbayes.priors.power_prior import EarlierCounts, EarlierExposure
 from qualbayes.priors.prior_set import (
@@ -104,7 +104,7 @@ def test_summary_says_plainly_when_the_decision_depends_on_the_prior():
 
 def test_attribute_rows_equal_separate_plans_and_closed_forms():
     from qualbayes.planning.plans import plan_attribute
-    from qualbayes.planning.priors import RatePrior
+    from qualbayes.planning.rate_prior import RatePrior
 
     stated = elicit(parse_statements(["R>0.85@95%", "R=0.95"], ("R",)))
     classical = PriorRow("as-run", "as run (classical)", "classical", {}, "none", "", "classical")
@@ -244,8 +244,8 @@ def _life_file(tmp_path):
 
 def test_life_rows_match_separate_runs_within_monte_carlo_error(tmp_path):
     from qualbayes.data.life import read_life
-    from qualbayes.inference import SamplerSettings
-    from qualbayes.life_analysis import assess_life, group_data
+    from qualbayes.inference.run import SamplerSettings
+    from qualbayes.life_question import assess_life, group_data
     from qualbayes.models.weibull import make_prior
     from qualbayes.priors.life_sensitivity import _extra, life_rows, life_sensitivity, numpy_prior
 
@@ -285,8 +285,8 @@ def test_life_rows_match_separate_runs_within_monte_carlo_error(tmp_path):
 
 def test_a_life_alternative_that_fails_its_gate_says_so(tmp_path):
     from qualbayes.data.life import read_life
-    from qualbayes.inference import SamplerSettings
-    from qualbayes.life_analysis import assess_life, group_data
+    from qualbayes.inference.run import SamplerSettings
+    from qualbayes.life_question import assess_life, group_data
     from qualbayes.models.weibull import make_prior
     from qualbayes.priors.life_sensitivity import life_rows, life_sensitivity
 
@@ -314,7 +314,7 @@ def _accepted_within_reference(n, c, a, b, s):
 
 def test_sampling_rows_equal_separate_runs_and_scipy():
     from qualbayes.planning.plans import plan_sampling
-    from qualbayes.planning.priors import RatePrior
+    from qualbayes.planning.rate_prior import RatePrior
     from qualbayes.priors.prior_set import sampling_sensitivity
 
     stated = elicit(parse_statements(["p<1%@90%"], ("p",)))
@@ -364,7 +364,7 @@ def test_sampling_zero_acceptance_number_closed_form():
 
 def test_sampling_history_mixture_row_is_the_mixture():
     from qualbayes.planning import sampling
-    from qualbayes.planning.priors import RatePrior
+    from qualbayes.planning.rate_prior import RatePrior
     from qualbayes.priors.prior_set import sampling_sensitivity
 
     mix = RatePrior.mixture(np.array([1.0, 3.0]), np.array([200.0, 150.0]), "history")
@@ -385,7 +385,7 @@ def test_sampling_history_mixture_row_is_the_mixture():
 def test_life_plan_rows_equal_separate_plans_and_closed_forms():
     from qualbayes.planning import weibull
     from qualbayes.planning.plans import plan_life
-    from qualbayes.planning.priors import RatePrior
+    from qualbayes.planning.rate_prior import RatePrior
     from qualbayes.priors.prior_set import life_plan_sensitivity
 
     stated = elicit(parse_statements(["R>0.85@95%", "R=0.95"], ("R",)))

@@ -83,7 +83,7 @@ def test_progress_is_silent_when_stderr_is_not_a_terminal(lots_file, tmp_path):
 SNIPPET = """
 import sys
 from qualbayes import progress
-from qualbayes.inference import SamplerSettings
+from qualbayes.inference.run import SamplerSettings
 cache = sys.argv[1]
 progress.compile_notice(cache)
 progress.compile_notice(cache)  # said once per process

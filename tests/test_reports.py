@@ -342,10 +342,10 @@ def test_existing_report_folder_is_not_overwritten_without_force(tmp_path, capsy
 def test_failed_gate_report_says_so_at_the_top_and_shows_no_decision(tmp_path):
     import pandas as pd
 
-    from qualbayes.acceptance import assess_lots
-    from qualbayes.data.lots import LotTable
-    from qualbayes.evidence.lots_record import lots_record
-    from qualbayes.inference import SamplerSettings
+    from qualbayes.data.lot_table import LotTable
+    from qualbayes.evidence.lot_record import lots_record
+    from qualbayes.inference.run import SamplerSettings
+    from qualbayes.lot_question import assess_lots
 
     frame = pd.DataFrame({"lot": ["A", "B", "C"], "part": ["P"] * 3, "supplier": None,
                           "date": None, "lot_size": pd.array([None] * 3, dtype="Int64"),

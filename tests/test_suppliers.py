@@ -17,8 +17,8 @@ import pytest
 from scipy import special, stats
 
 from qualbayes.cli import main
-from qualbayes.inference import SamplerSettings
-from qualbayes.mcse import mcse_mean
+from qualbayes.inference.mcse import mcse_mean
+from qualbayes.inference.run import SamplerSettings
 from qualbayes.models import supplier_rates as sr
 from qualbayes.models.supplier_summary import supplier_summaries
 

@@ -162,7 +162,7 @@ def parse_pair(text: str, option: str, prefix: str) -> tuple[float, float]:
 def parse_reliability_prior(text: str, option: str, on_reliability: bool = True):
     """A Beta prior as typed: on R (attribute, life) or on the defect rate (sampling).
     Returns a RatePrior, or the strings 'history' / 'none' / 'same'."""
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
 
     t = str(text).strip().lower()
     if t in ("history", "none", "same"):

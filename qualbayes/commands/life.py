@@ -79,7 +79,7 @@ def run(args) -> int:
             life_prior_evidence,
         )
         from qualbayes.evidence.life_record import life_record  # noqa: PLC0415
-        from qualbayes.life_analysis import assess_life, check_prior_use, group_data  # noqa: PLC0415
+        from qualbayes.life_question import assess_life, check_prior_use, group_data  # noqa: PLC0415
         from qualbayes.provenance import command_line, versions  # noqa: PLC0415
 
         prior, setup = life_prior(args, base_prior)  # --earlier read after the target checks

@@ -47,14 +47,14 @@ def run(args) -> int:
     confidence = convert.shared(args)
 
     def compute() -> dict:
-        from qualbayes.acceptance import assess_lots  # noqa: PLC0415
         from qualbayes.commands.inputs import read_lot_inputs, source_evidence  # noqa: PLC0415
         from qualbayes.commands.prior_options import (  # noqa: PLC0415
             lot_prior,
             lot_prior_evidence,
         )
-        from qualbayes.evidence.lots_record import lots_record  # noqa: PLC0415
+        from qualbayes.evidence.lot_record import lots_record  # noqa: PLC0415
         from qualbayes.evidence.numbers import rate_unit_of  # noqa: PLC0415
+        from qualbayes.lot_question import assess_lots  # noqa: PLC0415
         from qualbayes.provenance import command_line, versions  # noqa: PLC0415
 
         prior, setup = lot_prior(args)  # --earlier is read here, after the target checks
@@ -68,7 +68,7 @@ def run(args) -> int:
         return record
 
     def text(record: dict) -> str:
-        from qualbayes.evidence.lots_record import lots_text  # noqa: PLC0415
+        from qualbayes.evidence.lot_record import lots_text  # noqa: PLC0415
 
         return lots_text(record)
 
@@ -78,7 +78,7 @@ def run(args) -> int:
 def _lot_options(args, prior) -> dict:
     """--pool-by, --lot-spread and --decide-about as keyword arguments (checked: exit 2)."""
     from qualbayes.errors import OptionError  # noqa: PLC0415
-    from qualbayes.models.priors import HISTORY  # noqa: PLC0415
+    from qualbayes.models.lot_prior import HISTORY  # noqa: PLC0415
 
     cols = tuple(c.strip().lower() for c in str(args.pool_by).split(",") if c.strip())
     if not cols or any(c not in ("part", "supplier") for c in cols) or len(set(cols)) < len(
@@ -106,7 +106,7 @@ def _evidence(record: dict, args) -> dict:
     from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
     from qualbayes.commands.prior_options import figure_file, used  # noqa: PLC0415
     from qualbayes.evidence.inputs_sheets import with_input_rows  # noqa: PLC0415
-    from qualbayes.evidence.lots_record import lots_sheets  # noqa: PLC0415
+    from qualbayes.evidence.lot_record import lots_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
     files = {WORKBOOK: workbook_writer(with_input_rows(lots_sheets(record), record)),

@@ -96,7 +96,7 @@ __all__ = ["BetaSetup", "GammaSetup", "LifeSetup", "beta_setup"]
 def lot_prior(args):
     """The analysis prior of ``lots`` from --prior, --believe and --earlier (all parsed and
     checked, and the earlier data read, before the lots are): (prior, BetaSetup or None)."""
-    from qualbayes.models.priors import (  # noqa: PLC0415
+    from qualbayes.models.lot_prior import (  # noqa: PLC0415
         HISTORY,
         HISTORY_PHI_UNIFORM,
         UNIFORM,
@@ -156,7 +156,7 @@ def sampling_prior(args, prior):
 
 
 def _plan_beta_prior(args, prior, quantity: str, option: str, given):
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
     from qualbayes.priors.statements import parse_statements  # noqa: PLC0415
 
     statements = parse_statements(args.believe, ("R", "p") if quantity == "R" else ("p",))

@@ -116,8 +116,8 @@ def _plain_life(args, gate_time: float, reach: float) -> dict:
 
     from qualbayes.data.life import frame_arrays, read_life  # noqa: PLC0415
     from qualbayes.errors import InputError  # noqa: PLC0415
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
-    from qualbayes.life_analysis import check_prior_use  # noqa: PLC0415
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415
+    from qualbayes.life_question import check_prior_use  # noqa: PLC0415
     from qualbayes.models.forecast import LifeDraws  # noqa: PLC0415
     from qualbayes.models.life import fit_life  # noqa: PLC0415
     from qualbayes.models.weibull import group_stats, make_prior, posterior_mode  # noqa: PLC0415
@@ -160,7 +160,7 @@ def _accelerated_life(args, terms, prior, gate_time: float) -> dict:
     from qualbayes.accelerated_analysis import extrapolation, posterior_at_use  # noqa: PLC0415
     from qualbayes.commands.at_use import read_stress_data  # noqa: PLC0415
     from qualbayes.evidence.accelerated_record import show_stress  # noqa: PLC0415
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415
 
     data = read_stress_data(args, args.life, args.life_sheet, args.life_columns, 500_000, "",
                             args.life_group)

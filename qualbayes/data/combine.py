@@ -21,7 +21,7 @@ from pathlib import Path
 import pandas as pd
 
 from qualbayes.data.life import LifeTable, read_life
-from qualbayes.data.lots import LotTable, read_lots
+from qualbayes.data.lot_table import LotTable, read_lots
 from qualbayes.errors import InputError, OptionError
 from qualbayes.provenance import sha256_file
 
@@ -74,7 +74,7 @@ def _source(table, file: str, sha: str, count_name: str) -> dict:
 
 def read_lots_files(inputs: list[str], sheet: str | None = None, **options) -> LotTable:
     """Read one or several inspection exports as one :class:`LotTable` (options as for
-    :func:`qualbayes.data.lots.read_lots`); ``sources`` lists each file with its SHA-256."""
+    :func:`qualbayes.data.lot_table.read_lots`); ``sources`` lists each file with its SHA-256."""
     tables = []
     for file, sh in _inputs(inputs, sheet):
         table = read_lots(file, sheet=sh, **options)

@@ -3,7 +3,7 @@
 A DataFrame goes through exactly the validation a file does: it is turned into the cells of
 a sheet (its column names as the header row, one row per record, missing values as empty
 cells, numpy scalars as plain numbers, timestamps as dates) and handed to the same validator
-as a spreadsheet (:func:`qualbayes.data.lots.validate_lots`,
+as a spreadsheet (:func:`qualbayes.data.lot_table.validate_lots`,
 :func:`qualbayes.data.life.validate_life`). Errors therefore read the same; rows are numbered
 as in the sheet the frame would write with ``to_csv(index=False)``: the header is row 1, the
 first record row 2.
@@ -105,9 +105,9 @@ def _no_sheet(sheet) -> None:
 
 
 def lots_table(data, *, columns=None, sheet: str | None = None):
-    """A validated :class:`~qualbayes.data.lots.LotTable` from a DataFrame, a LotTable or the
+    """A validated :class:`~qualbayes.data.lot_table.LotTable` from a DataFrame, a LotTable or the
     path of an inspection export."""
-    from qualbayes.data.lots import LotTable, read_lots, validate_lots  # noqa: PLC0415
+    from qualbayes.data.lot_table import LotTable, read_lots, validate_lots  # noqa: PLC0415
 
     if isinstance(data, LotTable):
         return data

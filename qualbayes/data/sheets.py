@@ -6,7 +6,7 @@ hold a header naming every required column (by the same spellings and ``--column
 the validators use). If no sheet or more than one sheet qualifies, the error lists the sheets
 and asks for ``--sheet``; nothing is guessed.
 
->>> from qualbayes.data.lots import LOT_COLUMNS
+>>> from qualbayes.data.lot_table import LOT_COLUMNS
 >>> picker = SheetPicker(LOT_COLUMNS)
 >>> picker.note is None
 True

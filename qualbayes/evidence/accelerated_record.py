@@ -10,7 +10,7 @@ from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.stress_life import StressLifeTable
 from qualbayes.evidence.jsonout import plain
 from qualbayes.evidence.terminal import table as text_table
-from qualbayes.gate import ESS_MIN, RHAT_MAX
+from qualbayes.inference.gate import ESS_MIN, RHAT_MAX
 from qualbayes.models.life_stress import KELVIN_OFFSET
 
 MODEL_TEXT = {

@@ -4,7 +4,7 @@ sampler checks found, and what to do next."""
 from __future__ import annotations
 
 from qualbayes.evidence.numbers import count, quantity
-from qualbayes.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
+from qualbayes.inference.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
 
 NEXT_STEP = ("next: add --report DIR for an audit report (HTML and PDF with sign-off block), "
              "--out DIR for the evidence workbook, --json for a machine-readable record")

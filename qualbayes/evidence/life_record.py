@@ -17,8 +17,8 @@ from qualbayes.evidence.life_extras_record import extras_lines, extras_sheets
 from qualbayes.evidence.numbers import plural, probability, quantity
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
-from qualbayes.gate import ESS_MIN, RHAT_MAX
-from qualbayes.life_analysis import LifeAssessment
+from qualbayes.inference.gate import ESS_MIN, RHAT_MAX
+from qualbayes.life_question import LifeAssessment
 
 MCSE_COLUMN = ("MCSE of P: the Monte Carlo standard error of P from the posterior draws; a P "
                "within 3 MCSE of the confidence is sampled again with more draws and, if still "

@@ -6,7 +6,7 @@ from __future__ import annotations
 import datetime as dt
 
 from qualbayes.evidence.document import Paragraph, Section, Table
-from qualbayes.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
+from qualbayes.inference.gate import DIVERGENCES_MAX, ESS_MIN, RHAT_MAX
 
 
 def inputs_section(record: dict) -> Section:

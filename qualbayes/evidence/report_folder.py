@@ -11,7 +11,7 @@ from pathlib import Path
 
 #: run-record kind -> (report builder, workbook sheets builder), "module:function"
 KINDS = {
-    "lots": ("qualbayes.evidence.lots_report:build", "qualbayes.evidence.lots_record:lots_sheets"),
+    "lots": ("qualbayes.evidence.lot_report:build", "qualbayes.evidence.lot_record:lots_sheets"),
     "life": ("qualbayes.evidence.life_report:build", "qualbayes.evidence.life_record:life_sheets"),
     "plan": ("qualbayes.evidence.plan_report:build", "qualbayes.evidence.plan_record:plan_sheets"),
     "at-use": ("qualbayes.evidence.accelerated_report:build",

@@ -246,7 +246,7 @@ AT_USE_VERDICTS = {"accept": "meets", "reject": "does-not-meet", "undecided": "u
 def _check_at_use(path, record: dict) -> None:
     """The verdict is recomputed from the recorded probability, its Monte Carlo error, the
     confidence and the gate (the rule of accelerated_analysis.decide_at_use)."""
-    from qualbayes.mcse import decide_within_error  # noqa: PLC0415
+    from qualbayes.inference.mcse import decide_within_error  # noqa: PLC0415
 
     r, c = record["result"], record["question"]["confidence"]
     passed = bool(r["diagnostics"]["passed"])
@@ -299,7 +299,7 @@ def _check_close_call(path, where: str, decision: str, prob, mcse, confidence: f
     """The Monte Carlo rule (records that carry an MCSE): a verdict needs P (or 1 - P) more
     than 3 MCSE from C; a P within 3 MCSE of C with ``undecided`` is consistent (too close
     to call at this Monte Carlo precision). Records without an MCSE are not checked here."""
-    from qualbayes.mcse import is_close_call  # noqa: PLC0415
+    from qualbayes.inference.mcse import is_close_call  # noqa: PLC0415
 
     if prob is None or not isinstance(mcse, int | float) or isinstance(mcse, bool):
         return

@@ -12,7 +12,7 @@ import pandas as pd
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.evidence.jsonout import plain
 from qualbayes.evidence.terminal import table as text_table
-from qualbayes.gate import ESS_MIN, RHAT_MAX
+from qualbayes.inference.gate import ESS_MIN, RHAT_MAX
 from qualbayes.models.supplier_rates import M_MEAN, M_SD, SIGMA_B_SCALE, SIGMA_W_SCALE
 from qualbayes.scorecard import SupplierScorecard
 

@@ -25,7 +25,7 @@ from functools import partial
 
 import numpy as np
 
-from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference.run import Fit, SamplerSettings, run_nuts, setup_jax
 from qualbayes.models.life import bucket
 from qualbayes.models.life_stress import Design, Laplace, StressPrior, log_likelihood, log_prior
 

@@ -28,7 +28,7 @@ import numpy as np
 import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
 
-from qualbayes.inference import Fit, SamplerSettings, jax_scope, run_nuts
+from qualbayes.inference.run import Fit, SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
     SHAPE_CAP_SD,
     TAYLOR_ORDER,

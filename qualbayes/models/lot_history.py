@@ -41,7 +41,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference.run import Fit, SamplerSettings, run_nuts, setup_jax
 from qualbayes.models.lot_spread import KAPPA_MAX, PHI_MIN, HistoryPrior, PhiUniformPrior
 
 setup_jax()
@@ -167,7 +167,7 @@ def more_draws(fit: Fit, groups, names: list[str], prior, round_no: int) -> Fit:
     as further chains; the gate is judged again on all chains together."""
     from dataclasses import replace  # noqa: PLC0415
 
-    from qualbayes.gate import diagnose  # noqa: PLC0415
+    from qualbayes.inference.gate import diagnose  # noqa: PLC0415
 
     settings = replace(fit.settings, seed=fit.settings.seed + 7919 * round_no, retry=False)
     extra = fit_histories(groups, settings, names=names, prior=prior)

@@ -20,7 +20,7 @@ from functools import lru_cache, partial
 
 import numpy as np
 
-from qualbayes.inference import SamplerSettings, jax_scope
+from qualbayes.inference.run import SamplerSettings, jax_scope
 
 
 def sample_parts(model, xs, ns, ws, scale, s: SamplerSettings):

@@ -36,7 +36,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.inference import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference.run import Fit, SamplerSettings, run_nuts, setup_jax
 from qualbayes.models.lot_history import PHI_MIN, bucket, collapse
 
 #: Hyperprior constants (docs/suppliers.md; operating characteristics in docs/calibration.md)

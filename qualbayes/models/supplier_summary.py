@@ -10,7 +10,7 @@ shape (chain, draw, cells), and which supplier and period each cell is:
 * worst: :math:`r_s = \max_{s'} r_{s'}`.
 
 Each probability is the mean of an indicator over the draws, with its Monte Carlo standard
-error from :func:`qualbayes.mcse.mcse_mean`.
+error from :func:`qualbayes.inference.mcse.mcse_mean`.
 
 >>> import numpy as np
 >>> theta = np.log(np.full((2, 8, 2), 0.01) / 0.99)
@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.mcse import mcse_mean
+from qualbayes.inference.mcse import mcse_mean
 
 
 def _sigmoid(theta: np.ndarray) -> np.ndarray:

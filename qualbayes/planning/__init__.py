@@ -36,7 +36,7 @@ from qualbayes.planning.mtbf import (
     posterior_mtbf,
 )
 from qualbayes.planning.plans import plan_attribute, plan_life, plan_mtbf, plan_sampling
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.planning.sampling import (
     SamplingPlan,
     acceptance_probability,

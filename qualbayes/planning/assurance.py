@@ -38,7 +38,7 @@ from scipy import integrate, special
 from qualbayes.planning import attribute, mtbf, weibull
 from qualbayes.planning.inputs import count, positive, probability
 from qualbayes.planning.mtbf import GammaPrior
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 
 MAX_ALLOWED_FAILURES = 2000
 DEFAULT_MAX_UNITS = 100_000

@@ -27,7 +27,7 @@ import math
 from scipy import special
 
 from qualbayes.planning.inputs import count, probability
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.search import smallest_int
 
 MAX_UNITS = 10**8

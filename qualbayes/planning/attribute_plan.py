@@ -20,7 +20,7 @@ from qualbayes.planning.plan_common import (
     smallest_table,
     target_mark,
 )
-from qualbayes.planning.priors import MIN_COMPONENT_ESS, RatePrior
+from qualbayes.planning.rate_prior import MIN_COMPONENT_ESS, RatePrior
 from qualbayes.planning.records import (
     ASSUMPTIONS,
     BAYES_ASSUMPTION,

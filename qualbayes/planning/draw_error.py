@@ -15,7 +15,8 @@ of that sample. Two forms occur:
   method :math:`\mathrm{MCSE}(\hat P) = \mathrm{MCSE}\big((u_d - \hat P v_d)/\bar v\big)`
   (the self-normalised importance-sampling error, as in Vehtari et al. 2024, PSIS, eq. 6).
 
-The ESS is that of the per-draw sequence over the chains (:func:`qualbayes.mcse.ess_mean`):
+The ESS is that of the per-draw sequence over the chains
+(:func:`qualbayes.inference.mcse.ess_mean`):
 the components are stored chain after chain, so ``chains`` restores the (chain, draw) shape.
 
 >>> import numpy as np
@@ -30,7 +31,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from qualbayes.mcse import CLOSE_MCSE, mcse_mean
+from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
 
 
 def _by_chain(v, chains: int) -> np.ndarray:

@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from qualbayes.errors import OptionError
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 
 
 @dataclass
@@ -78,7 +78,7 @@ def learn_prior(path, part: str | None = None, sheet: str | None = None,
     ``path``: an inspection export, a pandas DataFrame of lots or a LotTable (the same
     validation as a file)."""
     from qualbayes.data.frames import lots_table, source_sha256  # noqa: PLC0415
-    from qualbayes.inference import SamplerSettings, jax_scope  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import SamplerSettings, jax_scope  # noqa: PLC0415 - jax path
     from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
 
     table = lots_table(path, sheet=sheet, columns=columns)

@@ -41,7 +41,7 @@ from scipy import integrate, optimize, special
 
 from qualbayes.planning import weibull
 from qualbayes.planning.inputs import count, positive, probability
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 
 KEEP_DIGITS = 1e-6  # the signed sum must keep this fraction of its largest term
 LOG_K_LIMIT = 690.0  # k = L^beta kept inside floating point

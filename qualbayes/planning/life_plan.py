@@ -17,7 +17,7 @@ from qualbayes.planning.plan_common import (
     smallest_table,
     target_mark,
 )
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.planning.records import (
     ASSUMPTIONS,
     BAYES_ASSUMPTION,

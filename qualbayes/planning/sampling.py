@@ -42,7 +42,7 @@ from scipy import special, stats
 
 from qualbayes.errors import OptionError
 from qualbayes.planning.inputs import count, probability
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.search import smallest_int
 
 MAX_ACCEPTANCE_NUMBER = 5000

@@ -12,7 +12,7 @@ from qualbayes.planning.plan_common import (
     not_converged_record,
     pct,
 )
-from qualbayes.planning.priors import RatePrior
+from qualbayes.planning.rate_prior import RatePrior
 from qualbayes.planning.records import (
     ASSUMPTIONS,
     HISTORY_ASSUMPTION,

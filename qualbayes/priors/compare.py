@@ -120,8 +120,8 @@ def _plan(result, priors) -> pd.DataFrame:
 
 
 def _life(result, priors, settings) -> pd.DataFrame:
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415
-    from qualbayes.life_analysis import group_data  # noqa: PLC0415
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415
+    from qualbayes.life_question import group_data  # noqa: PLC0415
     from qualbayes.priors.life_sensitivity import life_rows, life_sensitivity  # noqa: PLC0415
 
     if priors is not None:

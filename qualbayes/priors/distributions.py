@@ -116,12 +116,12 @@ class Beta(_Frozen):
         return dist.Beta(self.a, self.b)
 
     def to_lot_prior(self):
-        from qualbayes.models.priors import BetaPrior  # noqa: PLC0415
+        from qualbayes.models.lot_prior import BetaPrior  # noqa: PLC0415
 
         return BetaPrior(self.a, self.b, self.label or f"beta:{self.a:g},{self.b:g}")
 
     def to_rate_prior(self):
-        from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+        from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
 
         return RatePrior.beta(self.a, self.b, self.describe())
 
@@ -195,7 +195,7 @@ class BetaMixture:
                                       dist.Beta(jnp.asarray(self.a), jnp.asarray(self.b)))
 
     def to_rate_prior(self):
-        from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+        from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
 
         if self.weights is not None:
             raise ValueError("plans take equal-weight mixtures (posterior draws)")

@@ -12,7 +12,7 @@ def lots_prior_evidence(result, prior, setup, spec: float, confidence: float,
     only when a prior was ``stated``) and, when ``sensitivity``, the sensitivity table.
     JSON-ready."""
     from qualbayes.evidence.jsonout import plain  # noqa: PLC0415
-    from qualbayes.models.priors import HISTORY, HISTORY_PHI_UNIFORM  # noqa: PLC0415
+    from qualbayes.models.lot_prior import HISTORY, HISTORY_PHI_UNIFORM  # noqa: PLC0415
     from qualbayes.priors.predictive import lots_predictive  # noqa: PLC0415
 
     if prior == HISTORY_PHI_UNIFORM:
@@ -203,7 +203,7 @@ def life_prior_evidence(result, data, prior, setup, sensitivity: bool = False, s
     extras = setup.record() if setup is not None else {
         "prior_words": [], "prior_elicited": [], "earlier_data": None}
     if sensitivity:
-        from qualbayes.life_analysis import group_data  # noqa: PLC0415
+        from qualbayes.life_question import group_data  # noqa: PLC0415
         from qualbayes.priors.life_sensitivity import life_rows, life_sensitivity  # noqa: PLC0415
 
         earlier = setup.earlier if setup is not None else None

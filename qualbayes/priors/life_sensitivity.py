@@ -22,7 +22,8 @@ gives ``not-converged`` for that prior and no probability. So that the runs shar
 code, the prior's numbers (means and sds of the shape and scale parts, the weights of the
 earlier-data and sceptical terms) are arguments of one model function, not constants: runs
 of the same prior structure (which parts are flat, the scale kind and its q or T) compile
-once, and jax's persistent compilation cache (:func:`qualbayes.inference.configure_process`) serves
+once, and jax's persistent compilation cache (:func:`qualbayes.inference.run.configure_process`)
+serves
 the rest.
 """
 
@@ -37,7 +38,7 @@ import numpy as np
 import numpyro  # noqa: E402
 
 from qualbayes import progress
-from qualbayes.inference import SamplerSettings, jax_scope, run_nuts
+from qualbayes.inference.run import SamplerSettings, jax_scope, run_nuts
 from qualbayes.models.weibull import (
     FLAT,
     LifePrior,
@@ -233,7 +234,7 @@ def _extra(earlier, mission: float) -> dict:
 
 def numpy_prior(row: LifeRow, extra: dict) -> LifePrior:
     """The row's prior with its weighted data terms as one LifePrior (for the mode, and for a
-    separate run of :func:`qualbayes.life_analysis.assess_life` with that prior)."""
+    separate run of :func:`qualbayes.life_question.assess_life` with that prior)."""
     terms = []
     for w, st, label in ((row.w_earlier, extra["stats"][0], "earlier data"),
                          (row.w_sceptic, extra["stats"][1], "one failure at the mission time")):
@@ -274,9 +275,9 @@ def _gate_summary(gate) -> dict:
 def life_sensitivity(result, data: dict, rows: list[LifeRow], earlier=None,
                      settings: SamplerSettings | None = None) -> dict:
     """Every group under every prior of ``rows``. ``result`` is the
-    :class:`~qualbayes.life_analysis.LifeAssessment` of the analysis (the as-run row);
+    :class:`~qualbayes.life_question.LifeAssessment` of the analysis (the as-run row);
     ``data`` maps each group to (arrays, GroupStats) as
-    :func:`qualbayes.life_analysis.group_data` gives them."""
+    :func:`qualbayes.life_question.group_data` gives them."""
     stats = {g: st for g, (_, st) in data.items()}
     distinct = {g: int(np.unique(arrays["failures"]).size) for g, (arrays, _) in data.items()}
     settings = settings or SamplerSettings(seed=result.seed)

@@ -30,10 +30,10 @@ def attribute_sensitivity(reliability: float, confidence: float, plans: list[tup
     """For each plan (c allowed failures, n units, as planned): the units each prior would
     need, and whether passing the planned test (c failures in n) demonstrates
     P(R >= R* | data) >= C under each prior. ``as_run_prior``: the analysis prior as a
-    :class:`~qualbayes.planning.priors.RatePrior` for a non-Beta first row (the history
+    :class:`~qualbayes.planning.rate_prior.RatePrior` for a non-Beta first row (the history
     mixture), or None for a classical first row."""
     from qualbayes.planning.attribute import bayes_units  # noqa: PLC0415
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
     from qualbayes.priors.predictive import plan_predictive  # noqa: PLC0415
 
     def prior_of(row):
@@ -129,7 +129,7 @@ def sampling_sensitivity(n: int, c: int, lot_size: int | None, limit: float, lev
     D <= limit N). ``as_run_prior``: the RatePrior of a non-Beta first row (the history
     mixture); a 'classical' first row (no lot-quality prior) makes no such statement."""
     from qualbayes.planning import sampling  # noqa: PLC0415
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
     from qualbayes.priors.predictive import plan_predictive  # noqa: PLC0415
 
     results = []
@@ -176,7 +176,7 @@ def life_plan_sensitivity(reliability: float, confidence: float, mission: float,
     test demonstrates P(R(mission) >= R* | data) >= C under each prior (the priors are on
     p = 1 - R(mission); :mod:`qualbayes.planning.life_bayes`)."""
     from qualbayes.planning import life_bayes  # noqa: PLC0415
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
 
     items = []
     for c, ratio in plans:
@@ -219,7 +219,7 @@ def life_plan_predictive(row: PriorRow, units: int, ratio: float | None, allowed
     """Failures among n units run to the mission time (beta-binomial) and, for the planned
     test, the chance it passes under the prior (its assurance)."""
     from qualbayes.planning.assurance import life_assurance  # noqa: PLC0415
-    from qualbayes.planning.priors import RatePrior  # noqa: PLC0415
+    from qualbayes.planning.rate_prior import RatePrior  # noqa: PLC0415
     from qualbayes.priors.predictive import beta_expectations  # noqa: PLC0415
 
     a, b = row.params["a"], row.params["b"]

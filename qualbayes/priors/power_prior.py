@@ -101,7 +101,7 @@ def parse_counts(text: str) -> EarlierCounts | None:
 
 def counts_from_lots(path, sheet=None, columns=None) -> EarlierCounts:
     """Pool an earlier inspection file (the lots format) into x0 defectives in n0 units."""
-    from qualbayes.data.lots import read_lots  # noqa: PLC0415
+    from qualbayes.data.lot_table import read_lots  # noqa: PLC0415
     from qualbayes.provenance import sha256_file  # noqa: PLC0415
 
     table = read_lots(path, sheet=sheet, columns=columns)

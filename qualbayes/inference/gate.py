@@ -8,7 +8,7 @@ divergent transitions. The older "R-hat < 1.1, ESS >= 100" rule is not used (see
 The gate judges the model's parameters (e.g. mu and log kappa of a part, log shape and log
 scale of a group), never a derived quantity such as R(mission), which can saturate at 0 or 1
 and then has no R-hat at all. Diagnostics come from one vectorised call per variable
-(:mod:`qualbayes.diagnostics`, numpy; no ArviZ import) and every parameter carries its
+(:mod:`qualbayes.inference.diagnostics`, numpy; no ArviZ import) and every parameter carries its
 coordinates (``{"part": "X[1"}``), so selecting one part is an equality on coordinates,
 never a match on the end of a label. A parameter whose draws never vary is reported as
 constant (the sampler did not move): convergence is not shown and the gate fails.
@@ -156,7 +156,7 @@ def diagnose_arrays(draws: dict, divergences: int, attempts: int = 1,
     """Diagnostics of ``{variable: array (chain, draw, *shape)}``, one vectorised call per
     variable. ``dims[variable]`` names the trailing axes and ``coords[dim]`` their labels,
     so every element knows its coordinates (e.g. ``{"part": "A"}``)."""
-    from qualbayes import diagnostics  # noqa: PLC0415
+    from qualbayes.inference import diagnostics  # noqa: PLC0415
 
     dims, coords = dims or {}, coords or {}
     params = []

@@ -9,15 +9,15 @@ from __future__ import annotations
 import pandas as pd
 
 from qualbayes import cross_check
-from qualbayes.acceptance import LotAssessment
 from qualbayes.caution import CAUTION, STANDARDS
-from qualbayes.data.lots import LotTable
+from qualbayes.data.lot_table import LotTable
 from qualbayes.evidence.explain import HISTORY_NOTE, NEXT_STEP, gate_line, lots_columns
 from qualbayes.evidence.jsonout import plain, without_draws  # noqa: F401 - re-export
 from qualbayes.evidence.numbers import count, plural, probability, rate
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
-from qualbayes.gate import ESS_MIN, RHAT_MAX
+from qualbayes.inference.gate import ESS_MIN, RHAT_MAX
+from qualbayes.lot_question import LotAssessment
 
 BASIS_WORDS = {
     "lot": "the lot itself: its fraction defective (x + D)/N, D the defectives among the N - n "

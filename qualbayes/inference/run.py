@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from qualbayes import progress
-from qualbayes.gate import GateResult, diagnose, diagnose_arrays
+from qualbayes.inference.gate import GateResult, diagnose, diagnose_arrays
 
 HOST_DEVICES = 4  # the default number of chains
 

@@ -114,7 +114,7 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
     with ``compare_models`` the lognormal and exponential fits and their PSIS-LOO comparison,
     with ``check_fit`` the posterior predictive check of failures in time bins.
     """
-    from qualbayes.inference import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.life_compare import pairs  # noqa: PLC0415
     from qualbayes.life_extras import add_extras  # noqa: PLC0415
     from qualbayes.models.life import fit_life  # noqa: PLC0415

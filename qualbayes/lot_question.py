@@ -12,12 +12,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from qualbayes.data.lots import LotTable
+from qualbayes.data.lot_table import LotTable
 from qualbayes.lot_answers import RESULT_COLUMNS, answer_lots, lot_notes, own_data_columns
 from qualbayes.lot_decisions import LOT, PROCESS
 from qualbayes.lot_decisions import extra_clean_units as _extra
+from qualbayes.models.lot_prior import HISTORY, HISTORY_PHI_UNIFORM, BetaPrior
 from qualbayes.models.lot_spread import HistoryPrior, PhiUniformPrior
-from qualbayes.models.priors import HISTORY, HISTORY_PHI_UNIFORM, BetaPrior
 
 GROUP_COLUMNS = ("part", "supplier")
 #: Close calls draw more: up to this many further NUTS runs of the same size, each adding
@@ -79,7 +79,7 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
     group_by = _check_group_by(group_by)
     hyper = _history_prior(prior, lot_spread)
     if hyper is None and isinstance(prior, str):
-        from qualbayes.models.priors import parse_lot_prior  # noqa: PLC0415
+        from qualbayes.models.lot_prior import parse_lot_prior  # noqa: PLC0415
 
         prior = parse_lot_prior(prior)
     frame = table.frame.copy()

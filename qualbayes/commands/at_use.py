@@ -43,6 +43,7 @@ def add_stress_options(p: argparse.ArgumentParser) -> None:
 
 def register(sub) -> None:
     from qualbayes.commands.common import (  # noqa: PLC0415
+        FIRST_SHEET_HELP,
         HelpFormatter,
         add_input_options,
         add_output_options,
@@ -59,7 +60,8 @@ def register(sub) -> None:
         formatter_class=HelpFormatter)
     from qualbayes.commands.life import LIFE_COLUMNS_EXAMPLE  # noqa: PLC0415
 
-    add_input_options(p, LIFE_COLUMNS_EXAMPLE)  # FILE: rows as for 'life', plus the stress
+    # FILE: rows as for 'life', plus the stress (read from the first visible sheet)
+    add_input_options(p, LIFE_COLUMNS_EXAMPLE, FIRST_SHEET_HELP)
     p.add_argument("--group", metavar="NAME", help="analyse only this group of the file")
     add_stress_options(p)
     p.add_argument("--mission", required=True, help="mission time at use, in the file's units")

@@ -1,4 +1,5 @@
-"""``qualbayes report RUN.json --out DIR``: rebuild a report from a saved run record.
+"""``qualbayes report RUN.json --out DIR`` (or ``--report DIR``): rebuild a report from a saved
+run record (lots, life, plan, at-use, returns and supplier scorecard records).
 
 The record is read as untrusted input (:mod:`qualbayes.evidence.run_record`): file kind, size,
 depth, every key the report uses, its digest, and every decision against its probability and
@@ -14,7 +15,8 @@ def register(sub) -> None:
                        description="Rebuilds report.html, report.pdf, evidence.xlsx and the "
                                    "figures from run.json, with identical tables.")
     p.add_argument("record", help="run.json of an earlier run (in its report folder)")
-    p.add_argument("--out", required=True, metavar="DIR", help="new report folder")
+    p.add_argument("--out", "--report", dest="out", required=True, metavar="DIR",
+                   help="new report folder")
     p.add_argument("--force", action="store_true",
                    help="replace DIR if it holds an earlier qualbayes report")
     p.set_defaults(func=run)

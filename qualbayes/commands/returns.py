@@ -18,6 +18,7 @@ FLEET_COLUMNS_EXAMPLE = "age=Hours Run,count=Units Fitted,group=Site"
 def register(sub) -> None:
     from qualbayes.commands.at_use import add_stress_options  # noqa: PLC0415
     from qualbayes.commands.common import (  # noqa: PLC0415
+        FIRST_SHEET_HELP,
         HelpFormatter,
         add_input_options,
         add_output_options,
@@ -31,7 +32,7 @@ def register(sub) -> None:
                     "the horizon, conditioned on every unit having survived to its present "
                     "age; per group and for all units.",
         formatter_class=HelpFormatter)
-    add_input_options(p, FLEET_COLUMNS_EXAMPLE)  # FILE: the installed base
+    add_input_options(p, FLEET_COLUMNS_EXAMPLE, FIRST_SHEET_HELP)  # FILE: the installed base
     p.add_argument("--life", required=True, metavar="LIFE_FILE",
                    help="life data (as for 'life', or with stress columns for 'at-use')")
     p.add_argument("--life-sheet", help="xlsx sheet of the life data")

@@ -9,7 +9,7 @@ at-use and returns records.)"""
 
 from __future__ import annotations
 
-from qualbayes.commands.common import HelpFormatter, add_analyst_option, add_input_options
+from qualbayes.commands.common import HelpFormatter, add_input_options, add_output_options
 from qualbayes.commands.inputs import add_export_options
 
 WORKBOOK = "supplier_scorecard.xlsx"
@@ -32,16 +32,10 @@ def register(sub) -> None:
     p.add_argument("--spec", required=True, help="defect-rate limit: 0.01, 1%% or 10000ppm")
     p.add_argument("--period", choices=("quarter", "month"),
                    help="also rate each supplier per quarter or month of the date column")
-    p.add_argument("--confidence", default="0.95",
-                   help="confidence C for bounds and calls, strictly between 0.5 and 1")
-    p.add_argument("--seed", type=int, default=20261202, help="random seed for the sampler")
-    p.add_argument("--json", action="store_true", help="write one JSON document to stdout")
-    p.add_argument("--out", metavar="DIR",
-                   help="write the workbook, run record and chart into DIR")
-    p.add_argument("--force", action="store_true",
-                   help="allow replacing files of an earlier run in --out")
-    add_analyst_option(p)
-    p.set_defaults(func=run, report=None)
+    add_output_options(p, out_help="write the workbook, run record and chart into DIR",
+                       confidence_help="confidence C for bounds and calls, strictly between "
+                                       "0.5 and 1")
+    p.set_defaults(func=run)
 
 
 def run(args) -> int:
@@ -53,6 +47,7 @@ def run(args) -> int:
 
     def compute() -> dict:
         from qualbayes.commands.inputs import read_lot_inputs, source_evidence  # noqa: PLC0415
+        from qualbayes.evidence.numbers import rate_unit_of  # noqa: PLC0415
         from qualbayes.evidence.suppliers_record import suppliers_record  # noqa: PLC0415
         from qualbayes.provenance import command_line, versions  # noqa: PLC0415
         from qualbayes.scorecard import assess_suppliers, scorecard_cells  # noqa: PLC0415
@@ -61,7 +56,7 @@ def run(args) -> int:
         scorecard_cells(data, args.period)  # refuse missing suppliers or dates before sampling
         result = assess_suppliers(data, spec, confidence, period=args.period, seed=args.seed)
         record = suppliers_record(result, data, data.sha256, command_line(args.argv),
-                                  versions())
+                                  versions(), rate_unit=rate_unit_of(args.spec))
         source_evidence(record, data, ["lot"])
         return record
 
@@ -77,11 +72,10 @@ def _evidence(record: dict) -> dict:
     """The files of --out DIR: workbook, run record (with the draws) and chart, rendered from
     the record and written as one group by the pipeline."""
     from qualbayes.commands.pipeline import record_writer  # noqa: PLC0415
-    from qualbayes.evidence.inputs_sheets import with_input_rows  # noqa: PLC0415
     from qualbayes.evidence.supplier_plots import figure_writer  # noqa: PLC0415
     from qualbayes.evidence.suppliers_record import suppliers_sheets  # noqa: PLC0415
     from qualbayes.evidence.workbook import workbook_writer  # noqa: PLC0415
 
-    return {WORKBOOK: workbook_writer(with_input_rows(suppliers_sheets(record), record)),
+    return {WORKBOOK: workbook_writer(suppliers_sheets(record)),
             RECORD: record_writer(record),
             FIGURE: figure_writer(record)}

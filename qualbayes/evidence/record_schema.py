@@ -70,6 +70,36 @@ SCHEMAS = {
                    "curve?": "dict"},
         "points?": "dict",
     },
+    "suppliers": {
+        **COMMON,
+        "question": {"spec": "conf", "confidence": "conf", "period": "str|none",
+                     "rate_unit?": "str", "asked": "str", "rate": "str", "interval": "str",
+                     "upper_bound": "str"},
+        "input": {"file": "str", "sheet?": "str|none", "sha256": "str", "header_row": "int",
+                  "rows_read": "count", "columns": "dict", "notes": ["str"],
+                  "sources?": [{"file": "str", "sha256": "str"}],
+                  "rows_skipped?": [{"row": "int", "reason": "str"}],
+                  "columns_not_used?": ["any"]},
+        "model": "str", "prior": "dict", "seed": "int", "hyper_medians": "dict",
+        "diagnostics": {**GATE, "parameters": [{"name": "str", "rhat": "num|none",
+                                                "ess_bulk": "num|none", "ess_tail": "num|none",
+                                                "passed": "bool"}],
+                        "attempts": "count", "divergences": "count"},
+        "notes": ["str"],
+        "suppliers": [{"rank": "int", "supplier": "str", "lots": "count", "inspected": "count",
+                       "defectives": "count", "periods": "count",
+                       "latest_period": "str|none", "rate_median": "prob|none",
+                       "rate_upper": "prob|none", "prob_above": "prob|none",
+                       "prob_above_mcse": "num|none", "prob_worst": "prob|none",
+                       "prob_worst_mcse": "num|none", "prob_latest_worse": "prob|none",
+                       "prob_latest_worse_mcse": "num|none", "limit_call": "str",
+                       "latest_call": "str|none"}],
+        "periods": [{"supplier": "str", "period": "str", "lots": "count", "inspected": "count",
+                     "defectives": "count", "rate_median": "prob|none",
+                     "interval_low": "prob|none", "interval_high": "prob|none",
+                     "rate_upper": "prob|none", "prob_above": "prob|none",
+                     "prob_above_mcse": "num|none"}],
+    },
     "returns": {
         **COMMON,
         "question": {"horizon": "int", "period": "str", "usage": "pos", "confidence": "conf",
@@ -138,9 +168,56 @@ def _check(path, key: str, spec, value) -> None:
 def check_schema(path, record: dict) -> None:
     """Refuse (InputError, exit 2) the first key whose value is missing or malformed."""
     _check(path, "", SCHEMAS[record["kind"]], record)
+    if record["kind"] == "suppliers":
+        _check_suppliers(path, record)
     if record["kind"] == "lots":
         for part, gate in record["diagnostics"].items():
             _check(path, f"diagnostics.{part}", GATE, gate)
         for i, lot in enumerate(record["lots"]):
             if lot["defectives"] > lot["inspected"]:
                 raise _fail(path, f"lots[{i}].defectives", "exceeds the units inspected")
+
+
+RATE_UNITS = ("%", "ppm")
+
+
+def _check_suppliers(path, record: dict) -> None:
+    """What the scorecard's renderers rely on beyond types: a known rate unit, counts that
+    add up, ranks 1..S, each supplier once, every period row naming a listed supplier."""
+    unit = record["question"].get("rate_unit", "%")
+    if unit not in RATE_UNITS:
+        raise _fail(path, "question.rate_unit", f"expected one of {', '.join(RATE_UNITS)}, "
+                    f"found {_shown(unit)}")
+    names = []
+    for key in ("suppliers", "periods"):
+        for i, row in enumerate(record[key]):
+            if row["defectives"] > row["inspected"]:
+                raise _fail(path, f"{key}[{i}].defectives", "exceeds the units inspected")
+            if key == "periods" and row["inspected"] == 0:
+                raise _fail(path, f"{key}[{i}].inspected", "is 0; a period with lots has "
+                            "units inspected")
+            if key == "suppliers":
+                names.append(row["supplier"])
+    if len(set(names)) != len(names):
+        raise _fail(path, "suppliers", "names a supplier more than once")
+    ranks = [row["rank"] for row in record["suppliers"]]
+    if ranks != list(range(1, len(ranks) + 1)):
+        raise _fail(path, "suppliers", f"ranks {_shown(ranks)} are not 1, 2, ... in order")
+    known = set(names)
+    for i, row in enumerate(record["periods"]):
+        if row["supplier"] not in known:
+            raise _fail(path, f"periods[{i}].supplier", f"{_shown(row['supplier'])} is not "
+                        "among the suppliers")
+    for name, total in _totals(record["periods"]).items():
+        row = record["suppliers"][names.index(name)]
+        if (row["lots"], row["inspected"], row["defectives"]) != total:
+            raise _fail(path, f"suppliers[{names.index(name)}]", f"the counts of "
+                        f"{_shown(name)} differ from the sum of its periods")
+
+
+def _totals(periods: list[dict]) -> dict:
+    out: dict = {}
+    for p in periods:
+        lots, n, x = out.get(p["supplier"], (0, 0, 0))
+        out[p["supplier"]] = (lots + p["lots"], n + p["inspected"], x + p["defectives"])
+    return out

@@ -18,6 +18,8 @@ KINDS = {
                "qualbayes.evidence.accelerated_record:at_use_sheets"),
     "returns": ("qualbayes.evidence.forecast_report:build",
                 "qualbayes.evidence.forecast_record:returns_sheets"),
+    "suppliers": ("qualbayes.evidence.supplier_report:build",
+                  "qualbayes.evidence.suppliers_record:suppliers_sheets"),
 }
 
 FILES = ("report.html", "report.pdf", "evidence.xlsx", "run.json")

@@ -32,7 +32,7 @@ MAX_DEPTH = 40
 MAX_NUMBER_CHARS = 40
 STAMP_KEYS = ("schema_version", "created_utc", "report_id", "tool_version")
 #: Keys whose list items get their own digest (the results people act on).
-ITEM_KEYS = ("lots", "groups", "tables")
+ITEM_KEYS = ("lots", "groups", "tables", "suppliers", "periods")
 ACCEPTING = {"accept", "meets"}
 REJECTING = {"reject", "does-not-meet"}
 NO_VERDICT = "not-converged"
@@ -208,8 +208,11 @@ def _describe(record: dict, key: str) -> str:
     if not m:
         return f"key {key!r}"
     item = record.get(m[1], [])[int(m[2])] if int(m[2]) < len(record.get(m[1], [])) else {}
-    label = item.get("lot") or item.get("group") or item.get("title") if isinstance(
-        item, dict) else None
+    label = None
+    if isinstance(item, dict):
+        label = item.get("lot") or item.get("group") or item.get("title")
+        if label is None and item.get("supplier") is not None:
+            label = " ".join(str(item[k]) for k in ("supplier", "period") if item.get(k))
     return f"key {m[1]!r} item {int(m[2]) + 1}" + (f" ({label!r})" if label else "")
 
 
@@ -237,6 +240,10 @@ def check_decisions(path, record: dict) -> None:
         _check_at_use(path, record)
     elif kind == "returns":
         _check_returns(path, record)
+    elif kind == "suppliers":
+        from qualbayes.evidence.supplier_checks import check_supplier_calls  # noqa: PLC0415
+
+        check_supplier_calls(path, record)
 
 
 AT_USE_VERDICTS = {"accept": "meets", "reject": "does-not-meet", "undecided": "undecided",

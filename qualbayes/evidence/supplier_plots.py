@@ -5,9 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from qualbayes.evidence.numbers import rate
 from qualbayes.evidence.plots import INK, LIGHT, MID, pyplot
 
 MAX_PANELS = 12  # the worst suppliers first; the workbook holds every supplier
+SCALE = {"%": 100.0, "ppm": 1e6}  # rates drawn in the unit the limit was written in
 
 
 def rates_figure(record: dict):
@@ -16,10 +18,12 @@ def rates_figure(record: dict):
     plt = pyplot()
     q = record["question"]
     spec, c = q["spec"], q["confidence"]
+    unit = q.get("rate_unit") or "%"
+    k = SCALE.get(unit, 100.0)
     ranked = [s["supplier"] for s in record["suppliers"]]
     cells = record["periods"]
     if not q["period"]:
-        return _one_panel(plt, ranked, cells, spec, c)
+        return _one_panel(plt, ranked, cells, spec, c, unit)
     shown = ranked[:MAX_PANELS]
     cols = min(3, len(shown))
     rows = int(np.ceil(len(shown) / cols))
@@ -29,56 +33,57 @@ def rates_figure(record: dict):
     for ax, name in zip(axes.ravel(), shown, strict=False):
         mine = [cell for cell in cells if cell["supplier"] == name]
         x = np.array([labels.index(cell["period"]) for cell in mine])
-        _points(ax, x, mine)
-        ax.axhline(100 * spec, color=MID, linestyle="--", linewidth=0.8)
+        _points(ax, x, mine, k)
+        ax.axhline(k * spec, color=MID, linestyle="--", linewidth=0.8)
         ax.set_title(name)
         ax.set_xticks(range(len(labels)))
         ax.set_xticklabels(labels, rotation=60, ha="right")
     for ax in axes[:, 0]:
-        ax.set_ylabel("defect rate, %")
+        ax.set_ylabel(f"defect rate, {unit}")
     for ax in axes.ravel()[len(shown):]:
         ax.axis("off")
     more = f"; {len(ranked) - len(shown)} more in the workbook" if len(ranked) > len(shown) \
         else ""
     fig.suptitle(f"Defect rate per {q['period']}: median and central {c:.0%} interval; "
-                 f"dashed: limit {100 * spec:.3g}%{more}", y=1.0, fontsize=9)
+                 f"dashed: limit {rate(spec, unit)}{more}", y=1.0, fontsize=9)
     fig.tight_layout()
     return fig
 
 
-def _points(ax, x, cells) -> None:
+def _points(ax, x, cells, k: float) -> None:
     if any(cell["rate_median"] is None for cell in cells):  # failed gate: counts only
-        rate = [100 * cell["defectives"] / cell["inspected"] for cell in cells]
-        ax.plot(x, rate, "x", color=LIGHT, label="observed x/n (no posterior: gate failed)")
+        observed = [k * cell["defectives"] / cell["inspected"] for cell in cells]
+        ax.plot(x, observed, "x", color=LIGHT, label="observed x/n (no posterior: gate failed)")
         return
-    med = np.array([100 * cell["rate_median"] for cell in cells])
-    low = np.array([100 * cell["interval_low"] for cell in cells])
-    high = np.array([100 * cell["interval_high"] for cell in cells])
+    med = np.array([k * cell["rate_median"] for cell in cells])
+    low = np.array([k * cell["interval_low"] for cell in cells])
+    high = np.array([k * cell["interval_high"] for cell in cells])
     ax.errorbar(x, med, yerr=[med - low, high - med], fmt="o", color=INK, markersize=3,
                 capsize=2, linewidth=0.9)
 
 
-def _one_panel(plt, ranked, cells, spec, c):
+def _one_panel(plt, ranked, cells, spec, c, unit):
+    k = SCALE.get(unit, 100.0)
     shown = ranked[:40]
     fig, ax = plt.subplots(figsize=(6.0, 0.22 * len(shown) + 1.0))
     by_name = {cell["supplier"]: cell for cell in cells}
     chosen = [by_name[name] for name in shown][::-1]
     y = np.arange(len(chosen))
     if any(cell["rate_median"] is None for cell in chosen):
-        ax.plot([100 * cell["defectives"] / cell["inspected"] for cell in chosen], y, "x",
-                color=LIGHT)
+        ax.plot([k * cell["defectives"] / cell["inspected"] for cell in chosen], y, "x",
+                color=LIGHT, label="observed x/n (no posterior: gate failed)")
     else:
-        med = np.array([100 * cell["rate_median"] for cell in chosen])
-        low = np.array([100 * cell["interval_low"] for cell in chosen])
-        high = np.array([100 * cell["interval_high"] for cell in chosen])
+        med = np.array([k * cell["rate_median"] for cell in chosen])
+        low = np.array([k * cell["interval_low"] for cell in chosen])
+        high = np.array([k * cell["interval_high"] for cell in chosen])
         ax.errorbar(med, y, xerr=[med - low, high - med], fmt="o", color=INK, markersize=3,
                     capsize=2, linewidth=0.9)
-    ax.axvline(100 * spec, color=MID, linestyle="--", linewidth=0.8)
+    ax.axvline(k * spec, color=MID, linestyle="--", linewidth=0.8)
     ax.set_yticks(y)
     ax.set_yticklabels([cell["supplier"] for cell in chosen])
-    ax.set_xlabel("defect rate, %")
+    ax.set_xlabel(f"defect rate, {unit}")
     ax.set_title(f"Defect rate per supplier: median and central {c:.0%} interval; dashed: "
-                 f"limit {100 * spec:.3g}%")
+                 f"limit {rate(spec, unit)}")
     fig.tight_layout()
     return fig
 

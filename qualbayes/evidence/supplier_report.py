@@ -94,11 +94,15 @@ def inputs_section(record: dict) -> Section:
     if len(sources) > 1:
         blocks.append(Paragraph("Several files were read and stacked; the SHA-256 above is "
                                 "that of the list of the files' digests. Each file:"))
-        blocks.append(Table(
-            ["file", "sheet", "SHA-256 (full)", "header row", "lots read", "rows left out"],
-            [[s.get("file"), s.get("sheet"), s.get("sha256"), s.get("header_row"),
-              s.get("lots", s.get("units")), s.get("skipped")] for s in sources],
-            id="input-files", style="kv"))
+        rows = []
+        for k, src in enumerate(sources, start=1):
+            rows += [[f"file {k}", src.get("file")], [f"file {k}: SHA-256 (full)",
+                                                      src.get("sha256")],
+                     [f"file {k}: sheet, header row", f"{src.get('sheet') or '-'}, row "
+                      f"{src.get('header_row')}"],
+                     [f"file {k}: lots read, rows left out",
+                      f"{src.get('lots', src.get('units'))}, {src.get('skipped', 0)}"]]
+        blocks.append(Table(["item", "value"], rows, id="input-files", style="kv"))
     skipped = i.get("rows_skipped") or []
     if skipped:
         blocks.append(Table(

@@ -116,7 +116,10 @@ def suppliers_text(record: dict) -> str:
             f"input: {inp['file']}" + (f" [sheet {inp['sheet']}]" if inp["sheet"] else "")
             + f", {plural(inp['rows_read'], 'lot')}, sha256 {inp['sha256'][:16]}...",
             f"rate: {q['rate']}; upper: {q['upper_bound']}; ± is the Monte Carlo standard "
-            "error", gate_words(d)]
+            "error",
+            f"convergence gate: {'passed' if d['passed'] else 'FAILED - no verdict'} "
+            f"(max R-hat {d['max_rhat']:.4f}, min bulk ESS {d['min_ess_bulk']:.0f}, min tail "
+            f"ESS {d['min_ess_tail']:.0f}, divergences {d['divergences']})"]
     head += [f"  - {r}" for r in d["reasons"][:10]]
     c = q["confidence"]
     headers = ["rank", "supplier", "lots", "n", "x", "median", f"{c:.0%} upper",

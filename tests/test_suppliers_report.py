@@ -75,7 +75,7 @@ def _record(rep: Path) -> dict:
 def _rebuild(record: dict, tmp_path: Path, capsys) -> tuple[int, Path, str]:
     """Write ``record`` as a file and rebuild its report; (exit code, folder, stderr)."""
     src = tmp_path / "in" / "run.json"
-    src.parent.mkdir(exist_ok=True)
+    src.parent.mkdir(parents=True, exist_ok=True)
     src.write_text(json.dumps(record))
     new = tmp_path / "rebuilt"
     code = main(["report", str(src), "--report", str(new)])
@@ -275,6 +275,39 @@ def test_failed_gate_record_gives_no_verdict_and_says_so_first(run, tmp_path, ca
     summary = parse(html).tables[0]
     assert {r[5] for r in summary[1:]} == {"not-converged"}
     assert {r[4] for r in summary[1:]} == {"-"}  # no probability
+
+
+def test_a_record_without_periods_rebuilds_with_one_row_per_supplier(run, tmp_path, capsys):
+    # rendering only: the record is reshaped as the scorecard writes it without --period
+    # (one "(all)" cell per supplier, no latest-period call)
+    record = _record(run[0])
+    record["question"]["period"] = None
+    cells = []
+    for s in record["suppliers"]:
+        mine = [p for p in record["periods"] if p["supplier"] == s["supplier"]]
+        s.update(latest_period=None, prob_latest_worse=None, prob_latest_worse_mcse=None,
+                 latest_call=None, periods=1)
+        cells.append({**mine[0], "period": "(all)", "lots": s["lots"],
+                      "inspected": s["inspected"], "defectives": s["defectives"],
+                      "rate_median": s["rate_median"], "rate_upper": s["rate_upper"],
+                      "interval_low": min(p["interval_low"] for p in mine),
+                      "interval_high": max(p["interval_high"] for p in mine),
+                      "prob_above": s["prob_above"], "prob_above_mcse": s["prob_above_mcse"]})
+    record["periods"] = cells
+    code, new, err = _rebuild(seal(record), tmp_path, capsys)
+    assert code == 0, err
+    page = parse((new / "report.html").read_text())
+    assert page.tables[0][0][-1] == "P(worst) ± MCSE"  # no latest-period columns
+    assert [r[1] for r in page.tables[0][1:]] == [s["supplier"] for s in record["suppliers"]]
+    from qualbayes.evidence.supplier_plots import rates_figure
+
+    fig = rates_figure(record)
+    assert [t.get_text() for t in fig.axes[0].get_yticklabels()] == [
+        s["supplier"] for s in record["suppliers"]][::-1]
+    # a latest-period call in a record without periods is refused
+    record["suppliers"][0]["latest_call"] = "worse"
+    code, new, err = _rebuild(seal(record), tmp_path / "again", capsys)
+    assert code == 2 and "no periods were asked for" in err and not new.exists()
 
 
 # ------------------------------------------------------------------ refused, nothing written

@@ -397,3 +397,13 @@ def test_sheet_help_says_how_the_sheet_is_picked():
         words = " ".join(text.getvalue().split())
         assert "first visible" not in words, command
         assert "needed columns" in words, command
+        for option in re.split(r"\s(?=--[a-z])", words):
+            assert option.count("default") <= 1, option
+        if command == "suppliers":
+            assert "--report DIR" in words and "--analyst NAME" in words
+    # stress-life and fleet files are read from the first visible sheet: their help says so
+    for command in ("at-use", "returns"):
+        text = io.StringIO()
+        with contextlib.redirect_stdout(text), pytest.raises(SystemExit):
+            build_parser().parse_args([command, "--help"])
+        assert "default: the first visible one" in " ".join(text.getvalue().split())

@@ -75,8 +75,10 @@ def _run_dask(parts, spec, confidence, prior, size, processes, scheduler) -> dic
     except ImportError as err:
         from qualbayes.errors import ParameterError  # noqa: PLC0415
 
-        raise ParameterError("processes/scheduler: running the batch over processes needs "
-                             "Dask: pip install 'qualbayes[cluster]'") from err
+        raise ParameterError("processes" if processes is not None else "scheduler",
+                             processes if processes is not None else scheduler,
+                             "running the batch over processes needs Dask: pip install "
+                             "'qualbayes[cluster]'") from err
     from qualbayes.progress import task  # noqa: PLC0415
 
     cluster = None

@@ -37,7 +37,8 @@ from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
 
 GRID_SIZE = 160
-SUMMARY_TAIL = 1e-6  # mass left out of the nodes used for bounds, means and counts
+SUMMARY_TAIL = 1e-5  # mass left out of the nodes used for bounds, means and counts
+PRUNE = 1e-10  # grid points lighter than this in both grids are left out of P (mass in error)
 MAX_PMF_TERMS = 2**22  # nodes x counts summed for the defectives left; beyond: continuous
 METHOD = ("2-D quadrature of (logit mu, log(tau - tau_lo)) on a {size} x {size} grid; error "
           "of P: 2 |P - P on the grid of every other point| + mass on the border")
@@ -180,12 +181,15 @@ def answer_group(g: grid.GridPosterior, x, n, lot_size, basis, spec: float,
     uniq, index = combos(x, n, lot_size, basis)
     k = len(uniq)
     prob, err, exact = np.empty(k), np.empty(k), np.ones(k, bool)
+    heavy = (g.weight > PRUNE) | (g.weight_half > PRUNE)  # the rest: at most their mass
+    dropped = max(float(g.weight[~heavy].sum()), float(g.weight_half[~heavy].sum()))
+    ga, gb, gw, gh = g.a[heavy], g.b[heavy], g.weight[heavy], g.weight_half[heavy]
     for j, (cx, cn, cs, cl) in enumerate(uniq):
         size = None if cs < 0 else int(cs)
         rem = None if size is None else size - int(cn)
-        gv, ok = draws_g(g.a, g.b, cx, cn, rem, spec, LOT if cl else PROCESS, size)
-        prob[j], exact[j] = float(g.weight @ gv), ok
-        err[j] = 2.0 * abs(prob[j] - float(g.weight_half @ gv)) + g.edge_mass
+        gv, ok = draws_g(ga, gb, cx, cn, rem, spec, LOT if cl else PROCESS, size)
+        prob[j], exact[j] = float(gw @ gv), ok
+        err[j] = 2.0 * abs(prob[j] - float(gh @ gv)) + g.edge_mass + dropped
     prob = np.clip(prob, 0.0, 1.0)
     dec, close = decide(prob, err, uniq[:, 0], confidence)
     a, b, w = _summary_nodes(g)

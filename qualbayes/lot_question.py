@@ -134,18 +134,20 @@ def _check_engine(engine, hyper, processes, scheduler) -> None:
     from qualbayes.errors import ParameterError  # noqa: PLC0415
 
     if engine not in ("nuts", "quadrature"):
-        raise ParameterError(f"engine {engine!r}: choose 'nuts' or 'quadrature'")
+        raise ParameterError("engine", engine, "choose 'nuts' or 'quadrature'")
     if engine == "quadrature" and hyper is None:
-        raise ParameterError("engine 'quadrature' answers the history prior: a Beta prior has "
-                             "a closed form and needs no engine")
+        raise ParameterError("engine", engine, "quadrature answers the history prior: a Beta "
+                             "prior has a closed form and needs no engine")
     if (processes is not None or scheduler is not None) and engine != "quadrature":
-        raise ParameterError("processes/scheduler split the quadrature batch: give them with "
-                             "engine='quadrature'")
+        raise ParameterError("processes" if processes is not None else "scheduler",
+                             processes if processes is not None else scheduler,
+                             "processes and scheduler split the quadrature batch: give them "
+                             "with engine='quadrature'")
     if processes is not None and (isinstance(processes, bool) or not isinstance(processes, int)
-                                or not 1 <= processes <= 1024):
-        raise ParameterError(f"processes {processes!r}: a whole number of processes, 1 to 1024")
+                                  or not 1 <= processes <= 1024):
+        raise ParameterError("processes", processes, "a whole number of processes, 1 to 1024")
     if scheduler is not None and (not isinstance(scheduler, str) or not scheduler.strip()):
-        raise ParameterError(f"scheduler {scheduler!r}: a Dask scheduler address such as "
+        raise ParameterError("scheduler", scheduler, "a Dask scheduler address such as "
                              "'tcp://10.0.0.5:8786'")
 
 

@@ -9,9 +9,10 @@ nodes :math:`(a_i, b_i) = (\mu_i\kappa_i, (1-\mu_i)\kappa_i)` with weights :math
 * :math:`P = \sum_i w_i\, g(a_i, b_i)` with the same :math:`g` as the draws'
   (:func:`qualbayes.lot_decisions.draws_g`: the rate's CDF at the limit, or on the lot basis
   the beta-binomial CDF of the defectives left);
-* its **quadrature error** :math:`\epsilon = 2|P - P_{1/2}| + m_{edge}`, :math:`P_{1/2}` the
-  same sum on the grid of every other point (half the points per side, same box) and
-  :math:`m_{edge}` the mass on the grid's border; the decision is accept when
+* its **quadrature error** :math:`\epsilon = 2\max|P - P_{1/2}| + m_{edge}`, the largest
+  over the group's lots and its next lot, :math:`P_{1/2}` the same sum on the grid of every
+  other point (half the points per side, same box) and :math:`m_{edge}` the mass on the
+  grid's border and left out; the decision is accept when
   :math:`P \ge C`, reject when :math:`1 - P \ge C` and the lot has a defective, undecided
   otherwise, and *too close to call* (undecided) when C is within :math:`\epsilon` of P or
   of 1 - P: the rule of the draws with the Monte Carlo error replaced by the quadrature error;
@@ -41,7 +42,8 @@ SUMMARY_TAIL = 1e-5  # mass left out of the nodes used for bounds, means and cou
 PRUNE = 1e-10  # grid points lighter than this in both grids are left out of P (mass in error)
 MAX_PMF_TERMS = 2**22  # nodes x counts summed for the defectives left; beyond: continuous
 METHOD = ("2-D quadrature of (logit mu, log(tau - tau_lo)) on a {size} x {size} grid; error "
-          "of P: 2 |P - P on the grid of every other point| + mass on the border")
+          "of P: twice the group's largest |P - P on the grid of every other point| + mass "
+          "on the border")
 
 
 def combos(x, n, lot_size, basis) -> tuple[np.ndarray, np.ndarray]:
@@ -168,6 +170,14 @@ def decide(prob, err, x, confidence: float):
     return np.where(accept, ACCEPT, np.where(reject, REJECT, UNDECIDED)).astype(object), close
 
 
+def group_error(spread: float, lost_mass: float) -> float:
+    """The stated quadrature error of every P of a group: twice the largest difference
+    between the grid and the grid of every other point over the group's P and its next
+    lot's, plus the mass on the border and left out. The largest, not each P's own
+    difference: one P's two grids can agree by chance (docs/lots.md)."""
+    return 2.0 * spread + lost_mass
+
+
 def _summary_nodes(g: grid.GridPosterior):
     order = np.argsort(g.weight)[::-1]
     keep = order[: int(np.searchsorted(np.cumsum(g.weight[order]), 1.0 - SUMMARY_TAIL)) + 1]
@@ -180,7 +190,7 @@ def answer_group(g: grid.GridPosterior, x, n, lot_size, basis, spec: float,
     """Every answer column for the lots of one group (arrays in the lots' order)."""
     uniq, index = combos(x, n, lot_size, basis)
     k = len(uniq)
-    prob, err, exact = np.empty(k), np.empty(k), np.ones(k, bool)
+    prob, half, exact = np.empty(k), np.empty(k), np.ones(k, bool)
     heavy = (g.weight > PRUNE) | (g.weight_half > PRUNE)  # the rest: at most their mass
     dropped = max(float(g.weight[~heavy].sum()), float(g.weight_half[~heavy].sum()))
     ga, gb, gw, gh = g.a[heavy], g.b[heavy], g.weight[heavy], g.weight_half[heavy]
@@ -188,8 +198,10 @@ def answer_group(g: grid.GridPosterior, x, n, lot_size, basis, spec: float,
         size = None if cs < 0 else int(cs)
         rem = None if size is None else size - int(cn)
         gv, ok = draws_g(ga, gb, cx, cn, rem, spec, LOT if cl else PROCESS, size)
-        prob[j], exact[j] = float(gw @ gv), ok
-        err[j] = 2.0 * abs(prob[j] - float(gh @ gv)) + g.edge_mass + dropped
+        prob[j], half[j], exact[j] = float(gw @ gv), float(gh @ gv), ok
+    nxt = special.betainc(ga, gb, spec)
+    spread = max(float(np.abs(prob - half).max(initial=0.0)), abs(float(gw @ nxt - gh @ nxt)))
+    err = np.full(k, group_error(spread, g.edge_mass + dropped))
     prob = np.clip(prob, 0.0, 1.0)
     dec, close = decide(prob, err, uniq[:, 0], confidence)
     a, b, w = _summary_nodes(g)
@@ -245,18 +257,17 @@ def outlier_pvalues(g: grid.GridPosterior, x, n) -> np.ndarray:
                      zip(np.asarray(x, float), np.asarray(n, float), strict=True)])
 
 
-def next_lot(g: grid.GridPosterior, spec: float, confidence: float) -> dict:
-    """The next lot's rate, sum_i w_i Beta(a_i, b_i): median, bound, mean and P with its
-    quadrature error."""
+def next_lot(g: grid.GridPosterior, spec: float, confidence: float, error: float) -> dict:
+    """The next lot's rate, sum_i w_i Beta(a_i, b_i): median, bound, mean and P with the
+    group's quadrature error."""
     p = float(g.weight @ special.betainc(g.a, g.b, spec))
-    p_half = float(g.weight_half @ special.betainc(g.a, g.b, spec))
     a, b, w = _summary_nodes(g)
     return {
         "median": float(mixture_ppf(0.5, a[:, None], b[:, None], w)[0]),
         "upper_bound": float(mixture_ppf(confidence, a[:, None], b[:, None], w)[0]),
         "mean": float(w @ (a / (a + b))),
         "prob_within_spec": p, "prob_within_spec_mcse": None,
-        "prob_within_spec_error": 2.0 * abs(p - p_half) + g.edge_mass,
+        "prob_within_spec_error": error,
         "mean_note": "the mean can exceed the one-sided bound: a few points of the posterior "
                      "allow very bad lots, and the mean weighs them by their size",
     }
@@ -282,10 +293,9 @@ def answer_groups(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: floa
             cols = answer_group(g, x_all[idx], n_all[idx], sizes[idx], basis[idx], spec,
                                 confidence)
             cols["outlier_p"] = outlier_pvalues(g, x_all[idx], n_all[idx])
-            err = cols["prob_within_spec_error"]
-            out[label] = {"columns": cols, "next_lot": next_lot(g, spec, confidence),
-                          "accuracy": {"method": METHOD.format(size=size),
-                                       "max_error": float(err.max()) if err.size else 0.0,
+            err = float(cols["prob_within_spec_error"][0])
+            out[label] = {"columns": cols, "next_lot": next_lot(g, spec, confidence, err),
+                          "accuracy": {"method": METHOD.format(size=size), "max_error": err,
                                        "edge_mass": g.edge_mass,
                                        "grid_points": int(g.weight.size)}}
             t.advance()

@@ -187,3 +187,32 @@ def test_command_line_quadrature_record_names_engine(tmp_path, capsys):
     assert out["engine"]["name"] == "quadrature" and out["engine"]["max_error"] < 0.01
     assert all("prob_within_spec_error" in lot for lot in out["lots"])
     assert main(["lots", str(path), "--spec", "1%", "--engine", "quadrature"]) == 2
+
+
+@pytest.mark.parametrize("lots, seed", [(3, 0), (5, 1), (20, 2)])
+def test_stated_error_bounds_the_error_against_a_finer_grid(lots, seed):
+    """The stated error (twice the group's largest difference from the half grid, plus
+    lost mass) against a 400 x 400 grid of the same posterior, lot and process basis."""
+    rng = np.random.default_rng(seed)
+    n = rng.choice([50, 80, 125, 200], lots)
+    x = rng.binomial(n, rng.beta(2, 150, lots))
+    size = pd.array(rng.choice([400, 2000, None], lots), "Int64")
+    basis = np.where(size.isna(), "process", "lot").astype(object)
+    t = grid.group_terms(x, n)
+    fine, ref = grid.posterior_grids([t])[0], grid.posterior_grids([t], size=400)[0]
+    for spec in (0.005, 0.01, 0.03):
+        got = qa.answer_group(fine, x, n, size, basis, spec, 0.95)
+        want = qa.answer_group(ref, x, n, size, basis, spec, 0.95)
+        diff = np.abs(got["prob_within_spec"] - want["prob_within_spec"])
+        assert (diff <= got["prob_within_spec_error"]).all()
+        err = got["prob_within_spec_error"][0]
+        assert abs(qa.next_lot(fine, spec, 0.95, err)["prob_within_spec"]
+                   - qa.next_lot(ref, spec, 0.95, 0.0)["prob_within_spec"]) <= err
+
+
+def test_quadrature_command_imports_no_sampler():
+    from conftest import EXAMPLES
+    from helpers import heavy_imports
+
+    assert heavy_imports(["lots", str(EXAMPLES / "incoming_inspection.xlsx"), "--spec", "1%",
+                          "--prior", "history", "--engine", "quadrature"]) == []

@@ -17,7 +17,8 @@ nodes :math:`(a_i, b_i) = (\mu_i\kappa_i, (1-\mu_i)\kappa_i)` with weights :math
   otherwise, and *too close to call* (undecided) when C is within :math:`\epsilon` of P or
   of 1 - P: the rule of the draws with the Monte Carlo error replaced by the quadrature error;
 * bounds, means, clean units to accept and defectives not inspected from the mixture over the
-  nodes that carry all but ``SUMMARY_TAIL`` of the mass;
+  grid of every other point (all but ``SUMMARY_TAIL`` of its mass; bounds within about 1% of
+  the full grid's);
 * the outlier check: the leave-one-out predictive p-value of each distinct (x, n), the grid
   reweighted by :math:`1/\mathrm{BB}(x_k \mid n_k, a_i, b_i)` (exact on the grid's points);
 * the next lot: the mixture of the :math:`\mathrm{Beta}(a_i, b_i)`.
@@ -179,9 +180,14 @@ def group_error(spread: float, lost_mass: float) -> float:
 
 
 def _summary_nodes(g: grid.GridPosterior):
-    order = np.argsort(g.weight)[::-1]
-    keep = order[: int(np.searchsorted(np.cumsum(g.weight[order]), 1.0 - SUMMARY_TAIL)) + 1]
-    w = g.weight[keep]
+    """(a, b, w) of the grid of every other point, without the lightest SUMMARY_TAIL of its
+    mass: the mixture behind bounds, means and counts (a quarter of the points; bounds
+    within about 1% of the full grid's, as precise as the 1,000 thinned draws NUTS uses)."""
+    on = np.flatnonzero(g.weight_half > 0)
+    order = on[np.argsort(g.weight_half[on])[::-1]]
+    keep = order[: int(np.searchsorted(np.cumsum(g.weight_half[order]),
+                                       1.0 - SUMMARY_TAIL)) + 1]
+    w = g.weight_half[keep]
     return g.a[keep], g.b[keep], w / w.sum()
 
 
@@ -242,15 +248,18 @@ def answer_group(g: grid.GridPosterior, x, n, lot_size, basis, spec: float,
 
 def outlier_pvalues(g: grid.GridPosterior, x, n) -> np.ndarray:
     """Each lot's leave-one-out predictive p-value P(X >= x | the other lots), the grid
-    reweighted by 1 / BB(x | n, a, b); 1 for a group of one lot."""
+    reweighted by 1 / BB(x | n, a, b) (its points heavier than PRUNE); 1 for a group of one
+    lot."""
     xs, ns, ws = grid.group_terms(x, n)
     pv = np.ones(len(xs))
     if ws.sum() >= 2:
-        logw = np.log(np.maximum(g.weight, 1e-300))
+        heavy = g.weight > PRUNE
+        a, b = g.a[heavy], g.b[heavy]
+        logw = np.log(g.weight[heavy]) + special.betaln(a, b)
         for k, (xk, nk) in enumerate(zip(xs, ns, strict=True)):
-            lw = logw - (special.betaln(g.a + xk, g.b + nk - xk) - special.betaln(g.a, g.b))
+            lw = logw - special.betaln(a + xk, b + nk - xk)
             wl = np.exp(lw - lw.max())
-            up, _ = grid.betabinom_tails(xk, nk, g.a, g.b)
+            up, _ = grid.betabinom_tails(xk, nk, a, b)
             pv[k] = min(1.0, float(wl @ up / wl.sum()))
     lookup = {(a, b): v for a, b, v in zip(xs, ns, pv, strict=True)}
     return np.array([lookup[(float(a), float(b))] for a, b in

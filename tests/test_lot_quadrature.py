@@ -187,6 +187,13 @@ def test_command_line_quadrature_record_names_engine(tmp_path, capsys):
     assert out["engine"]["name"] == "quadrature" and out["engine"]["max_error"] < 0.01
     assert all("prob_within_spec_error" in lot for lot in out["lots"])
     assert main(["lots", str(path), "--spec", "1%", "--engine", "quadrature"]) == 2
+    assert main(["lots", str(path), "--spec", "1%", "--prior", "history", "--engine",
+                 "quadrature", "--report", str(tmp_path / "rep")]) == 2
+    assert not (tmp_path / "rep").exists()
+    out_dir = tmp_path / "out"
+    assert main(["lots", str(path), "--spec", "1%", "--prior", "history", "--engine",
+                 "quadrature", "--out", str(out_dir)]) == 0
+    assert (out_dir / "lot_decisions.xlsx").exists()
 
 
 @pytest.mark.parametrize("lots, seed", [(3, 0), (5, 1), (20, 2)])

@@ -112,6 +112,10 @@ def _lot_options(args, prior) -> dict:
 
     engine = engine_options(args.engine, args.processes, args.scheduler,
                             prior in (HISTORY, HISTORY_PHI_UNIFORM))
+    if engine["engine"] == "quadrature" and getattr(args, "report", None):
+        raise OptionError("--report with --engine quadrature is not available yet (the "
+                          "report's figures are drawn from sampled draws): use --out DIR for "
+                          "the workbook and run record, or --engine nuts for the report")
     return {"group_by": cols, "decision_basis": args.decide_about, "lot_spread": spread,
             **{k: v for k, v in engine.items() if v is not None}}
 

@@ -50,10 +50,14 @@ def _chunk_job(frame: pd.DataFrame, labels: list[str], positions: list[np.ndarra
 
 def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
                confidence: float, prior, size: int = GRID_SIZE, *, processes: int | None = None,
-               scheduler: str | None = None, chunk_lots: int = CHUNK_LOTS) -> dict[str, dict]:
+               scheduler: str | None = None, chunk_lots: int | None = None
+               ) -> dict[str, dict]:
     """label -> answers of every group: here, or through Dask when ``processes`` (a
     LocalCluster of that many processes) or ``scheduler`` (an address) is given."""
     cols = ["defectives", "inspected", "lot_size", "decision_basis"]
+    chunk_lots = CHUNK_LOTS if chunk_lots is None else chunk_lots
+    if processes:  # at least two chunks per process, so that every process has work
+        chunk_lots = min(chunk_lots, max(1, -(-len(frame) // (2 * processes))))
     parts = []
     for labels in chunks(groups, chunk_lots):
         rows = np.concatenate([groups[k] for k in labels])

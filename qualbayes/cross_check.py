@@ -50,18 +50,21 @@ def _compare(names, nuts, mcse, quad, quad_err, draws: int, method: str) -> dict
                       "quadrature": float(quad[worst]), "mcse": float(mcse[worst])}}
 
 
-def lot_group(mu, kappa, x, n, spec: float, prior) -> dict:
+def lot_group(mu, kappa, x, n, spec: float, prior, grids=None) -> dict:
     """Cross-check of one group's lot-history draws (``mu``, ``kappa`` of shape (chain,
-    draw)) against :func:`qualbayes.models.lot_history_grid.posterior_grid`."""
+    draw)) against :func:`qualbayes.models.lot_history_grid.posterior_grid`; ``grids``: the
+    group's (160 x 160, 100 x 100) grids when already computed (:func:`lot_groups`)."""
     from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
 
-    xs, ns, _ = grid._terms(x, n)
+    xs, ns, ws = grid.group_terms(x, n)
     a = (mu * kappa)[..., None]
     b = ((1.0 - mu) * kappa)[..., None]
     per_draw = np.concatenate([special.betainc(a + xs, b + ns - xs, spec),
                                special.betainc(a, b, spec)], axis=-1)
-    g = grid.posterior_grid(x, n, prior=prior)
-    g2 = grid.posterior_grid(x, n, prior=prior, size=100)
+    if grids is None:
+        g, g2 = (grid.posterior_grids([(xs, ns, ws)], prior, size=k)[0] for k in (160, 100))
+    else:
+        g, g2 = grids
     q = np.append(grid.prob_within(g, xs, ns, spec), grid.next_lot_prob(g, spec))
     q2 = np.append(grid.prob_within(g2, xs, ns, spec), grid.next_lot_prob(g2, spec))
     names = [f"P(p <= spec | {x:g} of {n:g})" for x, n in zip(xs, ns, strict=True)]
@@ -71,12 +74,20 @@ def lot_group(mu, kappa, x, n, spec: float, prior) -> dict:
 
 
 def lot_groups(fit, data, names, spec: float, prior) -> dict[str, dict | None]:
-    """label -> cross-check of each group whose gate passed (None otherwise)."""
-    out = {}
-    for j, (label, (x, n)) in enumerate(zip(names, data, strict=True)):
-        ok = fit.gate.select(label).passed
-        out[label] = lot_group(fit.draws["mu"][:, :, j], fit.draws["kappa"][:, :, j], x, n,
-                               spec, prior) if ok else None
+    """label -> cross-check of each group whose gate passed (None otherwise). The grids of
+    all those groups are computed together (:func:`qualbayes.models.lot_history_grid.
+    posterior_grids`: one shared coarse pass per chunk of groups)."""
+    from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
+
+    passed = [j for j, label in enumerate(names) if fit.gate.select(label).passed]
+    terms = [grid.group_terms(*data[j]) for j in passed]
+    fine = grid.posterior_grids(terms, prior, size=160)
+    half = grid.posterior_grids(terms, prior, size=100)
+    out: dict[str, dict | None] = dict.fromkeys(names)
+    for k, j in enumerate(passed):
+        x, n = data[j]
+        out[names[j]] = lot_group(fit.draws["mu"][:, :, j], fit.draws["kappa"][:, :, j], x, n,
+                                  spec, prior, grids=(fine[k], half[k]))
     return out
 
 

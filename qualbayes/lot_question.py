@@ -44,6 +44,7 @@ class LotAssessment:
     group_by: tuple[str, ...] = ("part",)
     decision_basis: str = LOT  # asked for; each lot's own basis is in lots["decision_basis"]
     lot_spread: dict | None = None  # the history hyperprior as stated, and what it implies
+    engine: dict | None = None  # which engine answered and its accuracy (record key "engine")
 
     @property
     def converged(self) -> bool:
@@ -62,7 +63,8 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
                 prior: BetaPrior | str | HistoryPrior = "uniform", seed: int = 20261202,
                 settings=None, *, group_by: tuple[str, ...] = ("part",),
                 decision_basis: str = LOT, lot_spread: float | None = None,
-                check_prior_conflict: bool = False) -> LotAssessment:
+                check_prior_conflict: bool = False, engine: str = "nuts",
+                processes: int | None = None, scheduler: str | None = None) -> LotAssessment:
     """Answer "is the lot within spec at confidence C?" for every lot.
 
     ``decision_basis``: ``lot`` (default) decides about the lot's own fraction defective
@@ -71,6 +73,9 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
     history (``history`` prior). ``lot_spread``: the stated scale S of the lot-to-lot
     coefficient of variation (history prior; default in qualbayes.models.lot_spread).
     ``check_prior_conflict``: check each lot's data against a stated Beta prior.
+    ``engine`` (history prior): ``nuts`` (default, sampled and gated) or ``quadrature`` (the
+    exact grid posterior of each group, deterministic; :mod:`qualbayes.lot_batch`), whose
+    groups run in ``processes`` local processes or on the Dask ``scheduler`` when given.
     """
     if decision_basis not in (LOT, PROCESS):
         from qualbayes.errors import ParameterError  # noqa: PLC0415
@@ -78,6 +83,7 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
         raise ParameterError(f"decision_basis {decision_basis!r}: choose 'lot' or 'process'")
     group_by = _check_group_by(group_by)
     hyper = _history_prior(prior, lot_spread)
+    _check_engine(engine, hyper, processes, scheduler)
     if hyper is None and isinstance(prior, str):
         from qualbayes.models.lot_prior import parse_lot_prior  # noqa: PLC0415
 
@@ -85,11 +91,20 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
     frame = table.frame.copy()
     frame["decision_basis"] = np.where(frame["lot_size"].notna() & (decision_basis == LOT),
                                        LOT, PROCESS)
+    if hyper is not None and engine == "quadrature":
+        from qualbayes.lot_batch import assess_quadrature  # noqa: PLC0415
+
+        return assess_quadrature(frame, spec, confidence, hyper, group_by, decision_basis,
+                                 processes=processes, scheduler=scheduler)
     if hyper is not None:
         from qualbayes.lot_history_answers import assess_history  # noqa: PLC0415
 
-        return assess_history(frame, spec, confidence, hyper, seed, settings, group_by,
-                              decision_basis)
+        result = assess_history(frame, spec, confidence, hyper, seed, settings, group_by,
+                                decision_basis)
+        result.engine = {"name": "nuts", "accuracy": "each P carries its Monte Carlo "
+                         "standard error (prob_within_spec_mcse); the convergence gate and "
+                         "the quadrature cross-check per group are in diagnostics"}
+        return result
     assert isinstance(prior, BetaPrior)
     answers = answer_lots(frame, np.array([prior.a]), np.array([prior.b]), 1, spec,
                           confidence)
@@ -111,7 +126,29 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
     return LotAssessment(frame[_columns(frame)], spec, confidence, prior.describe(),
                          MODEL_CONJUGATE, None, notes=notes,
                          prior_params={"a": prior.a, "b": prior.b}, group_by=group_by,
-                         decision_basis=decision_basis)
+                         decision_basis=decision_basis,
+                         engine={"name": "closed form", "accuracy": "exact (conjugate Beta)"})
+
+
+def _check_engine(engine, hyper, processes, scheduler) -> None:
+    from qualbayes.errors import ParameterError  # noqa: PLC0415
+
+    if engine not in ("nuts", "quadrature"):
+        raise ParameterError("engine", engine, "choose 'nuts' or 'quadrature'")
+    if engine == "quadrature" and hyper is None:
+        raise ParameterError("engine", engine, "quadrature answers the history prior: a Beta "
+                             "prior has a closed form and needs no engine")
+    if (processes is not None or scheduler is not None) and engine != "quadrature":
+        raise ParameterError("processes" if processes is not None else "scheduler",
+                             processes if processes is not None else scheduler,
+                             "processes and scheduler split the quadrature batch: give them "
+                             "with engine='quadrature'")
+    if processes is not None and (isinstance(processes, bool) or not isinstance(processes, int)
+                                  or not 1 <= processes <= 1024):
+        raise ParameterError("processes", processes, "a whole number of processes, 1 to 1024")
+    if scheduler is not None and (not isinstance(scheduler, str) or not scheduler.strip()):
+        raise ParameterError("scheduler", scheduler, "a Dask scheduler address such as "
+                             "'tcp://10.0.0.5:8786'")
 
 
 def _check_group_by(group_by) -> tuple[str, ...]:
@@ -142,7 +179,16 @@ def _history_prior(prior, lot_spread):
 def _columns(frame: pd.DataFrame) -> list[str]:
     base = ["lot", "part", "supplier", "date", "lot_size", "inspected", "defectives", "row",
             "group"]
-    return base + RESULT_COLUMNS
+    return base + RESULT_COLUMNS + [c for c in EXTRA_COLUMNS if c in frame]
+
+
+#: columns one engine adds: the quadrature error of P (in place of its MCSE)
+EXTRA_COLUMNS = ("prob_within_spec_error",)
+
+
+def lot_columns(frame: pd.DataFrame) -> list[str]:
+    """The columns of ``LotAssessment.lots`` present in ``frame``, in order."""
+    return _columns(frame)
 
 
 def extra_clean_units_reweighted(alpha, beta, spec, confidence, max_units=10**7) -> int | None:

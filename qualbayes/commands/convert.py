@@ -266,3 +266,26 @@ def as_of(text):
     if text is not None and len(str(text)) > 64:
         raise OptionError("--as-of: write a date as YYYY-MM-DD")
     return parse_as_of(text)
+
+
+def engine_options(engine: str, processes, scheduler, history: bool) -> dict:
+    """``--engine``, ``--processes`` and ``--scheduler`` of ``lots`` as keyword arguments:
+    the quadrature engine only answers the history prior, and only it is split."""
+    if engine == "quadrature" and not history:
+        raise OptionError("--engine quadrature answers the history prior: use it with --prior "
+                          "history (a Beta prior has a closed form)")
+    if (processes is not None or scheduler is not None) and engine != "quadrature":
+        raise OptionError("--processes and --scheduler split the quadrature batch: use them "
+                          "with --engine quadrature")
+    if processes is not None and scheduler is not None:
+        raise OptionError("--processes starts processes on this machine, --scheduler uses a "
+                          "running cluster: give one of them")
+    count = None if processes is None else parse_whole(processes, "--processes", least=1)
+    if count is not None and count > 1024:
+        raise OptionError(f"--processes {processes!r}: at most 1024")
+    if scheduler is not None and (len(scheduler) > 300 or not re.fullmatch(
+            r"(tcp|tls|inproc|ucx)://[^\s]+", scheduler.strip())):
+        raise OptionError(f"--scheduler {scheduler!r}: a Dask scheduler address such as "
+                          "tcp://10.0.0.5:8786")
+    return {"engine": engine, "processes": count,
+            "scheduler": None if scheduler is None else scheduler.strip()}

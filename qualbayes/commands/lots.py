@@ -34,6 +34,16 @@ def register(sub) -> None:
     p.add_argument("--decide-about", default="lot", choices=("lot", "process"),
                    help="lot: the lot's own fraction defective when its lot size is given "
                         "(else the rate); process: always the defect rate p of the process")
+    p.add_argument("--engine", default="nuts", choices=("nuts", "quadrature"),
+                   help="with --prior history: nuts (sampled, gated, the default) or "
+                        "quadrature (the exact grid posterior of each group: deterministic, "
+                        "for large batches; docs/lots.md, 'Which engine answers')")
+    p.add_argument("--processes", default=None, metavar="N",
+                   help="with --engine quadrature: split the groups over N processes on this "
+                        "machine (needs the extra qualbayes[cluster])")
+    p.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                   help="with --engine quadrature: run the groups on a running Dask cluster, "
+                        "e.g. tcp://10.0.0.5:8786 (needs qualbayes[cluster])")
     add_prior_options(p, "p", "lots")
     add_output_options(p)
     p.set_defaults(func=run)
@@ -97,7 +107,17 @@ def _lot_options(args, prior) -> dict:
         if not 0.01 <= spread <= 10:
             raise OptionError(f"--lot-spread {args.lot_spread!r}: a coefficient of variation "
                               "between 0.01 and 10, e.g. 0.5")
-    return {"group_by": cols, "decision_basis": args.decide_about, "lot_spread": spread}
+    from qualbayes.commands.convert import engine_options  # noqa: PLC0415
+    from qualbayes.models.lot_prior import HISTORY_PHI_UNIFORM  # noqa: PLC0415
+
+    engine = engine_options(args.engine, args.processes, args.scheduler,
+                            prior in (HISTORY, HISTORY_PHI_UNIFORM))
+    if engine["engine"] == "quadrature" and getattr(args, "report", None):
+        raise OptionError("--report with --engine quadrature is not available yet (the "
+                          "report's figures are drawn from sampled draws): use --out DIR for "
+                          "the workbook and run record, or --engine nuts for the report")
+    return {"group_by": cols, "decision_basis": args.decide_about, "lot_spread": spread,
+            **{k: v for k, v in engine.items() if v is not None}}
 
 
 def _evidence(record: dict, args) -> dict:

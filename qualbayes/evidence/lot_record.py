@@ -28,6 +28,18 @@ MCSE_WORDS = ("P carries its Monte Carlo standard error (MCSE); a side of C with
               "too close to call and gives undecided after drawing more")
 
 
+QUADRATURE_WORDS = ("P is computed by quadrature (no sampling, no seed) and carries its stated "
+                    "quadrature error; a side of C within that error is too close to call")
+
+
+def engine_line(engine: dict) -> str:
+    """Which engine answered, and its accuracy, in one line."""
+    if engine.get("name") != "quadrature":
+        return f"engine: {engine.get('name')} ({engine.get('accuracy', '')})"
+    return (f"engine: quadrature, {engine['method']}; largest error of any P "
+            f"{engine['max_error']:.2g}; run in {engine['processes']}")
+
+
 def _none(v):
     return None if v is None or (not isinstance(v, str) and pd.isna(v)) else v
 
@@ -46,6 +58,8 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
             "upper_bound": _none(r["upper_bound"]),
             "prob_within_spec": _none(r["prob_within_spec"]),
             "prob_within_spec_mcse": _none(r["prob_within_spec_mcse"]),
+            **({"prob_within_spec_error": _none(r["prob_within_spec_error"])}
+               if "prob_within_spec_error" in r else {}),
             "decision_basis": _none(r["decision_basis"]),
             "decision": r["decision"],
             "too_close": bool(r["too_close"]) if _none(r["too_close"]) is not None else None,
@@ -80,6 +94,7 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
                   "rows_rejected": 0, "columns": data.headers, "notes": data.notes},
         "model": result.model, "prior": result.prior, "seed": result.seed,
         "prior_params": result.prior_params, "sampler": result.sampler,
+        "engine": result.engine or {"name": "nuts" if result.draws else "closed form"},
         "posterior_draws": {k: {"mu": v["mu"], "kappa": v["kappa"]}
                             for k, v in result.draws.items()},
         "diagnostics": result.diagnostics, "next_lot": result.next_lot,
@@ -111,8 +126,12 @@ def lots_text(record: dict) -> str:
     ]
     if record.get("posterior_draws"):
         head.append(HISTORY_NOTE)
-    if record["diagnostics"]:
+    engine = record.get("engine") or {}
+    quadrature = engine.get("name") == "quadrature"
+    if record["diagnostics"] or quadrature:
         head.append(f"pooled by: {', '.join(record['group_by'])} (one history per value)")
+    if quadrature:
+        head.append(engine_line(engine))
     head.append("decided about: " + "; ".join(f"{k} = {v}" for k, v in q["bases"].items()
                                               if k in {lot["decision_basis"]
                                                        for lot in record["lots"]}))
@@ -121,10 +140,11 @@ def lots_text(record: dict) -> str:
         for reason in d["reasons"]:
             head.append(f"  - {reason}")
     c = q["confidence"]
-    sampled = bool(record["diagnostics"])
+    sampled = bool(record["diagnostics"]) or quadrature
     finite = any(lot.get("remaining_units") is not None for lot in record["lots"])
     headers = ["lot", "group" if sampled else "part", "n", "x", "N", "basis",
-               f"rate {c:.0%} upper", "P(within)", *(["MCSE"] if sampled else []),
+               f"rate {c:.0%} upper", "P(within)",
+               *([("error" if quadrature else "MCSE")] if sampled else []),
                "decision", "clean units to accept", "own data", "check"]
     if finite:
         headers += ["units left", "defectives left"]
@@ -136,8 +156,9 @@ def lots_text(record: dict) -> str:
         row = [lot["lot"], lot["group"] if sampled else lot["part"], lot["inspected"],
                lot["defectives"], lot["lot_size"], lot["decision_basis"],
                pct(lot["upper_bound"]), None if p is None else probability(p),
-               *([None if p is None else probability(lot["prob_within_spec_mcse"])]
-                 if sampled else []),
+               *([None if p is None else probability(
+                   lot.get("prob_within_spec_error") if quadrature
+                   else lot["prob_within_spec_mcse"])] if sampled else []),
                lot["decision"] + (" (too close)" if lot["too_close"] else ""),
                lot["extra_clean_units_to_accept"],
                own if own is not None and own != lot["decision"] else "",
@@ -150,13 +171,16 @@ def lots_text(record: dict) -> str:
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
     tail = [f"decisions: {counts}"]
     if sampled:
-        tail.append(MCSE_WORDS)
+        tail.append(QUADRATURE_WORDS if quadrature else MCSE_WORDS)
     for part, nl in record["next_lot"].items():
         if "prob_within_spec" in nl:
             tail.append(f"next lot of {part}: predicted defect rate median {pct(nl['median'])}"
                         f", {c:.0%} upper {pct(nl['upper_bound'])}, P(p<=spec) "
-                        f"{probability(nl['prob_within_spec'])} (MCSE "
-                        f"{probability(nl['prob_within_spec_mcse'])}); mean {pct(nl['mean'])}"
+                        f"{probability(nl['prob_within_spec'])} ("
+                        + (f"quadrature error {probability(nl['prob_within_spec_error'])}"
+                           if quadrature else
+                           f"MCSE {probability(nl['prob_within_spec_mcse'])}")
+                        + f"); mean {pct(nl['mean'])}"
                         + (f" ({nl['mean_note']})" if nl["mean"] > nl["upper_bound"] else ""))
     tail += record["notes"] + record["input"]["notes"]
     tail += [NEXT_STEP, CAUTION]
@@ -180,7 +204,8 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
         "posterior mean": r["posterior_mean"], "interval low": r["interval"][0],
         "interval high": r["interval"][1], "upper bound": r["upper_bound"],
         "decided about": r["decision_basis"], "P(within spec)": r["prob_within_spec"],
-        "P MCSE": r["prob_within_spec_mcse"], "decision": r["decision"],
+        "P MCSE": r["prob_within_spec_mcse"],
+        "P quadrature error": r.get("prob_within_spec_error"), "decision": r["decision"],
         "too close to call": r["too_close"], "group": r["group"],
         "own-data decision (uniform prior)": r["own_data_decision"],
         "own-data P": r["own_data_prob"], "outlier / prior conflict": r["outlier"],
@@ -202,6 +227,7 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
              ["upper bound", q["upper_bound"]], ["model", record["model"]],
              ["prior", record["prior"]], ["seed", record["seed"]],
              ["pooled by", ", ".join(record.get("group_by") or [])],
+             ["engine", engine_line(record.get("engine") or {})],
              ["decided about", q.get("decision_basis")]]
     model += [[f"basis '{k}'", v] for k, v in q.get("bases", {}).items()]
     spread = record.get("lot_spread") or {}
@@ -215,7 +241,13 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
             model.append([f"next lot of {part}: {k}", str(v) if isinstance(v, list) else v])
     diag = [["part", "parameter", "R-hat", "bulk ESS", "tail ESS", "passed", "divergences",
              "attempts", "thresholds"]]
-    if not record["diagnostics"]:
+    engine = record.get("engine") or {}
+    if engine.get("name") == "quadrature":
+        for part, acc in engine.get("groups", {}).items():
+            diag.append([part, "quadrature: no sampler, no convergence to check", None, None,
+                         None, True, None, None,
+                         f"largest error of P {acc['max_error']:.2g}; {acc['method']}"])
+    elif not record["diagnostics"]:
         diag.append(["(all)", "closed form: no sampler, no convergence to check", None, None,
                      None, True, None, None, None])
     for part, d in record["diagnostics"].items():

@@ -48,6 +48,9 @@ class GridPosterior:
     kappa: np.ndarray
     weight: np.ndarray
     edge_mass: float  # mass on the fine grid's border (should be negligible)
+    #: weights of the grid of every other point (the same box, half the points per side),
+    #: renormalised, 0 off it: the quadrature error of a sum is estimated from the difference
+    weight_half: np.ndarray | None = None
 
     @property
     def a(self) -> np.ndarray:
@@ -102,6 +105,118 @@ def posterior_grid(x, n, w=None, prior=None, size: int = 160) -> GridPosterior:
     keep = wgt.ravel() > 1e-13
     return GridPosterior(mu.ravel()[keep], kappa.ravel()[keep], wgt.ravel()[keep] /
                          wgt.ravel()[keep].sum(), edge)
+
+
+def term_loglik(a, b, xs, ns, ws) -> np.ndarray:
+    r"""Sum over distinct terms of :math:`w_k \log \mathrm{BB}(x_k \mid n_k, a, b)` (the
+    binomial coefficient left out), broadcasting over ``a``, ``b``: per term
+    :math:`\sum_{j<x}\log(a+j) + \ln\Gamma(b+n-x) - \ln\Gamma(b) - \ln\Gamma(a+b+n)
+    + \ln\Gamma(a+b)`, the log-gamma differences in ``x`` as sums of logarithms (a few
+    log-gamma calls per distinct n instead of two log-beta calls per term; equal to the
+    log-beta form to about 1e-5 in the log density, checked in the tests)."""
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    xs, ns, ws = (np.asarray(v, float) for v in (xs, ns, ws))
+    out = np.zeros(np.broadcast(a, b).shape)
+    if xs.size == 0:
+        return out
+    ab = a + b
+    base = ws.sum() * (special.gammaln(ab) - special.gammaln(b))
+    small = xs <= _LOG_SUM_MAX
+    cum_a = np.zeros_like(out)  # sum_{j < x} log(a + j), built up in x
+    for j in range(int(xs[small].max(initial=0.0))):
+        cum_a = cum_a + np.log(a + j)
+        hit = ws[small & (xs == j + 1)].sum()
+        if hit:
+            out = out + hit * cum_a
+    for x, w in zip(xs[~small], ws[~small], strict=True):
+        out = out + w * (special.gammaln(a + x) - special.gammaln(a))
+    for nv in np.unique(ns):
+        sel = ns == nv
+        lg_bn = special.gammaln(b + nv)
+        out = out - ws[sel].sum() * special.gammaln(ab + nv)
+        cum_b = lg_bn  # ln Gamma(b + n - x), built down in x
+        done = 0
+        for x, w in sorted(zip(xs[sel], ws[sel], strict=True)):
+            if x - done > _LOG_SUM_MAX:
+                cum_b, done = special.gammaln(b + nv - x), x
+            while done < x:
+                cum_b = cum_b - np.log(b + nv - done - 1.0)
+                done += 1
+            out = out + w * cum_b
+    return out + base
+
+
+_LOG_SUM_MAX = 48  # x beyond this: log-gamma calls instead of sums of logarithms
+
+
+def _prior_terms(u, v, prior):
+    mu = special.expit(u)
+    tau = spread_floor(mu) + np.exp(v)
+    kappa = kappa_of(mu, tau)
+    return mu, kappa, np.log(mu) + np.log1p(-mu) + prior.log_tau_density(tau, mu) + v
+
+
+def _fine_box(lp, u, v):
+    keep = lp >= np.nanmax(lp) - _KEEP
+    iu, iv = np.flatnonzero(keep.any(1)), np.flatnonzero(keep.any(0))
+    du, dv = u[1] - u[0], v[1] - v[0]
+    return ((u[iu[0]] - du, u[iu[-1]] + du), (v[iv[0]] - dv, v[iv[-1]] + dv))
+
+
+def _weights(lp, mu, kappa, size) -> GridPosterior:
+    wgt = np.exp(lp - np.nanmax(lp))
+    wgt = np.where(np.isfinite(wgt), wgt, 0.0)
+    wgt /= wgt.sum()
+    edge = float(wgt[0].sum() + wgt[-1].sum() + wgt[:, 0].sum() + wgt[:, -1].sum())
+    half = np.zeros_like(wgt)
+    half[::2, ::2] = wgt[::2, ::2]
+    half /= half.sum()
+    keep = (wgt.ravel() > 1e-13) | (half.ravel() > 1e-13)
+    w = wgt.ravel()[keep]
+    return GridPosterior(mu.ravel()[keep], kappa.ravel()[keep], w / w.sum(), edge,
+                         half.ravel()[keep])
+
+
+def group_terms(x, n, w=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Distinct (x, n) of one group's lots and how often each is seen (sorted)."""
+    return _terms(x, n, w)
+
+
+def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64) -> list[GridPosterior]:
+    r"""The posterior grids of many groups at once; ``terms``: one (x, n, count) triple of
+    arrays per group (:func:`group_terms`). The coarse pass shares its box among the groups:
+    each distinct (x, n) of a chunk of groups is evaluated once on it and each group adds
+    its own terms (the same arithmetic, in the same order, whatever the chunk: a group's
+    answer does not depend on the others). The fine pass evaluates each group's terms with
+    :func:`term_loglik`. Memory: about ``chunk`` x 8,100 x (distinct terms of the chunk)
+    floats for the coarse pass, and a few ``size`` x ``size`` arrays per group.
+    """
+    prior = prior or HistoryPrior()
+    u = np.linspace(*_BOX_U, _COARSE)
+    v = np.linspace(*_BOX_V, _COARSE)
+    uu, vv = np.meshgrid(u, v, indexing="ij")
+    mu_c, kappa_c, lp_prior = _prior_terms(uu, vv, prior)
+    a_c, b_c = mu_c * kappa_c, (1.0 - mu_c) * kappa_c
+    out: list[GridPosterior] = []
+    for start in range(0, len(terms), chunk):
+        block = terms[start:start + chunk]
+        keys = sorted({(float(x), float(n)) for xs, ns, _ in block
+                       for x, n in zip(xs, ns, strict=True)})
+        where = {k: i for i, k in enumerate(keys)}
+        table = np.stack([term_loglik(a_c, b_c, [x], [n], [1.0]) for x, n in keys]) if keys \
+            else np.zeros((0, *uu.shape))
+        for xs, ns, ws in block:
+            lp = lp_prior.copy()
+            for x, n, w in zip(xs, ns, ws, strict=True):
+                lp = lp + w * table[where[(float(x), float(n))]]
+            (u0, u1), (v0, v1) = _fine_box(lp, u, v)
+            uf, vf = np.meshgrid(np.linspace(u0, u1, size), np.linspace(v0, v1, size),
+                                 indexing="ij")
+            mu, kappa, lpf = _prior_terms(uf, vf, prior)
+            lpf = lpf + term_loglik(mu * kappa, (1.0 - mu) * kappa, xs, ns, ws)
+            out.append(_weights(lpf, mu, kappa, size))
+    return out
 
 
 def _post_ab(g: GridPosterior, x, n):

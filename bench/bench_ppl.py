@@ -182,12 +182,12 @@ def summarise(out: dict) -> dict:
     return res
 
 
-def worker(method: str, case: str) -> dict:
-    """In a fresh process: two identical fits, cold then warm."""
+def worker(method: str, case: str, fits: int = 2) -> dict:
+    """In a fresh process: two identical fits, cold then warm (``fits=1``: cold only)."""
     groups = simulate(case)
     fit = FITS[method]
     runs = []
-    for _ in range(2):
+    for _ in range(fits):
         load = os.getloadavg()[0]
         t0 = time.perf_counter()
         out = fit(groups)
@@ -195,11 +195,12 @@ def worker(method: str, case: str) -> dict:
         res = summarise(out)
         res |= {"wall_s": wall, "load_before": load, "load_after": os.getloadavg()[0]}
         runs.append(res)
-    return {"method": method, "case": case, "cold": runs[0], "warm": runs[1]}
+    return {"method": method, "case": case, "cold": runs[0], "warm": runs[-1],
+            "fits": fits}
 
 
 # ----------------------------------------------------------------------------- orchestration
-def run_case(method: str, case: str) -> dict:
+def run_case(method: str, case: str, fits: int = 2, timeout: float | None = None) -> dict:
     with tempfile.TemporaryDirectory(prefix="bench-ppl-") as tmp:
         env = dict(os.environ, PYTHONPATH=str(ROOT), JAX_PLATFORMS="cpu", JAX_ENABLE_X64="1",
                    XLA_FLAGS=f"--xla_force_host_platform_device_count={CHAINS}",
@@ -208,8 +209,13 @@ def run_case(method: str, case: str) -> dict:
                    JAX_PERSISTENT_CACHE_MIN_ENTRY_SIZE_BYTES="0",
                    PYTENSOR_FLAGS=f"compiledir={Path(tmp) / 'pytensor'}")
         t0 = time.perf_counter()
-        done = subprocess.run([sys.executable, __file__, "--worker", method, case], env=env,
-                              capture_output=True, text=True, check=False)
+        try:
+            done = subprocess.run([sys.executable, __file__, "--worker", method, case,
+                                   str(fits)], env=env, capture_output=True, text=True,
+                                  check=False, timeout=timeout)
+        except subprocess.TimeoutExpired:
+            return {"method": method, "case": case,
+                    "error": f"not finished within {timeout:.0f} s (stopped)"}
         if done.returncode != 0:
             return {"method": method, "case": case, "error": done.stderr[-2000:]}
         out = json.loads(done.stdout.strip().splitlines()[-1])
@@ -249,12 +255,19 @@ def table(rows: list[dict]) -> str:
             z = "-" if r is ref else f"{agreement(r, ref):.1f}"
         else:
             ratio = wall_ratio = z = "n/a"
-        warm = f"{w['wall_s']:.1f}"
+        warm, cold = f"{w['wall_s']:.1f}", f"{c['wall_s']:.1f}"
         if "sample_s" in w:
-            warm += f" (sampling {w['sample_s']:.1f})"
+            warm += (f" (sampling {w['sample_s']:.1f}: "
+                     f"{w['min_ess_bulk'] / w['sample_s']:.0f} ESS/s)")
+            cold += f" (compile {c['compile_s']:.1f})"
+        once = r.get("fits", 2) == 1
+        if once:  # one fit only: ESS/s and the ratios on the cold wall
+            warm, eps_text = "not run", f"{eps:.0f} (cold)"
+        else:
+            eps_text = f"{eps:.0f}"
         lines.append(
-            f"| {r['case']} | {r['method']} | {c['wall_s']:.1f} | {warm} | "
-            f"{w['min_ess_bulk']:.0f} | {eps:.0f} | {ratio} | {wall_ratio} | "
+            f"| {r['case']} | {r['method']} | {cold} | {warm} | "
+            f"{w['min_ess_bulk']:.0f} | {eps_text} | {ratio} | {wall_ratio} | "
             f"{c['divergences']} / {w['divergences']} | {z} | "
             f"{c['load_before']:.1f}-{c['load_after']:.1f} / "
             f"{w['load_before']:.1f}-{w['load_after']:.1f} |")
@@ -263,10 +276,18 @@ def table(rows: list[dict]) -> str:
 
 def main(argv: list[str]) -> None:
     if argv[:1] == ["--worker"]:
-        print(json.dumps(worker(argv[1], argv[2])))
+        print(json.dumps(worker(argv[1], argv[2], int(argv[3]) if len(argv) > 3 else 2)))
         return
-    methods, out_json = list(METHODS), None
+    methods, out_json, fits, timeout = list(METHODS), None, 2, None
     args = list(argv)
+    if "--fits" in args:
+        i = args.index("--fits")
+        fits = int(args[i + 1])
+        del args[i:i + 2]
+    if "--timeout" in args:
+        i = args.index("--timeout")
+        timeout = float(args[i + 1])
+        del args[i:i + 2]
     if "--methods" in args:
         i = args.index("--methods")
         methods = args[i + 1].split(",")
@@ -280,7 +301,7 @@ def main(argv: list[str]) -> None:
     rows = []
     for case in cases:
         for method in methods:
-            row = run_case(method, case)
+            row = run_case(method, case, fits, timeout)
             rows.append(row)
             brief = (row.get("error", "").strip().splitlines() or ["?"])[-1] if "error" in row \
                 else f"cold {row['cold']['wall_s']:.1f} s, warm {row['warm']['wall_s']:.1f} s, " \

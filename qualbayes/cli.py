@@ -26,6 +26,7 @@ COMMAND_MODULES = (
     "qualbayes.commands.at_use",
     "qualbayes.commands.returns",
     "qualbayes.commands.suppliers",
+    "qualbayes.commands.prepare",
 )
 
 

@@ -1,12 +1,13 @@
 r"""Which distribution, does it fit, and how far does the answer reach: PSIS-LOO model
 comparison, a posterior predictive check of failures in time bins, and the extrapolation
-warning (numpy, scipy; ArviZ for Pareto smoothing only).
+warning (numpy and scipy; Pareto smoothing from qualbayes.inference.psis).
 
 **LOO.** For each distinct observation i (count :math:`w_i`),
 :math:`\widehat{\mathrm{elpd}}_i = \log \sum_s \tilde w_{is} p(y_i \mid \theta_s)` with
 :math:`\tilde w_{is}` the Pareto-smoothed, normalised importance ratios
-:math:`1/p(y_i\mid\theta_s)` (ArviZ ``psislw``; Vehtari, Gelman & Gabry 2017, Stat. Comput.
-27:1413). Identical observations have identical terms, so
+:math:`1/p(y_i\mid\theta_s)` (``qualbayes.inference.psis``, equal to ArviZ ``psislw``;
+Vehtari, Gelman & Gabry 2017, Stat. Comput. 27:1413). Identical observations have
+identical terms, so
 :math:`\mathrm{elpd} = \sum_i w_i \widehat{\mathrm{elpd}}_i` and its standard error is
 :math:`\sqrt{n\,\widehat{\mathrm{var}}(\widehat{\mathrm{elpd}}_i)}` over the n units — the
 same numbers ``arviz.loo`` gives on the expanded data (tested). Two models are "not
@@ -30,19 +31,19 @@ replicated counts (posterior predictive p-value; small values signal misfit).
 from __future__ import annotations
 
 import math
-import warnings
 
 import numpy as np
 from scipy.special import logsumexp
 
 from qualbayes.inference.mcse import mcse_mean
+from qualbayes.inference.psis import psis
 from qualbayes.life_models import LABELS, log_lik_pointwise, log_reliability
 from qualbayes.models.censored import Observations
 
 ELPD_SMALL = 4.0  # an elpd difference below this is small (Sivula et al. 2022)
 SE_FACTOR = 2.0
 MAX_CELLS = 20_000_000  # draws x observations for LOO (draws are thinned beyond this)
-LOO_DRAWS = 2000  # at most this many draws for PSIS (evenly thinned; ArviZ's loop is slow)
+LOO_DRAWS = 2000  # at most this many draws for PSIS (evenly thinned; PSIS loops over observations)
 PPC_DRAWS = 1000
 PPC_MISFIT = 0.05
 
@@ -55,16 +56,12 @@ def thin_index(size: int, cap: int) -> np.ndarray:
 def loo(family: str, draws: dict, obs: Observations) -> dict:
     """PSIS-LOO of one fitted family on one group: elpd, its SE, the pointwise terms (per
     distinct observation) and the Pareto k diagnostics (counted in units)."""
-    import arviz as az  # noqa: PLC0415
-
     n_obs = obs.weights().size
     size = next(np.size(v) for k, v in draws.items() if k != "t_ref")
     take = thin_index(size, min(LOO_DRAWS, max(MAX_CELLS // max(n_obs, 1), 200)))
     d = {k: (np.asarray(v).reshape(-1)[take] if k != "t_ref" else v) for k, v in draws.items()}
     ll = log_lik_pointwise(family, d, obs).T  # (n, S)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        lw, k = az.psislw(-ll)
+    lw, k = psis(-ll)
     elpd_i = logsumexp(lw + ll, axis=1)
     w = obs.weights()
     n = w.sum()

@@ -1,5 +1,5 @@
 r"""How much longer must an undecided group be tested? Importance reweighting of the Weibull
-posterior draws (numpy; ArviZ for the Pareto diagnostic only).
+posterior draws (numpy; the Pareto diagnostic from qualbayes.inference.psis, no ArviZ).
 
 If every running unit (each unit now a suspension, at time :math:`t_i`) survives a further
 time x, the posterior changes by the likelihood ratio
@@ -24,11 +24,11 @@ autocorrelation.
 from __future__ import annotations
 
 import math
-import warnings
 
 import numpy as np
 
 from qualbayes.inference.mcse import mcse_mean
+from qualbayes.inference.psis import pareto_k
 
 K_MAX = 0.7
 ESS_MIN = 400.0
@@ -59,16 +59,12 @@ class _Weights:
 
 def reweighted(log_w: np.ndarray, good: np.ndarray) -> dict:
     """P, its MCSE, the Pareto k of the weights and their effective number."""
-    import arviz as az  # noqa: PLC0415
-
     lw = log_w - log_w.max()
     w = np.exp(lw)
     wn = w / w.sum()
     p = float(np.sum(wn * good))
     ess = float(1.0 / np.sum(wn**2))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        _, k = az.psislw(lw.reshape(-1))
+    k = pareto_k(lw.reshape(-1))
     mc = float(mcse_mean(wn * w.size * (good - p)))
     return {"p": p, "mcse": mc, "pareto_k": float(k), "ess": ess}
 

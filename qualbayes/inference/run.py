@@ -243,9 +243,12 @@ def _sample(model, model_args, s: SamplerSettings, init_params):
     import jax  # noqa: PLC0415
     from numpyro.infer import MCMC, NUTS  # noqa: PLC0415
 
+    from qualbayes.inference.compile_cache import chain_runner  # noqa: PLC0415
+
     kernel = NUTS(model, target_accept_prob=s.target_accept, max_tree_depth=s.max_tree_depth)
+    method = chain_runner(chain_method(s.num_chains, s.chain_method))  # data as inputs
     mcmc = MCMC(kernel, num_warmup=s.num_warmup, num_samples=s.num_samples,
-                num_chains=s.num_chains, chain_method=chain_method(s.num_chains, s.chain_method),
+                num_chains=s.num_chains, chain_method=method,
                 progress_bar=show_progress(), jit_model_args=True)
     mcmc.run(jax.random.PRNGKey(s.seed), *model_args, init_params=init_params,
              extra_fields=("diverging",))

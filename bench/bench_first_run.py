@@ -1,0 +1,165 @@
+"""First-ever run against a warm run, in fresh processes, for the commands that compile.
+
+For each command line: a new empty jax compilation cache folder (``QUALBAYES_JAX_CACHE``),
+then the command in a fresh interpreter twice: the first-ever run (empty cache) and a warm
+run (the cache the first run left). With ``--prepare`` the one-off ``qualbayes prepare`` runs
+first on the empty cache (as after installation) and its own time is reported. jax logs every
+compilation (``JAX_LOG_COMPILES=1``); the table counts them, the persistent-cache hits and the
+seconds spent tracing, lowering and in XLA compilation (loads from the cache included), and
+gives the ratio first / warm. Timings are noisy on a shared 2-core machine: read the ratios
+of one table, measured back to back, and the load average printed with it.
+
+    PYTHONPATH=$PWD python bench/bench_first_run.py [--prepare] [--only demo]
+
+``--model-compile`` instead measures, in one process, what compiling NUTS for the lots
+history model costs with numpyro's ``BetaBinomial.log_prob`` and with the short ``gammaln``
+form of ``qualbayes.models.beta_binomial`` (same hyperprior, same data, one chain; compile =
+first run minus a second run of the same compiled sampler; CPU seconds of this process, which
+load disturbs less than wall time), and the length of each gradient program.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import re
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+EX = ROOT / "example_lots"
+CASES = {
+    "demo: lots xlsx --prior history": ["lots", str(EX / "incoming_inspection.xlsx"), "--spec",
+                                        "1%", "--prior", "history"],
+    "lots csv --prior history": ["lots", str(EX / "incoming_inspection.csv"), "--spec", "2%",
+                                 "--prior", "history"],
+    "life": ["life", str(EX / "sv30_rig_test.csv"), "--mission", "2000", "--target", "0.9"],
+}
+_XLA = re.compile(r"Finished XLA compilation of (\S+) in ([\d.]+) sec")
+_TRACE = re.compile(r"Finished tracing \S+ for jit in ([\d.]+) sec")
+_LOWER = re.compile(r"Finished jaxpr to MLIR module conversion \S+ in ([\d.]+) sec")
+
+
+def run(argv: list[str], cache: str) -> dict:
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("JAX_", "XLA_"))}
+    env |= {"PYTHONPATH": str(ROOT), "QUALBAYES_JAX_CACHE": cache, "JAX_LOG_COMPILES": "1"}
+    with tempfile.TemporaryDirectory() as work:
+        t = time.perf_counter()
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        out = subprocess.run([sys.executable, "-m", "qualbayes", *argv], capture_output=True,
+                             text=True, env=env, cwd=work)
+        wall = time.perf_counter() - t
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime + after.ru_stime) - (before.ru_utime + before.ru_stime)
+    if out.returncode != 0:
+        raise SystemExit(f"{argv}: exit {out.returncode}\n{out.stderr[-2000:]}")
+    log = out.stderr
+    xla = [(name, float(s)) for name, s in _XLA.findall(log)]
+    big = [s for name, s in xla if s >= 0.5]
+    hits = log.count("Persistent compilation cache hit")
+    return {"wall": wall, "cpu": cpu, "compiles": len(xla), "hits": hits,
+            "xla": sum(s for _, s in xla), "big": len(big),
+            "trace": sum(map(float, _TRACE.findall(log))) + sum(map(float,
+                                                                    _LOWER.findall(log)))}
+
+
+def model_compile() -> None:
+    import resource  # noqa: PLC0415
+
+    import jax  # noqa: PLC0415
+    import jax.numpy as jnp  # noqa: PLC0415
+    import numpy as np  # noqa: PLC0415
+    import numpyro  # noqa: PLC0415
+    from numpyro.infer import MCMC, NUTS  # noqa: PLC0415
+    from numpyro.infer.util import initialize_model  # noqa: PLC0415
+
+    from qualbayes.models import lot_history as lh  # noqa: PLC0415
+    from qualbayes.models.beta_binomial import log_pmf  # noqa: PLC0415
+
+    jax.config.update("jax_enable_x64", True)  # a benchmark process of its own
+
+    def short_model(x, n, w, scale):
+        mu, kappa = lh.hyperprior_sites(x.shape[0], scale)
+        numpyro.factor("x", jnp.sum(w * log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa)))
+
+    def cpu() -> float:
+        r = resource.getrusage(resource.RUSAGE_SELF)
+        return r.ru_utime + r.ru_stime
+
+    rng = np.random.default_rng(3)
+    n = rng.choice([80.0, 125.0, 200.0], 20)
+    xs, ns, ws = lh.pad([(rng.binomial(n.astype(int), 0.01).astype(float), n)])
+    args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), jnp.asarray(0.5))
+    print(f"load average before: {os.getloadavg()[0]:.1f}")
+    compiled: list[float] = []
+
+    def listen(event: str, seconds: float, **_) -> None:
+        if event.endswith("backend_compile_duration"):
+            compiled.append(seconds)
+
+    jax.monitoring.register_event_duration_secs_listener(listen)
+    print("| lots history likelihood | gradient program (lines) | NUTS run 1: CPU s | "
+          "of which XLA compiling (wall s) | NUTS run 2: CPU s | compiling (wall s) |")
+    print("|---|---|---|---|---|---|")
+    for label, model in (("numpyro BetaBinomial.log_prob", lh.lot_history_model),
+                         ("gammaln form (models/beta_binomial.py)", short_model)):
+        info = initialize_model(jax.random.PRNGKey(0), model, model_args=args)
+        lines = jax.jit(jax.grad(info.potential_fn)).lower(
+            info.param_info.z).as_text().count("\n")
+        mcmc = MCMC(NUTS(model, target_accept_prob=0.99), num_warmup=1000, num_samples=1000,
+                    num_chains=1, progress_bar=False, jit_model_args=True)
+        runs = []
+        for seed in (1, 2):
+            c = cpu()
+            compiled.clear()
+            mcmc.run(jax.random.PRNGKey(seed), *args)
+            mcmc.get_samples()["mu"].block_until_ready()
+            runs.append(f"{cpu() - c:.1f} | {sum(compiled):.1f}")
+        print(f"| {label} | {lines} | {runs[0]} | {runs[1]} |")
+    print(f"load average after: {os.getloadavg()[0]:.1f}")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--prepare", action="store_true",
+                        help="run `qualbayes prepare` on the empty cache first")
+    parser.add_argument("--only", help="run only the cases whose name contains this")
+    parser.add_argument("--model-compile", action="store_true",
+                        help="compile cost of the lots history likelihood, two forms")
+    opts = parser.parse_args()
+    if opts.model_compile:
+        model_compile()
+        return
+    print(f"load average before: {os.getloadavg()[0]:.1f}")
+    print("| command | run | wall (s) | CPU (s) | compilations (>= 0.5 s) | "
+          "persistent-cache hits | XLA compile or load (s) | tracing + lowering (s) | "
+          "first / warm: wall, CPU |")
+    print("|---|---|---|---|---|---|---|---|---|")
+    for name, argv in CASES.items():
+        if opts.only and opts.only not in name:
+            continue
+        with tempfile.TemporaryDirectory() as cache:
+            if opts.prepare:
+                r = run(["prepare"], cache)
+                print(f"| qualbayes prepare | once, empty cache | {r['wall']:.1f} | "
+                      f"{r['cpu']:.1f} | "
+                      f"{r['compiles']} ({r['big']}) | {r['hits']} | {r['xla']:.1f} | "
+                      f"{r['trace']:.1f} | |")
+            first = run(argv, cache)
+            warm = run(argv, cache)
+        label = "first after prepare" if opts.prepare else "first-ever"
+        for run_name, r in ((label, first), ("warm", warm)):
+            ratio = (f"{first['wall'] / warm['wall']:.2f}, {first['cpu'] / warm['cpu']:.2f}"
+                     if r is warm else "")
+            print(f"| {name} | {run_name} | {r['wall']:.1f} | {r['cpu']:.1f} | "
+                  f"{r['compiles']} ({r['big']}) | "
+                  f"{r['hits']} | {r['xla']:.1f} | {r['trace']:.1f} | {ratio} |")
+    print(f"load average after: {os.getloadavg()[0]:.1f}")
+
+
+if __name__ == "__main__":
+    main()

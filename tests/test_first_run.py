@@ -1,0 +1,139 @@
+"""The first run: what the life command imports, that the compilation cache is filled by the
+first real use, and the one-off ``qualbayes prepare`` (its invented inputs have the shapes it
+promises; it refuses when there is no cache). Timings are measured by
+bench/bench_first_run.py, not here."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+from conftest import EXAMPLES, ROOT
+from scipy import stats
+
+from qualbayes.commands.prepare import LIFE_SHAPES, LOT_SHAPES, jobs
+
+
+def _env(cache: str) -> dict:
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("JAX_", "XLA_"))}
+    env |= {"PYTHONPATH": str(ROOT), "QUALBAYES_JAX_CACHE": cache}
+    return env
+
+
+def test_life_imports_no_arviz_and_fills_an_empty_cache_on_first_use(tmp_path):
+    """A first-ever life run (empty cache folder): ArviZ and matplotlib are never imported
+    (PSIS is numpy: qualbayes.inference.psis), and the compiled sampler is in the persistent
+    cache when the run ends, so the second run loads it instead of compiling."""
+    cache = tmp_path / "cache"
+    code = ("import io, contextlib, json, sys\nfrom qualbayes.cli import main\n"
+            "with contextlib.redirect_stdout(io.StringIO()):\n"
+            f"    rc = main(['life', {str(EXAMPLES / 'sv30_rig_test.csv')!r}, '--mission', "
+            "'2000', '--target', '0.9'])\n"
+            "print(json.dumps([rc, sorted(m for m in ('jax', 'numpyro', 'arviz', "
+            "'matplotlib', 'pandas') if m in sys.modules)]))\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         env=_env(str(cache)), cwd=tmp_path, timeout=900)
+    assert out.returncode == 0, out.stderr[-3000:]
+    rc, loaded = json.loads(out.stdout.strip().splitlines()[-1])
+    assert rc == 0
+    assert "arviz" not in loaded and "matplotlib" not in loaded
+    assert "jax" in loaded  # the life question samples (the test would be empty otherwise)
+    entries = [p.name for p in cache.iterdir()]
+    assert any(name.startswith("jit__fun-") for name in entries), entries
+
+
+def test_prepare_refuses_without_a_cache(tmp_path):
+    code = "from qualbayes.cli import main\nraise SystemExit(main(['prepare']))\n"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         env=_env("off"), cwd=tmp_path, timeout=300)
+    assert out.returncode == 2, out.stderr
+    assert "compilation cache is off" in out.stderr
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_prepare_inputs_have_the_shapes_it_names(tmp_path):
+    """Each invented lots file has exactly the promised distinct (defectives, inspected)
+    pairs per part, so its padded term axis is the bucket named; each life file the
+    promised group sizes; every file reads through the same validation as users' files."""
+    from qualbayes.data.frames import life_table, lots_table
+    from qualbayes.models.lot_history import bucket
+
+    todo = jobs(tmp_path)
+    assert len(todo) == len(LOT_SHAPES) + len(LIFE_SHAPES)
+    for (_, parts, distinct), (_, argv) in zip(LOT_SHAPES, todo, strict=False):
+        frame = lots_table(Path(argv[1])).frame
+        by_part = frame.groupby("part")
+        assert by_part.ngroups == parts
+        for _, lots in by_part:
+            pairs = set(zip(lots["defectives"], lots["inspected"], strict=True))
+            assert len(pairs) == distinct
+        assert bucket(distinct) == distinct  # exactly at a bucket: the largest it covers
+    for (_, sizes), (_, argv) in zip(LIFE_SHAPES, todo[len(LOT_SHAPES):], strict=True):
+        frame = life_table(Path(argv[1])).frame
+        assert sorted(frame.groupby("group").size()) == sorted(sizes)
+        assert set(frame["kind"]) == {"failure", "suspension"} or len(set(frame["kind"])) == 2
+
+
+@pytest.mark.parametrize("kappa", [2.0, 50.0, 1e3, 1e5, 1e7, 1e8])
+@pytest.mark.parametrize("mu", [1e-4, 0.01, 0.3])
+def test_short_beta_binomial_equals_scipy(mu, kappa):
+    """models/beta_binomial.py against scipy.stats.betabinom.logpmf (reference library) over
+    the concentrations the lots model allows (KAPPA_MAX = 1e8). Tolerance: the float64
+    rounding of ten log-gamma terms, each about eps x z log z at its largest argument
+    z = n + a + b (docs/references.md, "PSIS in numpy and the first run")."""
+    from qualbayes.models.beta_binomial import log_pmf
+
+    x = np.array([0.0, 1, 2, 5, 0, 17])
+    n = np.array([80.0, 80, 125, 200, 1250, 5000])
+    a, b = mu * kappa, (1 - mu) * kappa
+    ref = stats.betabinom.logpmf(x, n, a, b)
+    z = n + kappa
+    tol = 1e-13 + 10 * np.finfo(float).eps * z * np.log(z + 2)
+    assert np.all(np.abs(log_pmf(x, n, a, b, xp=np) - ref) <= tol)
+    import jax
+
+    with jax.enable_x64(True):
+        got = np.asarray(log_pmf(x, n, a, b))
+    assert np.all(np.abs(got - ref) <= tol), (got - ref, tol)
+
+
+SAME_SHAPE = r"""
+import json
+from qualbayes.inference.run import configure_process
+configure_process()  # the command line's process: a CPU device per chain, cache on
+import jax
+import numpy as np
+from qualbayes.inference.run import SamplerSettings, chain_method
+from qualbayes.models.lot_history import fit_histories
+events = []
+jax.monitoring.register_event_listener(lambda e, **k: events.append(e))
+fast = SamplerSettings(num_warmup=200, num_samples=200, seed=3, retry=False)
+out = {"method": chain_method(fast.num_chains)}
+n = np.array([80.0, 80, 125, 200, 125])
+for name, x in (("first", [0, 1, 2, 0, 1]), ("second", [3, 0, 0, 1, 5])):
+    events.clear()
+    fit = fit_histories([(np.array(x, float), n)], fast)
+    out[name] = {"hits": sum(e.endswith("cache_hits") for e in events),
+                 "misses": sum(e.endswith("cache_misses") for e in events),
+                 "mu": float(fit.draws["mu"].mean())}
+print(json.dumps(out))
+"""
+
+
+def test_one_compiled_sampler_serves_new_data_of_the_same_shape(tmp_path):
+    """With a CPU device per chain (the command line), a second data set of the same padded
+    shape is served from the persistent cache: no compilation misses (numpyro's built-in
+    parallel method baked the data into the program and compiled again: one miss)."""
+    out = subprocess.run([sys.executable, "-c", SAME_SHAPE], capture_output=True, text=True,
+                         env=_env(str(tmp_path / "cache")), cwd=tmp_path, timeout=900)
+    assert out.returncode == 0, out.stderr[-3000:]
+    got = json.loads(out.stdout.strip().splitlines()[-1])
+    assert got["method"] == "parallel"
+    assert got["first"]["misses"] >= 1  # the first-ever fit compiles
+    assert got["second"]["misses"] == 0 and got["second"]["hits"] >= 1, got
+    assert got["first"]["mu"] != got["second"]["mu"]  # really other data

@@ -223,9 +223,11 @@ def assess_life(data, *, mission, target, confidence=0.9, prior=None, shape=None
                                            **options)
     shown = {"mission": mission_value, "target": target_value, "confidence": conf,
              "seed": seed_value}
+    from qualbayes.evidence.life_words import run_notes  # noqa: PLC0415
+
     return LifeResult(tuple(result.groups), mission_value, target_value, conf,
-                      tuple(chosen.describe(units)), result.seed, tuple(result.notes), result,
-                      table, source_sha256(data), shown, tuple(fits))
+                      tuple(chosen.describe(units)), result.seed, tuple(run_notes(result)),
+                      result, table, source_sha256(data), shown, tuple(fits))
 
 
 # --------------------------------------------------------------------------- plans

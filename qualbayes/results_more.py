@@ -136,11 +136,11 @@ class AtUseResult:
         return bool(self.assessment.converged)
 
     def to_frame(self) -> pd.DataFrame:
-        """One row: counts, R(mission) at use (median, interval, lower bound), B1, B10,
+        """One row: counts, R(mission) at use (median, interval, lower bound), B1 and B10 at use,
         P(R >= target) with its Monte Carlo error, the decision and the gate."""
         r = self.assessment.result
         row = {"units": r["units"], "failures": r["failures"]}
-        for key in ("reliability_at_mission", "b1", "b10"):
+        for key in ("reliability_at_mission", "b1_at_use", "b10_at_use"):
             s = r.get(key) or {}
             lo, hi = s.get("interval") or (None, None)
             row |= {f"{key}_median": s.get("median"), f"{key}_low": lo, f"{key}_high": hi}
@@ -173,8 +173,9 @@ class AtUseResult:
     @cached_property
     def idata(self):
         """The fit behind the answer (the common-shape model; after extra draws of a close
-        call, that fit): ``theta`` on dimension ``coefficient``; the units as observed
-        data. None when the gate failed (no draws are kept)."""
+        call, that fit): ``theta`` on dimension ``coefficient`` (log sigma, the location
+        gamma0 at the reference stress, each stress's scaled coefficient); the units and
+        their stresses as observed data. None when the gate failed (no draws are kept)."""
         theta = self.assessment.theta
         fit = next((f for f in reversed(self.fits)
                     if f.draws.get("theta") is not None and f.draws["theta"] is theta), None)
@@ -186,7 +187,10 @@ class AtUseResult:
                     "kind": f["kind"].astype(str).to_numpy()}
         for j, col in enumerate(self.table.columns):
             observed[f"stress[{col}]"] = np.asarray(self.table.stress)[:, j]
-        names = ["log_spread"] + [f"coefficient_{i}" for i in range(1, k)]
+        # theta = (log sigma, gamma0 at the reference stress, scaled coefficient per stress)
+        names = ["log_sigma", "gamma0"] + [f"scaled[{t.column}]" for t in self.assessment.terms]
+        if len(names) != k:
+            names = [f"theta_{i}" for i in range(k)]
         return _idata_of_fit(fit, {"coefficient": names}, observed,
                              {key: ["unit"] for key in observed},
                              {"unit": f["unit"].astype(str).tolist()})

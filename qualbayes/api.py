@@ -25,6 +25,9 @@ from qualbayes import parameters as check
 from qualbayes.errors import OptionError, ParameterError
 from qualbayes.results import LifeResult, LotResult, PlanResult
 
+#: the supplier scorecard, the at-use question and the returns forecast (api_more.py)
+MORE = ("assess_suppliers", "assess_at_use", "forecast_returns")
+
 HISTORY = "history"
 
 
@@ -223,9 +226,11 @@ def assess_life(data, *, mission, target, confidence=0.9, prior=None, shape=None
                                            **options)
     shown = {"mission": mission_value, "target": target_value, "confidence": conf,
              "seed": seed_value}
+    from qualbayes.evidence.life_words import run_notes  # noqa: PLC0415
+
     return LifeResult(tuple(result.groups), mission_value, target_value, conf,
-                      tuple(chosen.describe(units)), result.seed, tuple(result.notes), result,
-                      table, source_sha256(data), shown, tuple(fits))
+                      tuple(chosen.describe(units)), result.seed, tuple(run_notes(result)),
+                      result, table, source_sha256(data), shown, tuple(fits))
 
 
 # --------------------------------------------------------------------------- plans
@@ -344,3 +349,12 @@ def plan_sampling(*, aql, alpha, ltpd, beta, lot_size: int | None = None, prior=
         None if level is None else check.probability(level, "level"))
     analysis = learned.prior if chosen == HISTORY else chosen
     return PlanResult.from_record(record, analysis=analysis, fits=tuple(fits))
+
+
+def __getattr__(name: str):
+    """``qualbayes.api.assess_suppliers`` and the others of :mod:`qualbayes.api_more`."""
+    if name in MORE:
+        from qualbayes import api_more  # noqa: PLC0415
+
+        return getattr(api_more, name)
+    raise AttributeError(f"module 'qualbayes.api' has no attribute {name!r}")

@@ -37,7 +37,7 @@ from scipy.special import logsumexp
 
 from qualbayes.inference.mcse import mcse_mean
 from qualbayes.inference.psis import psis
-from qualbayes.life_models import LABELS, log_lik_pointwise, log_reliability
+from qualbayes.life_models import log_lik_pointwise, log_reliability
 from qualbayes.models.censored import Observations
 
 ELPD_SMALL = 4.0  # an elpd difference below this is small (Sivula et al. 2022)
@@ -74,11 +74,11 @@ def loo(family: str, draws: dict, obs: Observations) -> dict:
 
 
 def compare(loos: dict[str, dict], weights: np.ndarray) -> dict:
-    """Rank the families by elpd and put each difference to the best in words."""
+    """Rank the families by elpd, with each one's difference to the best and its SE."""
     order = sorted(loos, key=lambda f: -loos[f]["elpd"])
     best = order[0]
     n = weights.sum()
-    rows, words = [], []
+    rows = []
     for f in order:
         diff_i = loos[best]["pointwise"] - loos[f]["pointwise"]
         diff = float(weights @ diff_i)
@@ -89,22 +89,9 @@ def compare(loos: dict[str, dict], weights: np.ndarray) -> dict:
                      "elpd_difference": diff, "difference_se": se,
                      "distinguished_from_best": f != best and not close,
                      "pareto_k_max": loos[f]["pareto_k_max"],
+                     "pareto_k_threshold": loos[f]["pareto_k_threshold"],
                      "units_high_k": loos[f]["units_high_k"]})
-        if f == best:
-            continue
-        a, b = LABELS[best], LABELS[f]
-        if close:
-            words.append(f"the data do not distinguish {a} from {b} (elpd difference "
-                         f"{diff:.1f}, SE {se:.1f})")
-        else:
-            words.append(f"the data favour {a} over {b} (elpd difference {diff:.1f}, SE "
-                         f"{se:.1f})")
-    high = [f"{LABELS[f]}: {loos[f]['units_high_k']} unit(s) with Pareto k above "
-            f"{loos[f]['pareto_k_threshold']:.2f}" for f in order if loos[f]["units_high_k"]]
-    if high:
-        words.append("PSIS-LOO is unreliable for some observations (" + "; ".join(high)
-                     + "): read the comparison with care")
-    return {"best": best, "models": rows, "words": words}
+    return {"best": best, "models": rows}
 
 
 def check_fit(family: str, draws: dict, obs: Observations, confidence: float,
@@ -141,26 +128,14 @@ def check_fit(family: str, draws: dict, obs: Observations, confidence: float,
     tail = (1.0 - confidence) / 2.0
     flat_rep = rep.reshape(-1, rep.shape[-1])
     lo, med, hi = np.quantile(flat_rep, [tail, 0.5, 1.0 - tail], axis=0)
-    inside = int(np.sum((observed >= lo) & (observed <= hi)))
     misfit = ppp + 3 * ppp_mcse < PPC_MISFIT
-    label = LABELS[family]
-    if misfit:
-        verdict = f"the {label} model does not reproduce when the failures occurred"
-    elif ppp - 3 * ppp_mcse < PPC_MISFIT:
-        verdict = (f"too close to call against {PPC_MISFIT:g} at this Monte Carlo precision; "
-                   "treat the fit as doubtful")
-    else:
-        verdict = "no sign of misfit"
-    words = (f"check of fit ({label}): observed failures fall inside the central "
-             f"{confidence:.0%} predictive range in {inside} of {observed.size} time bins; "
-             f"posterior predictive p-value {ppp:.3f} (Monte Carlo error {ppp_mcse:.3f}): "
-             + verdict)
     return {"family": family, "edges": cuts.tolist(), "observed": observed.tolist(),
             "predicted_median": med.tolist(), "predicted_low": lo.tolist(),
             "predicted_high": hi.tolist(), "expected_mean": expected.reshape(
                 -1, expected.shape[-1]).mean(axis=0).tolist(),
             "p_value": ppp, "p_value_mcse": ppp_mcse, "misfit": bool(misfit),
-            "band": f"central {confidence:.0%} predictive range", "words": words}
+            "doubtful": bool(not misfit and ppp - 3 * ppp_mcse < PPC_MISFIT),
+            "confidence": confidence}
 
 
 def _expected(family: str, d: dict, x: np.ndarray, w: np.ndarray, edges: np.ndarray):
@@ -185,26 +160,14 @@ def _expected(family: str, d: dict, x: np.ndarray, w: np.ndarray, edges: np.ndar
     return np.diff(out, axis=1).reshape(*lead, edges.size + 1)
 
 
-def extrapolation(obs: Observations, mission: float, units: str,
-                  r_by_family: dict[str, float] | None = None, basis: str = "") -> dict:
+def extrapolation(obs: Observations, mission: float,
+                  r_by_family: dict[str, float | None] | None = None) -> dict:
     """Whether the mission time lies beyond the longest observed time, by how much, and the
-    spread of R(mission) across the fitted distributions."""
+    spread of R(mission) across the fitted distributions (``r_by_family``)."""
     longest = obs.longest
     factor = mission / longest
     out = {"longest_observed": longest, "factor": factor, "beyond": bool(factor > 1.0)}
-    if not out["beyond"]:
-        return out
-    u = f" {units}" if units else ""
-    words = (f"the mission time {mission:,.6g}{u} is {factor:.2g} times the longest observed "
-             f"time ({longest:,.6g}{u}): R(mission) is an extrapolation beyond the data and "
-             "rests on the chosen distribution (Weibull)")
-    if r_by_family:
-        vals = {LABELS[f]: v for f, v in r_by_family.items() if v is not None}
-        if len(vals) > 1:
-            spread = max(vals.values()) - min(vals.values())
-            out["spread"] = spread
-            words += (f"; R(mission) {basis}: "
-                      + ", ".join(f"{v:.4f} ({k})" for k, v in vals.items())
-                      + f", a spread of {spread:.4f}")
-    out["words"] = words
+    vals = [v for v in (r_by_family or {}).values() if v is not None]
+    if out["beyond"] and len(vals) > 1:
+        out["spread"] = max(vals) - min(vals)
     return out

@@ -6,7 +6,9 @@ pair (a, b):
 
 * :math:`P(R_a(T) > R_b(T) \mid \text{data})` with its Monte Carlo standard error
   (:mod:`qualbayes.inference.mcse`), and the statement it supports at confidence C (within 3 MCSE of
-  C or 1 - C: "too close to call at this Monte Carlo precision");
+  C or 1 - C: too close to call at this Monte Carlo precision), as the code ``call``:
+  ``accept`` (A better), ``reject`` (B better), ``undecided``, ``too-close`` or
+  ``not-converged`` (the evidence layer words it);
 * the posterior of the ratio :math:`B10_a / B10_b` (median, central C interval,
   :math:`P(\text{ratio} > 1)`);
 * the posterior of the shape difference :math:`\beta_a - \beta_b` (median, central C
@@ -77,24 +79,12 @@ def compare_pair(a: str, b: str, chains_a: dict, chains_b: dict, mission: float,
     p, mc = float(better.mean()), float(mcse_mean(better))
     log_ratio = (chains_a["log_scale"] + LN_R10 / ba) - (chains_b["log_scale"] + LN_R10 / bb)
     ratio_gt = (log_ratio > 0).astype(float)
-    call = decide_within_error(p, mc, confidence)
-    verdict = {"accept": f"{a} better", "reject": f"{b} better", "undecided": "not told apart",
-               "too-close": "too close to call"}[call]
-    words = {
-        "accept": f"{a} is more reliable than {b} at the mission time "
-                  f"(P = {p:.4f} >= {confidence:g})",
-        "reject": f"{b} is more reliable than {a} at the mission time "
-                  f"(P = {1 - p:.4f} >= {confidence:g})",
-        "undecided": f"the data do not tell {a} from {b} at the mission time at confidence "
-                     f"{confidence:g} (P({a} better) = {p:.4f})",
-        "too-close": f"{a} against {b}: P = {p:.4f} is too close to call at this Monte Carlo "
-                     f"precision (MCSE {mc:.4f})",
-    }[call]
+    call = decide_within_error(p, mc, confidence)  # accept, reject, undecided, too-close
     ratio = _interval(np.exp(log_ratio), confidence)
     return {
         "a": a, "b": b,
         "prob_a_more_reliable": p, "prob_a_more_reliable_mcse": mc,
-        "verdict": verdict, "words": words,
+        "call": call,
         "b10_ratio": ratio | {"prob_above_1": float(ratio_gt.mean()),
                               "prob_above_1_mcse": float(mcse_mean(ratio_gt))},
         "shape_difference": _interval(ba - bb, confidence),
@@ -108,9 +98,8 @@ def compare_groups(chains: dict[str, dict], usable: list[str], wanted: list[tupl
     out = []
     for a, b in wanted:
         if a not in usable or b not in usable:
-            out.append({"a": a, "b": b, "verdict": "not-converged", "words":
-                        f"{a} against {b}: no comparison (a group failed its convergence "
-                        "gate)", "prob_a_more_reliable": None})
+            out.append({"a": a, "b": b, "prob_a_more_reliable": None,
+                        "call": "not-converged"})
             continue
         out.append(compare_pair(a, b, chains[a], chains[b], mission, confidence))
     return out

@@ -1,6 +1,7 @@
 """The questions after "does it meet?": group comparisons, remaining test time, other
 distributions (PSIS-LOO), checks of fit, extrapolation and the data-alone answer. Each adds
-to the group results of :func:`qualbayes.life_question.assess_life`; the costly ones
+numbers to the group results of :func:`qualbayes.life_question.assess_life` (the words are
+the evidence layer's: :mod:`qualbayes.evidence.life_words`); the costly ones
 (``compare_models``, ``check_fit``) run only when asked.
 """
 
@@ -8,11 +9,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.inference.mcse import is_close_call, mcse_mean
+from qualbayes.inference.mcse import mcse_mean
 from qualbayes.life_checks import check_fit as fit_check
 from qualbayes.life_checks import compare, extrapolation, loo
 from qualbayes.life_compare import compare_groups, pairs
-from qualbayes.life_models import FAMILIES, LABELS, fit_alternatives, max_likelihood, reliability
+from qualbayes.life_models import FAMILIES, fit_alternatives, max_likelihood, reliability
 from qualbayes.life_remaining import remaining_time
 from qualbayes.models.censored import observations
 from qualbayes.models.lognormal import LognormalPrior, sigma_from_shape_range
@@ -39,45 +40,45 @@ def add_extras(result, arrays: dict[str, dict], *, compare: list[str] | None = N
                  if result.prior.shape_given and result.prior.shape_range else LognormalPrior())
         alt = fit_alternatives([obs[g] for g in usable], usable, result.mission, settings,
                                prior)
-        result.notes.append("other distributions: lognormal prior " + prior.text
-                            + "; exponential prior: uniform on the cumulative hazard at t_ref; "
-                            "a stated B-life, reliability or earlier-data prior applies to "
-                            "the Weibull only")
+        result.alternatives = tuple(alt)
+        result.alternatives_prior = prior
     rng = np.random.default_rng(result.seed)
     for g in result.groups:
         name = g["group"]
         ok = g["diagnostics"]["passed"]
         for key in ("remaining_test", "max_likelihood", "models", "fit_check"):
             g.setdefault(key, None)
-        g["extrapolation"] = extrapolation(obs[name], result.mission, result.units)
+        g.setdefault("data_alone", False)
+        g["extrapolation"] = extrapolation(obs[name], result.mission)
         if not ok:
             continue
         ch = chains[name]
         if g["decision"] == UNDECIDED:
-            g["remaining_test"] = remaining_time(
-                ch, arrays[name]["suspensions"], result.mission, result.target,
-                result.confidence, new_units=new_units, longest=obs[name].longest)
+            rt = remaining_time(ch, arrays[name]["suspensions"], result.mission,
+                                result.target, result.confidence, new_units=new_units,
+                                longest=obs[name].longest)
+            # life_remaining words its own answer; its sentences are kept beside the group
+            # results (not in them) until that module returns numbers only
+            result.remaining_words[name] = {k: rt.pop(k) for k in ("basis", "words")
+                                            if k in rt}
+            g["remaining_test"] = rt
         share = _prior_share(ch, result.prior)
         dominated = obs[name].failures == 0 or (share is not None and share > PRIOR_SHARE)
         if dominated or g["extrapolation"]["beyond"]:
             g["max_likelihood"] = max_likelihood(obs[name], arrays[name], result.mission)
-            if dominated:
-                g["notes"].append(_data_alone_words(g, result))
+        g["data_alone"] = bool(dominated)  # the data-alone answer is worth stating
         per_family = {"weibull": ch} | {f: alt[f][name][0] for f in alt if name in alt[f]}
         if alt:
             g["models"] = _models(g, per_family, {f: alt[f][name][1] for f in alt},
                                   obs[name], result)
         if g["extrapolation"]["beyond"]:
-            _extrapolation_words(g, obs[name], result)
-            g["notes"].append(g["extrapolation"]["words"])
+            g["extrapolation"] = extrapolation(obs[name], result.mission,
+                                               extrapolation_values(g))
         if check_fit:
             converged = {f: d for f, d in per_family.items()
                          if f == "weibull" or alt[f][name][1]["passed"]}
             g["fit_check"] = [c for f, d in converged.items()
                               if (c := fit_check(f, d, obs[name], result.confidence, rng))]
-            if not g["fit_check"]:
-                g["notes"].append("check of fit: fewer than 3 failures, nothing to check")
-            g["notes"] += [c["words"] for c in g["fit_check"]]
 
 
 def _prior_share(ch: dict, prior) -> float | None:
@@ -86,36 +87,19 @@ def _prior_share(ch: dict, prior) -> float | None:
     return float(np.std(ch["log_shape"])) / prior.shape[1]
 
 
-def _data_alone_words(g: dict, result) -> str:
-    ml = g["max_likelihood"]["weibull"]
-    u = f" {result.units}" if result.units else ""
-    if not ml["fitted"]:
-        return f"the data alone (maximum likelihood): {ml['why']}"
-    rel = g["reliability_at_mission"]["median"]
-    return (f"the prior weighs heavily here; the data alone (censored maximum likelihood) "
-            f"give shape {ml['shape']:.3g}, scale {ml['scale']:,.4g}{u}, B10 "
-            f"{ml['b10']:,.4g}{u}, R(mission) {ml['reliability_at_mission']:.4f}, beside the "
-            f"posterior medians shape {g['shape']['median']:.3g}, B10 "
-            f"{g['b10']['median']:,.4g}{u}, R(mission) {rel:.4f}")
-
-
-def _extrapolation_words(g: dict, obs, result) -> None:
-    """Add the spread of R(mission) across the distributions (Bayesian medians when they were
-    fitted, else the maximum-likelihood fits)."""
-    if g["models"]:
-        r = {m["family"]: (m["reliability_at_mission"]["median"] if m["passed"] else None)
-             for m in g["models"]["by_model"]}
-        basis = "posterior median under each distribution"
-    else:
-        ml = g["max_likelihood"] or {}
-        r = {f: v["reliability_at_mission"] for f, v in ml.items() if v.get("fitted")}
-        basis = "by maximum likelihood under each distribution"
-    g["extrapolation"] = extrapolation(obs, result.mission, result.units, r, basis)
+def extrapolation_values(g: dict) -> dict[str, float | None]:
+    """R(mission) under each distribution: the Bayesian medians when they were fitted, else
+    the maximum-likelihood fits (the basis is ``"posterior"`` when ``g["models"]``)."""
+    if g.get("models"):
+        return {m["family"]: (m["reliability_at_mission"]["median"] if m["passed"] else None)
+                for m in g["models"]["by_model"]}
+    ml = g.get("max_likelihood") or {}
+    return {f: v["reliability_at_mission"] for f, v in ml.items() if v.get("fitted")}
 
 
 def _models(g: dict, per_family: dict, gates: dict, obs, result) -> dict:
     """R(mission), P(R >= target) and the decision under each distribution, with the LOO
-    comparison in words."""
+    comparison."""
     rows, loos = [], {}
     gates = {"weibull": g["diagnostics"]} | gates
     for f in FAMILIES:
@@ -139,25 +123,4 @@ def _models(g: dict, per_family: dict, gates: dict, obs, result) -> dict:
         if passed:
             loos[f] = loo(f, d, obs)
     comparison = compare(loos, obs.weights()) if len(loos) > 1 else None
-    words = list(comparison["words"]) if comparison else []
-    if comparison:
-        best = comparison["best"]
-        rb = next(r for r in rows if r["family"] == best)["reliability_at_mission"]["median"]
-        for row in comparison["models"]:
-            if row["family"] != best and not row["distinguished_from_best"]:
-                other = next(r for r in rows if r["family"] == row["family"])
-                diff = other["reliability_at_mission"]["median"] - rb
-                words.append(f"R(mission) differs by {diff:+.4f} between {LABELS[best]} "
-                             f"and {LABELS[row['family']]} (posterior medians)")
-    for r in rows:
-        if r["passed"] and is_close_call(r["prob_meets_target"],
-                                         r["prob_meets_target_mc_error"], result.confidence):
-            words.append(f"under {LABELS[r['family']]} P(R >= target) = "
-                         f"{r['prob_meets_target']:.4f} is within 3 Monte Carlo standard errors "
-                         f"of {result.confidence:g}: too close to call at this precision")
-    decisions = {r["decision"] for r in rows}
-    if len(decisions) > 1:
-        words.append("the decision depends on the distribution: " + ", ".join(
-            f"{r['decision']} under {LABELS[r['family']]}" for r in rows))
-    g["notes"] += words
-    return {"by_model": rows, "loo": comparison, "words": words}
+    return {"by_model": rows, "loo": comparison}

@@ -183,12 +183,12 @@ def exponential_mode(obs: Observations, flat_prior: bool = False):
 
 
 def max_likelihood(obs: Observations, arrays_by_kind: dict, mission: float) -> dict:
-    """The censored maximum-likelihood fit of each family and its R(mission), or why there is
-    none (zero failures, or a fit that runs off to a degenerate shape)."""
+    """The censored maximum-likelihood fit of each family and its R(mission), or the code of
+    why there is none (``reason``: ``zero-failures``, ``shape-unsettled`` when the shape runs
+    off above ``SETTLE_SHAPE``, ``sigma-unsettled``)."""
     out = {}
     if obs.failures == 0:
-        why = "no maximum-likelihood answer: with zero failures the likelihood has no maximum"
-        return {f: {"fitted": False, "why": why} for f in FAMILIES}
+        return {f: {"fitted": False, "reason": "zero-failures"} for f in FAMILIES}
     try:
         with np.errstate(all="ignore"):
             shape, scale = reported_mode(group_stats(**arrays_by_kind), FLAT)
@@ -198,15 +198,13 @@ def max_likelihood(obs: Observations, arrays_by_kind: dict, mission: float) -> d
         d = {"log_shape": np.array(math.log(shape)), "log_scale": np.array(math.log(scale))}
         out["weibull"] = {"shape": shape, "scale": scale} | _ml_answers("weibull", d, mission)
     else:
-        out["weibull"] = {"fitted": False, "why": f"the maximum-likelihood shape runs off "
-                                                  f"(> {SETTLE_SHAPE:g}): it has not settled"}
+        out["weibull"] = {"fitted": False, "reason": "shape-unsettled"}  # > SETTLE_SHAPE
     x, _, ok = lognormal_mode(obs, None)
     d = {"mu": np.array(x[0]), "log_sigma": np.array(x[1])}
     out["lognormal"] = ({"median_life": math.exp(x[0]), "sigma": math.exp(x[1])}
                         | _ml_answers("lognormal", d, mission))
     if not ok or math.exp(x[1]) < 1e-3:
-        out["lognormal"] = {"fitted": False, "why": "the maximum-likelihood sigma does not "
-                                                    "settle"}
+        out["lognormal"] = {"fitted": False, "reason": "sigma-unsettled"}
     x, _, _ = exponential_mode(obs, flat_prior=True)
     d = {"u": np.array(x[0]), "t_ref": obs.t_ref}
     out["exponential"] = ({"mean_life": float(expo.mean_life(x[0], obs.t_ref))}

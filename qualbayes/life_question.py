@@ -20,7 +20,7 @@ from scipy import special
 from qualbayes import cross_check
 from qualbayes.data.life import LifeTable, frame_arrays
 from qualbayes.errors import InputError, OptionError
-from qualbayes.life_precision import RULE_TEXT, Precision, close_call_note, settle
+from qualbayes.life_precision import Precision, settle
 from qualbayes.models.weibull import (
     GroupStats,
     LifePrior,
@@ -29,22 +29,19 @@ from qualbayes.models.weibull import (
     posterior_mode,
     reported_mode,
 )
-from qualbayes.models.weibull_ranks import plotting_positions
 from qualbayes.questions import DOES_NOT_MEET, MEETS, UNDECIDED, decide
 
-MODEL_TEXT = (
-    "t ~ Weibull(shape beta, scale eta), R(t) = exp(-(t/eta)^beta); failures log f(t), "
-    "suspensions log S(t), interval-censored log(S(a) - S(b)), left-censored log F(b); "
-    "NUTS on (log beta, log eta) after an affine change of variables from the posterior "
-    "mode and its Laplace covariance; each group fitted on its own")
+MODEL = "weibull"  # the code of the model; evidence.life_words states it in symbols
 PRIOR_SHARE_NOTE = 0.5  # posterior sd of log shape above this share of the prior sd: say so
-CURVE_POINTS = 60
-MAX_PLOT_POINTS = 2000  # more plotted failures are thinned evenly (the picture is the same)
 
 
 @dataclass
 class LifeAssessment:
-    """Everything the life question produced; ``groups`` holds one JSON-ready dict each."""
+    """Everything the life question produced, as numbers: ``groups`` holds one JSON-ready
+    dict each (counts, posterior summaries, probabilities with their MCSE, the decision
+    code, the gate, flags such as ``close_call``). No sentence and no plot curve: the
+    evidence layer (:mod:`qualbayes.evidence.life_words`) words them and draws the curves
+    from the draws."""
 
     groups: list[dict]
     mission: float
@@ -53,9 +50,14 @@ class LifeAssessment:
     prior: LifePrior
     units: str
     seed: int
-    model: str = MODEL_TEXT
+    model: str = MODEL
     draws: dict[str, dict[str, np.ndarray]] = field(default_factory=dict)
-    notes: list[str] = field(default_factory=list)
+    #: the other distributions fitted (``compare_models``), by family
+    alternatives: tuple[str, ...] = ()
+    alternatives_prior: object = None  # the lognormal prior they used (LognormalPrior)
+    #: the sentences qualbayes.life_remaining words its own answer with, by group (kept
+    #: here, beside the numbers, until that module returns numbers only)
+    remaining_words: dict[str, dict[str, str]] = field(default_factory=dict)
     comparisons: list[dict] = field(default_factory=list)  # see qualbayes.life_compare
 
     @property
@@ -135,7 +137,7 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
         # difficult group does not take the others' answers with it
         for j, g in enumerate(names):
             fits[g] = (fit_life([stats[g]], [modes[j]], prior, settings, [g], mission), 0)
-    groups, draws, notes = [], {}, []
+    groups, draws = [], {}
     for j, g in enumerate(names):
         fit_g, k = fits[g]
         gate = fit_g.gate.select(g)
@@ -151,20 +153,14 @@ def assess_life(table: LifeTable, mission: float, target: float, confidence: flo
         beta = np.exp(chains["log_shape"].reshape(-1))
         eta = np.exp(chains["log_scale"].reshape(-1))
         draws[g] = {"shape": beta, "scale": eta, "chains": chains}
-        arrays = data[g][0]
         check = cross_check.life_group(stats[g], prior, modes[j], chains["log_shape"],
                                        chains["log_scale"], mission, target
                                        ) if gate.passed else None  # quadrature vs NUTS
-        groups.append(group_result(g, stats[g], arrays, modes[j], beta, eta,
+        groups.append(group_result(g, stats[g], modes[j], beta, eta,
                                    cross_check.attach(gate.to_dict(), check),
                                    mission, target, confidence, prior, precision=prec))
-    if not all(r["diagnostics"]["passed"] for r in groups):
-        notes.append("the convergence gate failed for at least one group: it carries "
-                     "'not-converged' and no decision")
-    notes.append(cross_check.summary_line({r["group"]: r["diagnostics"].get("cross_check")
-                                           for r in groups}))
     result = LifeAssessment(groups, mission, target, confidence, prior, table.units,
-                            settings.seed, draws=draws, notes=notes)
+                            settings.seed, draws=draws)
     add_extras(result, {g: data[g][0] for g in names}, compare=compare,
                compare_models=compare_models, check_fit=check_fit, new_units=new_units,
                settings=settings)
@@ -191,7 +187,7 @@ def summarise(x: np.ndarray, confidence: float) -> dict:
     return {"median": float(med), "interval": [float(lo), float(hi)]}
 
 
-def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
+def group_result(name: str, st: GroupStats, mode: Mode, beta, eta,
                  diagnostics: dict, mission: float, target: float, confidence: float,
                  prior: LifePrior, *, precision: Precision) -> dict:
     ok = diagnostics["passed"]
@@ -221,64 +217,11 @@ def group_result(name: str, st: GroupStats, arrays: dict, mode: Mode, beta, eta,
     out["prob_meets_target_mcse"] = mcse if ok else None
     out["prob_meets_target_mc_error"] = mcse if ok else None  # the earlier name, kept
     out["close_call"] = bool(ok and precision.close_call)
-    out["monte_carlo"] = precision.to_dict() | {"rule": RULE_TEXT}
+    out["monte_carlo"] = precision.to_dict()
     out["decision"] = decision
     out["diagnostics"] = diagnostics
-    out["notes"] = _group_notes(st, beta, prior, ok, precision, confidence)
-    out["plot"] = plot_data(arrays, beta, eta, mission, confidence) if ok else None
+    # how far the data moved the shape from its prior: posterior sd of log shape as a share
+    # of the prior's (the evidence layer says so above PRIOR_SHARE_NOTE)
+    out["shape_prior_share"] = (float(np.std(np.log(beta))) / prior.shape[1]
+                                if ok and prior.shape is not None else None)
     return out
-
-
-def _group_notes(st: GroupStats, beta, prior: LifePrior, ok: bool, precision: Precision,
-                 confidence: float) -> list[str]:
-    notes = []
-    if not ok:
-        notes.append("the sampler did not pass the convergence gate: no answer and no "
-                     "decision are given for this group (see diagnostics)")
-        return notes
-    if st.failures == 0:
-        lo, hi = prior.shape_range or (float("nan"), float("nan"))
-        notes.append(f"zero failures: the data bound the life from below only; the answer "
-                     f"rests on the stated shape prior ({lo:g} to {hi:g}) and on the scale "
-                     "prior. A different shape range gives a different answer.")
-    elif prior.shape is not None:
-        share = float(np.std(np.log(beta))) / prior.shape[1]
-        if share > PRIOR_SHARE_NOTE:
-            notes.append(f"with {st.failures} failure(s) the shape is informed mainly by its "
-                         f"prior (posterior spread of log shape is {share:.0%} of the prior's)")
-    if precision.close_call or precision.extra_rounds:
-        notes.append(close_call_note(precision, confidence))
-    return notes
-
-
-def plot_data(arrays: dict, beta, eta, mission: float, confidence: float) -> dict:
-    """Points (median ranks) and curves (posterior median and central band of F(t)) for the
-    probability plot and the R(t) curve."""
-    pos = plotting_positions(**arrays)
-    shown = np.arange(pos["time"].size)
-    if shown.size > MAX_PLOT_POINTS:
-        shown = np.unique(np.linspace(0, shown.size - 1, MAX_PLOT_POINTS).astype(int))
-    every = np.concatenate([v for v in arrays.values() if np.size(v)])
-    every = every[every > 0]
-    lo = min(every.min(), mission) / 3.0
-    hi = max(every.max(), mission) * 3.0
-    t = np.geomspace(lo, hi, CURVE_POINTS)
-    take = np.linspace(0, beta.size - 1, min(beta.size, 2000)).astype(int)
-    b, e = beta[take, None], eta[take, None]
-    with np.errstate(over="ignore"):  # a huge shape: H = inf, R = 0 exactly
-        rel = np.exp(-np.exp(b * (np.log(t)[None, :] - np.log(e))))
-    tail = (1.0 - confidence) / 2.0
-    r_lo, r_med, r_hi = np.quantile(rel, [tail, 0.5, 1.0 - tail], axis=0)
-    return {
-        "points": {"time": pos["time"][shown].tolist(),
-                   "adjusted_rank": pos["rank"][shown].tolist(),
-                   "median_rank": pos["median_rank"][shown].tolist(),
-                   "kind": [("exact", "interval midpoint", "left-censored")[k]
-                            for k in pos["kind"][shown]]},
-        "plotted_failures": int(shown.size), "failures_ranked": int(pos["time"].size),
-        "units": int(pos["n"]),
-        "curve": {"time": t.tolist(), "reliability_median": r_med.tolist(),
-                  "reliability_low": r_lo.tolist(), "reliability_high": r_hi.tolist()},
-        "band": f"central {confidence:.0%} credible band",
-    }
-

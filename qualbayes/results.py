@@ -23,13 +23,13 @@ import pandas as pd
 from qualbayes.caution import CAUTION
 
 
-def _html(frame: pd.DataFrame, title: str) -> str:
+def html_view(frame: pd.DataFrame, title: str) -> str:
     body = frame.to_html(index=False, escape=True, na_rep="", float_format=lambda v: f"{v:.6g}")
     return (f"<div><p><b>{html.escape(title)}</b></p>{body}"
             f"<p><small>{html.escape(CAUTION)}</small></p></div>")
 
 
-def _python_command(name: str, options: dict) -> str:
+def python_command(name: str, options: dict) -> str:
     shown = ", ".join(f"{k}={v!r}" for k, v in options.items() if v is not None)
     return f"python: qualbayes.{name}(data, {shown})"
 
@@ -51,22 +51,58 @@ def _matching_diverging(fits: tuple, shape: tuple):
     return None
 
 
+class DrawCountError(ValueError):
+    """The groups (or parts) of a result were sampled with different numbers of chains or
+    draws (a close call is sampled again with more draws), so their posteriors do not fit
+    one rectangular InferenceData; ``result.idata_of(name)`` gives each one's."""
+
+
+def _shape_text(shape: tuple) -> str:
+    return f"{shape[0]} chains x {shape[1]:,} draws" if len(shape) == 2 else str(shape)
+
+
+def _own_flags(name: str, dim: str, fits: tuple, shape: tuple):
+    """The fit that produced ``name``'s draws (the last fit naming it in coordinate ``dim``
+    whose divergence flags have the draws' shape) and those flags, or (None, None)."""
+    for f in reversed(fits):
+        names = [str(c) for c in (getattr(f, "coords", None) or {}).get(dim, [])]
+        flags = getattr(f, "diverging", None)
+        if str(name) in names and flags is not None and np.shape(flags) == tuple(shape):
+            return f, np.asarray(flags)
+    return None, None
+
+
 def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, observed: dict,
                      observed_dims: dict, observed_coords: dict):
-    """One InferenceData from per-element draws ``{name: {var: (chain, draw)}}``; the
-    sample stats come from the fit that produced them (one joint fit)."""
+    """One InferenceData from per-element draws ``{name: {var: (chain, draw)}}``.
+
+    ``sample_stats.diverging`` is (chain, draw) when one fit produced every element's draws,
+    and (chain, draw, ``dim``) when elements were fitted separately (each its own fit's
+    flags). Raises :class:`DrawCountError` when the elements' draws differ in shape."""
     from qualbayes.inference.run import to_idata  # noqa: PLC0415
 
-    shapes = {np.shape(v) for d in draws.values() for v in d.values()}
-    if len(shapes) != 1:
-        raise ValueError(f"the {dim}s were fitted separately with different numbers of draws "
-                         f"(shapes {sorted(shapes)}); use idata_of(name) for one {dim}")
-    variables = list(next(iter(draws.values())))
+    shape_of = {n: np.shape(next(iter(draws[n].values()))) for n in names}
+    if len(set(shape_of.values())) != 1:
+        listed = "; ".join(f"{n}: {_shape_text(sh)}" for n, sh in shape_of.items())
+        raise DrawCountError(
+            f"the {dim}s were sampled with different numbers of draws ({listed}; a close "
+            f"call is sampled again with more draws), so they do not fit one InferenceData: "
+            f"use result.idata_of({names[0]!r}) for one {dim}")
+    shape = shape_of[names[0]]
+    variables = list(draws[names[0]])
     posterior = {v: np.stack([np.asarray(draws[n][v]) for n in names], axis=-1)
                  for v in variables}
-    diverging = _matching_diverging(fits, next(iter(shapes)))
-    return to_idata(posterior, diverging, {v: [dim] for v in variables},
-                    {dim: list(names)} | observed_coords, observed, observed_dims)
+    own = [_own_flags(n, dim, fits, shape) for n in names]
+    dims = {v: [dim] for v in variables}
+    if all(f is not None for f, _ in own) and len({id(f) for f, _ in own}) > 1:
+        diverging = np.stack([flags for _, flags in own], axis=-1)
+        dims["diverging"] = [dim]
+    elif own and own[0][0] is not None and all(f is own[0][0] for f, _ in own):
+        diverging = own[0][1]
+    else:
+        diverging = _matching_diverging(fits, shape)
+    return to_idata(posterior, diverging, dims, {dim: list(names)} | observed_coords,
+                    observed, observed_dims)
 
 
 # --------------------------------------------------------------------------- lots
@@ -103,7 +139,7 @@ class LotResult:
         from qualbayes.provenance import versions  # noqa: PLC0415
 
         return lots_record(self.assessment, self.table, self.sha256 or "",
-                           _python_command("assess_lots", self.options), versions())
+                           python_command("assess_lots", self.options), versions())
 
     def summary(self) -> str:
         from qualbayes.evidence.lot_record import lots_text  # noqa: PLC0415
@@ -113,7 +149,7 @@ class LotResult:
     def _repr_html_(self) -> str:
         shown = self.lots[["lot", "part", "inspected", "defectives", "posterior_mean",
                            "upper_bound", "prob_within_spec", "decision"]]
-        return _html(shown, f"P(p <= {self.spec:g} | data) >= {self.confidence:g}? "
+        return html_view(shown, f"P(p <= {self.spec:g} | data) >= {self.confidence:g}? "
                             f"prior {self.prior}")
 
     @cached_property
@@ -189,7 +225,7 @@ class LifeResult:
         from qualbayes.provenance import versions  # noqa: PLC0415
 
         return life_record(self.assessment, self.table, self.sha256 or "",
-                           _python_command("assess_life", self.options), versions())
+                           python_command("assess_life", self.options), versions())
 
     def summary(self) -> str:
         from qualbayes.evidence.life_record import life_text  # noqa: PLC0415
@@ -200,7 +236,7 @@ class LifeResult:
         shown = self.to_frame()[["group", "units", "failures", "shape_median", "scale_median",
                                  "b10_median", "reliability_median", "reliability_lower_bound",
                                  "prob_meets_target", "decision"]]
-        return _html(shown, f"P(R({self.mission:g}) >= {self.target:g} | data) >= "
+        return html_view(shown, f"P(R({self.mission:g}) >= {self.target:g} | data) >= "
                             f"{self.confidence:g}?")
 
     def _draws(self) -> dict:
@@ -219,17 +255,28 @@ class LifeResult:
 
     @cached_property
     def idata(self):
-        """Posterior of log shape and log scale (chain, draw, group), observed times."""
+        """Posterior of log shape and log scale (chain, draw, group), the divergences and the
+        observed times of every group.
+
+        A group whose call was close is sampled again with more draws
+        (:mod:`qualbayes.life_precision`); its draws then differ in number from the others'
+        and no single InferenceData holds them all: this raises :class:`DrawCountError` (a
+        ``ValueError``) naming each group's chains and draws; ``idata_of(group)`` always
+        works. Groups refitted one by one with equal draws share one InferenceData whose
+        ``diverging`` has a ``group`` dimension (each group's own fit)."""
         draws = self._draws()
         observed, dims, coords = self._observed(list(draws))
         return _posterior_idata(draws, "group", list(draws), self.fits, observed, dims, coords)
 
     def idata_of(self, group: str):
-        """The InferenceData of one group (when groups were refitted one by one)."""
-        draws = {group: self._draws()[group]}
-        fits = tuple(f for f in self.fits if group in f.coords.get("group", []))[-1:]
+        """The InferenceData of one group: its draws as used for its answer (after any extra
+        draws of a close call), its own fit's divergences and its observed times."""
+        every = self._draws()
+        if group not in every:
+            raise KeyError(f"no group {group!r}; the groups are {list(every)}")
         observed, dims, coords = self._observed([group])
-        return _posterior_idata(draws, "group", [group], fits, observed, dims, coords)
+        return _posterior_idata({group: every[group]}, "group", [group], self.fits,
+                                observed, dims, coords)
 
 
 # --------------------------------------------------------------------------- plans
@@ -285,7 +332,7 @@ class PlanResult:
         return plan_text(self.record)
 
     def _repr_html_(self) -> str:
-        return _html(self.to_frame(), self.question)
+        return html_view(self.to_frame(), self.question)
 
     @cached_property
     def idata(self):

@@ -125,7 +125,10 @@ def test_exponential_mle_matches_scipy_censored_fit(seed):
 def test_max_likelihood_refuses_zero_failures():
     parts = {"failures": [], "suspensions": [100.0, 200.0]}
     ml = max_likelihood(observations(**parts), parts, 50.0)
-    assert all(not v["fitted"] and "zero failures" in v["why"] for v in ml.values())
+    assert all(not v["fitted"] and v["reason"] == "zero-failures" for v in ml.values())
+    from qualbayes.evidence.life_words import WHY_NO_ML  # the words are the evidence layer's
+
+    assert "zero failures" in WHY_NO_ML["zero-failures"]
 
 
 def test_quantities_equal_scipy():

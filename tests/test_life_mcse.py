@@ -24,6 +24,7 @@ from test_life_sampler import quadrature
 from qualbayes.data.frames import life_table
 from qualbayes.errors import InputError
 from qualbayes.evidence.life_record import life_record, life_text
+from qualbayes.evidence.life_words import group_notes
 from qualbayes.evidence.run_record import check_decisions
 from qualbayes.inference.run import SamplerSettings
 from qualbayes.life_precision import (
@@ -116,7 +117,7 @@ def test_case_on_c_gives_the_same_decision_under_five_seeds(no_extras):
         assert g["decision"] == "undecided", g["monte_carlo"]
         assert g["close_call"] and g["monte_carlo"]["extra_draw_rounds"] == 2
         assert g["monte_carlo"]["draws_per_chain"] == 16 * SMALL["num_samples"]
-        assert any(CLOSE_NOTE in n for n in g["notes"])
+        assert any(CLOSE_NOTE in n for n in group_notes(g, _Result(g, c)))
         assert abs(g["prob_meets_target"] - c) <= 3 * g["prob_meets_target_mcse"]
     # reproducible: the same seed gives the same numbers
     again = run(1, mission, c)
@@ -137,8 +138,8 @@ class _Result:
         from qualbayes.models.weibull import LifePrior
 
         self.groups, self.mission, self.target, self.units = [self.group], 450.0, 0.95, "h"
-        self.prior, self.model, self.seed = LifePrior(), "Weibull", 1
-        self.notes, self.comparisons, self.draws = [], [], {}
+        self.prior, self.model, self.seed = LifePrior(), "weibull", 1
+        self.comparisons, self.draws, self.alternatives, self.remaining_words = [], {}, (), {}
 
 
 # --------------------------------------------------------------------- rule, without NUTS

@@ -19,6 +19,7 @@ from scipy import stats
 
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
+from qualbayes.evidence.life_words import fit_check_words, worded
 from qualbayes.inference.run import SamplerSettings
 from qualbayes.life_checks import check_fit, loo
 from qualbayes.life_models import (
@@ -69,7 +70,7 @@ def test_remaining_time_is_confirmed_by_refitting_the_extended_data(tmp_path):
     g = res.groups[0]
     assert g["decision"] == "undecided"
     rt = g["remaining_test"]
-    assert rt["found"], rt["words"]
+    assert rt["found"], res.remaining_words
     x = rt["extra_time"]
     more = SamplerSettings(num_samples=4000)
     refit = {}
@@ -90,14 +91,14 @@ def test_remaining_time_with_new_units_and_refusal(tmp_path):
     prior = make_prior("1.5,3", None, None)
     table = write_table(tmp_path / "a.csv", {"X": (FAIL, RUNNING)})
     res = assess_life(table, 1000.0, 0.95, 0.9, prior, new_units=10)
-    rt = res.groups[0]["remaining_test"]
-    assert rt["basis"].startswith("10 new unit(s)")
+    assert res.remaining_words["X"]["basis"].startswith("10 new unit(s)")
     # reweighting must refuse (not guess) when the extra evidence swamps the draws: with the
     # default shape prior the weights degenerate before P reaches 0.95
     res = assess_life(table, 1000.0, 0.95, 0.95)
     rt = res.groups[0]["remaining_test"]
     assert res.groups[0]["decision"] == "undecided"
-    assert not rt["found"] and ("degenerate" in rt["words"] or "does not bring" in rt["words"])
+    words = res.remaining_words["X"]["words"]
+    assert not rt["found"] and ("degenerate" in words or "does not bring" in words)
 
 
 # ------------------------------------------------------------------ group comparison
@@ -152,9 +153,9 @@ def test_comparison_probabilities_match_quadrature(tmp_path):
 
 def test_comparison_verdict_does_not_change_with_the_seed(examples):
     table = read_life(examples / "sv30_rig_test.csv")
-    verdicts = {assess_life(table, 5000.0, 0.9, 0.9, seed=s).comparisons[0]["verdict"]
-                for s in (1, 2)}
-    assert verdicts == {"Rev C better"}
+    calls = {assess_life(table, 5000.0, 0.9, 0.9, seed=s).comparisons[0]["call"]
+             for s in (1, 2)}
+    assert calls == {"reject"}  # B (Rev C) better, worded "Rev C better" (test below)
 
 
 def test_named_pair_and_bad_pair(examples, capsys):
@@ -310,7 +311,7 @@ def test_check_of_fit_flags_a_wrong_distribution_and_passes_the_right_one():
     exp_draws = {"u": np.log(rng.gamma(n_f + 1, 1.0, (4, 500)) / (total / obs.t_ref)),
                  "t_ref": obs.t_ref}  # the exact exponential posterior (conjugate)
     bad = check_fit("exponential", exp_draws, obs, 0.9, np.random.default_rng(1))
-    assert bad["misfit"] and "does not reproduce" in bad["words"]
+    assert bad["misfit"] and "does not reproduce" in fit_check_words(bad)["words"]
     wb = {"log_shape": rng.normal(math.log(4.0), 0.05, (4, 500)),
           "log_scale": rng.normal(math.log(1000.0), 0.02, (4, 500))}
     good = check_fit("weibull", wb, obs, 0.9, np.random.default_rng(1))
@@ -325,7 +326,9 @@ def test_extrapolation_and_data_alone_are_stated(tmp_path):
     g = res.groups[0]
     ex = g["extrapolation"]
     assert ex["beyond"] and ex["factor"] == pytest.approx(5000.0 / 1500.0)
-    assert "3.3 times the longest observed time" in ex["words"] and "spread" in ex
+    worded_g = worded(res)["groups"][0]
+    assert "3.3 times the longest observed time" in worded_g["extrapolation"]["words"]
+    assert "spread" in ex
     ml = g["max_likelihood"]
     data = stats.CensoredData(uncensored=[900.0, 1300.0], right=[1500.0] * 12)
     c, _, scale = stats.weibull_min.fit(data, floc=0)
@@ -335,7 +338,7 @@ def test_extrapolation_and_data_alone_are_stated(tmp_path):
     s, _, sc = stats.lognorm.fit(data, floc=0)
     assert ml["lognormal"]["reliability_at_mission"] == pytest.approx(
         stats.lognorm(s, scale=sc).sf(5000.0), abs=2e-3)
-    assert any("the data alone" in n for n in g["notes"])
+    assert any("the data alone" in n for n in worded_g["notes"])
 
 
 def test_command_json_and_check_of_fit_figure(examples, tmp_path, capsys):

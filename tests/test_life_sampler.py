@@ -19,6 +19,7 @@ from scipy import stats
 
 from qualbayes.cli import main
 from qualbayes.data.life import read_life
+from qualbayes.evidence.life_words import group_notes, run_notes
 from qualbayes.evidence.output_set import MARKER  # written with every output set
 from qualbayes.inference.run import SamplerSettings
 from qualbayes.life_question import assess_life, weibull_quantities
@@ -157,7 +158,7 @@ def test_zero_failures_with_shape_prior_probability_rises_with_test_time(tmp_pat
         exact = float(np.sum(weights * (1 - 0.9 ** (10 * f**beta))) / weights.sum())
         ess = g["diagnostics"]["min_ess_bulk"]
         assert abs(g["prob_meets_target"] - exact) <= 4 * math.sqrt(exact * (1 - exact) / ess)
-        assert any("zero failures" in n and "shape prior" in n for n in g["notes"])
+        assert any("zero failures" in n and "shape prior" in n for n in group_notes(g, res))
 
 
 def test_failed_gate_gives_no_answer(tmp_path):
@@ -168,7 +169,7 @@ def test_failed_gate_gives_no_answer(tmp_path):
     g = res.groups[0]
     assert g["decision"] == "not-converged"
     assert g["prob_meets_target"] is None and g["reliability_at_mission"] is None
-    assert not res.converged and res.notes
+    assert not res.converged and "convergence gate failed" in run_notes(res)[0]
 
 
 # ------------------------------------------------------------------ the command

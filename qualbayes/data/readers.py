@@ -57,7 +57,11 @@ class RawTable:
 def read_table(path: str | os.PathLike, sheet: str | None = None,
                max_rows: int = DEFAULT_MAX_ROWS, pick_sheet=None) -> RawTable:
     """Read one sheet of an xlsx/xlsm file or a csv/txt file. ``pick_sheet(workbook, file)``
-    chooses the worksheet when no sheet is named (default: the first visible one)."""
+    chooses the worksheet when no sheet is named (default: the first visible one). A
+    RawTable already in memory (a DataFrame's cells, :mod:`qualbayes.data.frames`) is
+    returned as it is, so every reader validates a DataFrame exactly as a file."""
+    if isinstance(path, RawTable):
+        return path
     if isinstance(max_rows, bool) or not isinstance(max_rows, int) or max_rows < 1:
         raise OptionError(f"--max-rows {max_rows!r}: give a whole number of at least 1")
     p = Path(path)

@@ -1,6 +1,8 @@
 """The run record of a life question, and its renderings (terminal text, workbook sheets).
 
-The record is a plain JSON-ready dict; the text, the workbook and the figures are rendered
+The question returns numbers; the record words them (:mod:`life_words`: notes, verdicts,
+the model in symbols) and adds the plot curves (:mod:`life_curves`). The record is a plain
+JSON-ready dict; the text, the workbook and the figures are rendered
 from it, so evidence rebuilt from a saved record shows the same numbers.
 """
 
@@ -14,6 +16,7 @@ from qualbayes.data.life import LifeTable
 from qualbayes.evidence.explain import NEXT_STEP, gate_line, life_columns
 from qualbayes.evidence.jsonout import plain
 from qualbayes.evidence.life_extras_record import extras_lines, extras_sheets
+from qualbayes.evidence.life_words import worded
 from qualbayes.evidence.numbers import plural, probability, quantity
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
@@ -30,6 +33,7 @@ def life_record(result: LifeAssessment, data: LifeTable, sha256: str, command: s
     u = f" {result.units}" if result.units else ""
     c = result.confidence
     decisions: dict[str, int] = {}
+    words = worded(result, data)
     for g in result.groups:
         decisions[g["decision"]] = decisions.get(g["decision"], 0) + 1
     return plain({
@@ -44,10 +48,10 @@ def life_record(result: LifeAssessment, data: LifeTable, sha256: str, command: s
         "input": {"file": data.file, "sheet": data.sheet, "sha256": sha256,
                   "header_row": data.header_row, "rows_read": len(data.frame),
                   "rows_rejected": 0, "columns": data.headers, "notes": data.notes},
-        "model": result.model, "prior": result.prior.describe(result.units),
+        "model": words["model"], "prior": result.prior.describe(result.units),
         "seed": result.seed,
-        "groups": result.groups, "notes": result.notes,
-        "comparisons": result.comparisons,
+        "groups": words["groups"], "notes": words["notes"],
+        "comparisons": words["comparisons"],
         "posterior_draws": {g: d["chains"] for g, d in (result.draws or {}).items()
                             if "chains" in d},
         "decision_counts": decisions,

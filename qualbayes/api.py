@@ -29,6 +29,7 @@ from qualbayes.results import LifeResult, LotResult, PlanResult
 MORE = ("assess_suppliers", "assess_at_use", "forecast_returns")
 
 HISTORY = "history"
+DEFAULT_SEED = 20261202  # the command line's --seed default (SamplerSettings.seed)
 
 
 # --------------------------------------------------------------------------- priors in
@@ -154,11 +155,16 @@ def assess_lots(data, *, spec, confidence=0.95, prior="uniform", columns=None,
     chosen = lot_prior(prior)
     seed_value = None if seed is None else check.seed(seed)
     history = chosen == HISTORY
-    run_settings = check.settings_with_seed(settings, seed_value) if history else None
+    # No settings given: the question's own sampler defaults, exactly as the command runs
+    # (the history fit's target acceptance is its own, not SamplerSettings' default).
+    run_settings = (check.settings_with_seed(settings, seed_value)
+                    if history and settings is not None else None)
+    run_seed = (run_settings.seed if run_settings is not None
+                else seed_value if seed_value is not None else DEFAULT_SEED)
     table = lots_table(data, columns=columns, sheet=sheet)
-    with _sampling(history) as fits:
-        result = lot_question.assess_lots(table, spec_value, conf, chosen,
-                                        seed=run_settings.seed if history else 20261202,
+    sampled = history and options.get("engine", "nuts") != "quadrature"
+    with _sampling(sampled) as fits:
+        result = lot_question.assess_lots(table, spec_value, conf, chosen, seed=run_seed,
                                         settings=run_settings, **options)
     shown = {"spec": spec_value, "confidence": conf, "prior": prior if isinstance(prior, str)
              else result.prior, "seed": seed_value}

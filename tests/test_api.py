@@ -209,3 +209,23 @@ def test_pandas_types_read_as_their_values():
     assert got["lot_size"].isna().tolist() == [False, True, False]
     assert got["part"].tolist() == ["A-1", "A-1", "B-2"]
     assert got["defectives"].tolist() == [0, 1, 0]
+
+
+def test_a_history_fit_from_python_equals_the_command(tmp_path, capsys):
+    """The API samples exactly as ``qualbayes lots --prior history`` does (same sampler
+    settings, same default seed): every lot's probability is the same number."""
+    import json
+
+    from qualbayes.cli import main
+
+    frame = pd.DataFrame({"lot": [f"L{i}" for i in range(6)], "part": ["P-7"] * 6,
+                          "inspected": [80, 80, 125, 80, 50, 80],
+                          "defectives": [0, 1, 0, 2, 0, 0]})
+    path = tmp_path / "lots.csv"
+    frame.to_csv(path, index=False)
+    capsys.readouterr()
+    assert main(["lots", str(path), "--spec", "2%", "--prior", "history", "--json"]) == 0
+    record = json.loads(capsys.readouterr().out)
+    result = qb.assess_lots(frame, spec="2%", prior="history")
+    from_cli = [lot["prob_within_spec"] for lot in record["lots"]]
+    assert result.to_frame()["prob_within_spec"].tolist() == from_cli

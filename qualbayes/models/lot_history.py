@@ -138,7 +138,8 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
     """Fit every part's lot history at once. ``groups[j] = (x_j, n_j)``.
 
     Draws of ``mu`` and ``kappa`` come back with shape (chain, draw, parts) with the padding
-    removed; the gate checks mu and log kappa of every real part.
+    removed; the gate checks mu and log kappa of every real part. The Fit keeps the adapted
+    sampler, so :func:`more_draws` continues its chains.
     """
     prior = prior if prior is not None else HistoryPrior()
     if model is None:
@@ -157,28 +158,20 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
 
     scale = None if prior.cv_scale is None else jnp.asarray(float(prior.cv_scale))
     args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), scale)
-    fit = run_nuts(model, args, settings, gate_on=gate_on)
-    fit.draws = {"mu": fit.draws["mu"][:, :, :k, 0], "kappa": fit.draws["kappa"][:, :, :k, 0]}
-    return fit
+    return run_nuts(model, args, settings, gate_on=gate_on,
+                    transform=lambda d: {"mu": d["mu"][:, :, :k, 0],
+                                         "kappa": d["kappa"][:, :, :k, 0]})
 
 
-def more_draws(fit: Fit, groups, names: list[str], prior, round_no: int) -> Fit:
-    """The fit with one more NUTS run of the same size (seed shifted by ``round_no``) added
-    as further chains; the gate is judged again on all chains together."""
-    from dataclasses import replace  # noqa: PLC0415
+def more_draws(fit: Fit, groups=None, names: list[str] | None = None, prior=None,
+               round_no: int = 1) -> Fit:
+    """The fit with as many draws again per chain, continued from its adapted chains (no
+    new warmup, the same compiled sampler); the gate is judged again on all draws.
+    ``groups``, ``names``, ``prior`` and ``round_no`` are kept for earlier callers."""
+    from qualbayes.inference.run import continue_nuts  # noqa: PLC0415
 
-    from qualbayes.inference.gate import diagnose  # noqa: PLC0415
+    if fit.sampler is not None and hasattr(fit.sampler, "extended"):
+        return continue_nuts(fit)
+    from qualbayes.models.lot_history_parts import continue_parts  # noqa: PLC0415
 
-    settings = replace(fit.settings, seed=fit.settings.seed + 7919 * round_no, retry=False)
-    extra = fit_histories(groups, settings, names=names, prior=prior)
-    draws = {k: np.concatenate([fit.draws[k], extra.draws[k]], axis=0) for k in ("mu", "kappa")}
-    checked = {}
-    for j, name in enumerate(names):
-        checked[f"mu[{name}]"] = draws["mu"][:, :, j]
-        checked[f"log_kappa[{name}]"] = np.log(draws["kappa"][:, :, j])
-    info = dict(fit.gate.settings)
-    info["chains"] = draws["mu"].shape[0]
-    info["extra_runs"] = round_no
-    gate = diagnose(checked, fit.gate.divergences + extra.gate.divergences, fit.gate.attempts,
-                    info)
-    return Fit(draws, gate, fit.settings)
+    return continue_parts(fit)

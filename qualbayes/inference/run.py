@@ -92,6 +92,14 @@ def recording_fits():
         _RECORDER.reset(token)
 
 
+def record(fit: Fit) -> Fit:
+    """Hand ``fit`` to the enclosing :func:`recording_fits` block, if any (for samplers that
+    do not go through :func:`run_nuts`); returns it."""
+    if (fits := _RECORDER.get()) is not None:
+        fits.append(fit)
+    return fit
+
+
 def _map_counts() -> tuple[int, int] | None:
     """(memory mappings of this process, the system's limit), or None off Linux."""
     try:
@@ -221,8 +229,7 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
             fit = chains.fit(attempt_settings)
             progress.fit_checked(started, fit.gate.passed, attempt_settings.retry)
             if fit.gate.passed or not attempt_settings.retry:
-                if (fits := _RECORDER.get()) is not None:
-                    fits.append(fit)
+                record(fit)
                 relieve_memory_maps()
                 return fit
             attempt_settings = attempt_settings.harder()
@@ -245,9 +252,7 @@ def continue_nuts(fit: Fit, num_samples: int | None = None) -> Fit:
             progress.fit_finished(started)
         out = chains.fit(fit.settings)
     progress.fit_checked(started, out.gate.passed, False)
-    if (fits := _RECORDER.get()) is not None:
-        fits.append(out)
-    return out
+    return record(out)
 
 
 @dataclass

@@ -110,6 +110,10 @@ def lot_history_model_plain(x, n, w, scale):
         numpyro.sample("x", dist.Binomial(total_count=n, probs=p), obs=x)
 
 
+#: parts from which the history fit samples every part as its own problem (docs/speed.md)
+INDEPENDENT_FROM = 2
+
+
 def bucket(k: int, least: int = 8) -> int:
     """Padded length: the next power of two, at least ``least``."""
     return max(least, 1 << (max(k, 1) - 1).bit_length())
@@ -134,8 +138,13 @@ def pad(groups: list[tuple[np.ndarray, np.ndarray]], distinct: bool = True):
 
 
 def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: SamplerSettings,
-                  names: list[str] | None = None, model=None, prior=None) -> Fit:
-    """Fit every part's lot history at once. ``groups[j] = (x_j, n_j)``.
+                  names: list[str] | None = None, model=None, prior=None,
+                  independent: bool | None = None) -> Fit:
+    """Fit every part's lot history. ``groups[j] = (x_j, n_j)``.
+
+    ``independent`` (default: when there are at least :data:`INDEPENDENT_FROM` parts): every
+    part its own sampler, adaptation and gate
+    (:func:`qualbayes.models.lot_history_parts.fit_parts`); else one joint NUTS run.
 
     Draws of ``mu`` and ``kappa`` come back with shape (chain, draw, parts) with the padding
     removed; the gate checks mu and log kappa of every real part. The Fit keeps the adapted
@@ -147,6 +156,12 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
                  else lot_history_model)
     k = len(groups)
     names = names or [str(j) for j in range(k)]
+    if independent is None:
+        independent = k >= INDEPENDENT_FROM
+    if independent and model is not lot_history_model_plain:
+        from qualbayes.models.lot_history_parts import fit_parts  # noqa: PLC0415
+
+        return fit_parts(groups, settings, names, prior, model=model)
     xs, ns, ws = pad(groups, distinct=model is not lot_history_model_plain)
 
     def gate_on(draws: dict) -> dict:
@@ -169,9 +184,6 @@ def more_draws(fit: Fit, groups=None, names: list[str] | None = None, prior=None
     new warmup, the same compiled sampler); the gate is judged again on all draws.
     ``groups``, ``names``, ``prior`` and ``round_no`` are kept for earlier callers."""
     from qualbayes.inference.run import continue_nuts  # noqa: PLC0415
+    from qualbayes.models.lot_history_parts import continue_parts, is_part_fit  # noqa: PLC0415
 
-    if fit.sampler is not None and hasattr(fit.sampler, "extended"):
-        return continue_nuts(fit)
-    from qualbayes.models.lot_history_parts import continue_parts  # noqa: PLC0415
-
-    return continue_parts(fit)
+    return continue_parts(fit) if is_part_fit(fit) else continue_nuts(fit)

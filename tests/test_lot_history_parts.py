@@ -11,7 +11,7 @@ from qualbayes.inference.run import SamplerSettings
 X1 = np.array([0, 1, 3, 0, 2, 5, 1, 0, 0, 4, 2, 1], float)
 N1 = np.array([50, 80, 125, 50, 80, 200, 125, 80, 50, 125, 200, 80], float)
 X2, N2 = np.zeros(15), np.full(15, 125.0)  # a clean history: a very different posterior
-QUICK = SamplerSettings(num_warmup=500, num_samples=500, seed=3, target_accept=0.99)
+QUICK = SamplerSettings(num_warmup=500, num_samples=1000, seed=3, target_accept=0.99)
 TRAP_N = 7777.0  # a lot inspected this many times marks the part the cliff model spoils
 CLIFF_MU = 0.014  # the median of mu for X1 plus 100 of 7,777 (quadrature, lot_history_grid)
 
@@ -38,41 +38,42 @@ def _gate_on_all(draws, names):
                            coords={"part": names})
 
 
-@pytest.mark.slow
 def test_a_close_call_continues_the_joint_chains_and_the_gate_sees_every_draw():
     from qualbayes.models.lot_history import fit_histories, more_draws
 
-    fit = fit_histories([(X1, N1)], QUICK, names=["P"])
+    fit = fit_histories([(X1, N1)], QUICK, names=["P"], independent=False)
+    s = fit.draws["mu"].shape[1]  # the draws per chain of the (possibly retried) fit
     more = more_draws(fit)
-    assert more.draws["mu"].shape == (4, 1000, 1) and more.diverging.shape == (4, 1000)
-    assert np.array_equal(more.draws["mu"][:, :500], fit.draws["mu"])  # extended, not new
-    assert more.gate.settings["continued_draws_per_chain"] == 500
-    assert more.gate.settings["warmup"] == 500 and more.gate.attempts == fit.gate.attempts
+    assert more.draws["mu"].shape == (4, 2 * s, 1) and more.diverging.shape == (4, 2 * s)
+    assert np.array_equal(more.draws["mu"][:, :s], fit.draws["mu"])  # extended, not new
+    assert more.gate.settings["continued_draws_per_chain"] == s
+    assert more.gate.settings["warmup"] == fit.gate.settings["warmup"]  # no new warmup
+    assert more.gate.attempts == fit.gate.attempts
     # the gate is judged on all 1,000 draws per chain: equal to a fresh diagnosis of them
     fresh = _gate_on_all(more.draws, ["P"])
     assert more.gate.min_ess_bulk == pytest.approx(fresh.min_ess_bulk, rel=1e-12)
     assert more.gate.min_ess_bulk > fit.gate.min_ess_bulk
     # continued chains are still draws of the same posterior (no drift after the warmup)
-    _agrees_with_quadrature(more.draws["mu"][:, 500:, 0], more.draws["kappa"][:, 500:, 0],
+    _agrees_with_quadrature(more.draws["mu"][:, s:, 0], more.draws["kappa"][:, s:, 0],
                             X1, N1)
     _agrees_with_quadrature(more.draws["mu"][..., 0], more.draws["kappa"][..., 0], X1, N1)
     again = more_draws(more)
-    assert again.draws["mu"].shape == (4, 1500, 1)
-    assert np.array_equal(again.draws["mu"][:, :1000], more.draws["mu"])
+    assert again.draws["mu"].shape == (4, 3 * s, 1)
+    assert np.array_equal(again.draws["mu"][:, :2 * s], more.draws["mu"])
 
 
-@pytest.mark.slow
 def test_independent_parts_agree_with_quadrature_and_continue_part_by_part():
     from qualbayes.models.lot_history import fit_histories, more_draws
 
     names = ["1", "X[1"]
     fit = fit_histories([(X1, N1), (X2, N2)], QUICK, names=names)
     assert fit.gate.settings["sampler"].endswith("every part its own sampler")
-    assert fit.diverging_parts.shape == (4, 500, 2) and fit.diverging.shape == (4, 500)
+    assert fit.diverging_parts.shape == (4, 1000, 2) and fit.diverging.shape == (4, 1000)
     more = more_draws(fit)
-    assert more.draws["kappa"].shape == (4, 1000, 2)
-    assert np.array_equal(more.draws["kappa"][:, :500], fit.draws["kappa"])
-    assert more.diverging_parts.shape == (4, 1000, 2)
+    assert more.draws["kappa"].shape == (4, 2000, 2)
+    assert np.array_equal(more.draws["kappa"][:, :1000], fit.draws["kappa"])
+    assert more.diverging_parts.shape == (4, 2000, 2)
+    assert more.gate.settings["continued_draws_per_chain"] == 1000
     fresh = _gate_on_all(more.draws, names)
     for name in names:
         assert more.gate.select(part=name).min_ess_bulk == pytest.approx(

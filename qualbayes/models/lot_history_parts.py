@@ -12,8 +12,9 @@ vmap). Chunks are run one after another through one compiled sampler per padded 
 early; docs/speed.md has the measurements behind :data:`CHUNK`).
 
 Each part has its own gate (R-hat and ESS of mu and log kappa, and its own divergences): a
-part that fails it is refitted alone with more warmup and a higher target acceptance, the
-same number of draws, without refitting the others; a part still failing is reported as not
+part that fails it is refitted alone with twice the warmup and the draws (thinned by 2 to
+the others' shape; a divergence anywhere in a thinned pair counts) and a higher target
+acceptance, without refitting the others; a part still failing is reported as not
 converged and only its lots lose their verdict. A close call continues every part's adapted
 chains (:func:`continue_parts`: no new warmup, the same compiled code).
 
@@ -72,10 +73,11 @@ def fit_parts(groups, settings: SamplerSettings, names: list[str], prior,
 
 
 def harder_for_part(s: SamplerSettings) -> SamplerSettings:
-    """A failing part's retry: twice the warmup, target acceptance at least 0.995, the same
-    number of draws (so that every part keeps the same (chain, draw) shape)."""
-    return replace(s, num_warmup=2 * s.num_warmup, target_accept=max(s.target_accept, 0.995),
-                   seed=s.seed + 1, retry=False)
+    """A failing part's retry: twice the warmup and twice the draws, target acceptance at
+    least 0.995; the draws are then thinned by 2, so that every part keeps the same (chain,
+    draw) shape (thinning an autocorrelated chain keeps most of its effective size)."""
+    return replace(s, num_warmup=2 * s.num_warmup, num_samples=2 * s.num_samples,
+                   target_accept=max(s.target_accept, 0.995), seed=s.seed + 1, retry=False)
 
 
 def continue_parts(fit: Fit, num_samples: int | None = None) -> Fit:
@@ -125,6 +127,10 @@ class _PartChains:
             idx = parts[start:start + self.chunk]
             mu, kappa, div, st = _run_chunk(self.model, self.xs[idx], self.ns[idx],
                                             self.ws[idx], self.scale, s)
+            thin = s.num_samples // self.mu.shape[1]  # a retry's longer chains, thinned
+            if thin > 1:
+                div = div.reshape(div.shape[0], -1, thin, div.shape[2]).any(axis=2)
+                mu, kappa = mu[:, thin - 1::thin], kappa[:, thin - 1::thin]
             self.mu[:, :, idx], self.kappa[:, :, idx], self.div[:, :, idx] = mu, kappa, div
             for i, j in enumerate(idx):
                 self.states[j] = (s, _take(st, i))

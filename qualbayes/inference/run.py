@@ -166,6 +166,11 @@ class Fit:
     #: :func:`continue_nuts`; None when it cannot be continued
     sampler: object | None = field(default=None, repr=False, compare=False)
 
+    def __getstate__(self) -> dict:
+        """Pickled (e.g. to another process) without the sampler, which holds compiled code:
+        the copy's draws and gate are whole, it just cannot be continued."""
+        return self.__dict__ | {"sampler": None}
+
     def to_idata(self, observed: dict | None = None, observed_dims: dict | None = None,
                  coords: dict | None = None):
         """The draws as an ``arviz.InferenceData`` (imports arviz): posterior with named

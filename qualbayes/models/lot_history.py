@@ -27,8 +27,13 @@ dimensions per part. Given a draw of :math:`(\mu_j, \kappa_j)`, :math:`p_{ji}` i
 average these conditional Betas over the draws (Rao-Blackwellised), and the next lot's rate
 is :math:`\mathrm{Beta}(\mu_j\kappa_j, (1-\mu_j)\kappa_j)` mixed over the draws.
 
-All parts are sampled in one vectorised model (a plate over parts), so one compilation
-serves them all. Sufficient statistics: the likelihood depends on the lots only through the distinct
+One part is sampled by this model directly; several parts are sampled as independent
+problems, each its own NUTS chain, adaptation and gate
+(:mod:`qualbayes.models.lot_history_parts`, docs/speed.md); ``independent=False`` keeps one
+joint run over a plate of parts. A close call continues the adapted chains
+(:func:`more_draws`).
+
+Sufficient statistics: the likelihood depends on the lots only through the distinct
 (defectives, inspected) pairs and how many lots share each, so lots are collapsed into
 weighted terms :math:`\sum_k w_k \log \mathrm{BB}(x_k \mid n_k, \ldots)` (exact). Inspection
 data repeat themselves (sample sizes come from a few standard values, defect counts are

@@ -1,5 +1,6 @@
-"""The lots question under the history prior: one NUTS fit for all groups, more draws for
-close calls, per-lot answers from the draws, and the outlier check by exact quadrature."""
+"""The lots question under the history prior: one NUTS fit (every group its own sampler
+when there are several), close calls settled by continuing the adapted chains, per-lot
+answers from the draws, and the outlier check by exact quadrature."""
 
 from __future__ import annotations
 
@@ -43,7 +44,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         if not close or runs >= MAX_EXTRA_RUNS:
             break
         runs += 1
-        fit = more_draws(fit, data, names, hyper, runs)
+        fit = more_draws(fit)
     checks = cross_check.lot_groups(fit, data, names, spec, hyper)  # quadrature vs NUTS
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
              _answer_groups(frame, groups, fit, spec, confidence, outliers,
@@ -87,8 +88,11 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
                      "'not-converged' and no decision")
     notes.append(cross_check.summary_line(checks))
     if runs:
-        notes.append(f"close calls: {runs} further NUTS run(s) of the same size were drawn "
-                     f"(cap {MAX_EXTRA_RUNS}) to settle P within its Monte Carlo error")
+        per_chain = fit.settings.num_samples
+        notes.append(f"close calls: the adapted chains were continued {runs} time(s) by "
+                     f"{per_chain:,} draws per chain, without a new warmup (cap "
+                     f"{MAX_EXTRA_RUNS}), to settle P within its Monte Carlo error; the gate "
+                     "and every P use all the draws")
     notes += lot_notes(frame[~conv], conflict=None)
     model = MODEL_HISTORY.format(spread=_spread_words(hyper), groups=", ".join(group_by))
     spread = {"stated_scale": hyper.cv_scale, "words": hyper.describe(),

@@ -57,6 +57,24 @@ def test_a_part_named_1_does_not_take_the_diagnostics_of_a_part_named_x1():
     assert by_coord.select(part="1").passed and not by_coord.select(part="X[1").passed
 
 
+def test_a_part_with_its_own_sampler_keeps_its_own_divergences():
+    # every part its own sampler: 3 divergences of part "X[1" fail "X[1" only, by coordinate
+    # or by tag, and a part named "1" is not matched by the end of "X[1"
+    rng = np.random.default_rng(2)
+    mu = rng.normal(size=(4, 500, 2))
+    gate = diagnose_arrays({"mu": mu}, 3, dims={"mu": ["part"]}, coords={"part": ["1", "X[1"]})
+    gate.local_divergences = {"part": {"1": 0, "X[1": 3}}
+    assert not gate.passed and gate.divergences == 3
+    for chosen in (gate.select(part="1"), gate.select("1")):
+        assert chosen.passed and chosen.divergences == 0
+    for chosen in (gate.select(part="X[1"), gate.select("X[1")):
+        assert not chosen.passed and chosen.divergences == 3
+        assert chosen.reasons() == ["3 divergent transitions (allowed 0)"]
+    # a joint sampler (no local counts): divergences belong to every part
+    gate.local_divergences = {}
+    assert not gate.select(part="1").passed
+
+
 def test_constant_draws_are_reported_as_constant():
     gate = diagnose_arrays({"mu": np.ones((4, 300, 2))}, 0, dims={"mu": ["part"]},
                            coords={"part": ["a", "b"]})

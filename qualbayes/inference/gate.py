@@ -59,6 +59,9 @@ class GateResult:
     divergences: int
     attempts: int = 1
     settings: dict = field(default_factory=dict)
+    #: divergences of each element when every element had its own sampler, by dimension and
+    #: label (``{"part": {"A": 0, "X[1": 3}}``): selecting an element keeps only its own
+    local_divergences: dict = field(default_factory=dict)
 
     @property
     def passed(self) -> bool:
@@ -109,7 +112,8 @@ class GateResult:
         or ``select("A")`` for the element whose (only) coordinate equals "A" (labelled
         ``name[A]``). Equality, never a suffix match: a part named "1" does not pick up the
         parameters of a part named "X[1". Divergences belong to the joint sampler and are
-        kept whole."""
+        kept whole, unless every element had its own sampler (``local_divergences``): then
+        the element's own count."""
         if tag is not None:
             tag = str(tag)
             chosen = [p for p in self.params if tag in (str(v) for v in p.coords.values())]
@@ -118,7 +122,13 @@ class GateResult:
         if coords:
             chosen = [p for p in chosen
                       if all(str(p.coords.get(k)) == str(v) for k, v in coords.items())]
-        return GateResult(chosen, self.divergences, self.attempts, self.settings)
+        divergences, local = self.divergences, {}
+        for dim, counts in self.local_divergences.items():
+            label = str(coords[dim]) if dim in coords else tag
+            if label is not None and label in counts:
+                divergences, local = counts[label], {dim: {label: counts[label]}}
+                break
+        return GateResult(chosen, divergences, self.attempts, self.settings, local)
 
     def to_dict(self) -> dict:
         return {

@@ -92,6 +92,14 @@ def recording_fits():
         _RECORDER.reset(token)
 
 
+def record(fit: Fit) -> Fit:
+    """Hand ``fit`` to the enclosing :func:`recording_fits` block, if any (for samplers that
+    do not go through :func:`run_nuts`); returns it."""
+    if (fits := _RECORDER.get()) is not None:
+        fits.append(fit)
+    return fit
+
+
 def _map_counts() -> tuple[int, int] | None:
     """(memory mappings of this process, the system's limit), or None off Linux."""
     try:
@@ -147,16 +155,31 @@ class Fit:
     draws: dict[str, np.ndarray]  # name -> (chain, draw, *shape)
     gate: GateResult
     settings: SamplerSettings
-    #: per (chain, draw): True where the transition diverged
+    #: per (chain, draw): True where the transition diverged (any part, when the parts were
+    #: sampled as independent problems)
     diverging: np.ndarray | None = None
     dims: dict = field(default_factory=dict)  # name -> trailing dimension names
     coords: dict = field(default_factory=dict)  # dimension -> labels
+    #: per (chain, draw, part) when every part is its own sampler (its own divergences)
+    diverging_parts: np.ndarray | None = None
+    #: the adapted sampler behind the draws (step size, mass matrix, last state), for
+    #: :func:`continue_nuts`; None when it cannot be continued
+    sampler: object | None = field(default=None, repr=False, compare=False)
+
+    def __getstate__(self) -> dict:
+        """Pickled (e.g. to another process) without the sampler, which holds compiled code:
+        the copy's draws and gate are whole, it just cannot be continued."""
+        return self.__dict__ | {"sampler": None}
 
     def to_idata(self, observed: dict | None = None, observed_dims: dict | None = None,
                  coords: dict | None = None):
         """The draws as an ``arviz.InferenceData`` (imports arviz): posterior with named
-        dimensions and coordinates, sample stats (``diverging``) and observed data."""
-        return to_idata(self.draws, self.diverging, self.dims, self.coords | (coords or {}),
+        dimensions and coordinates, sample stats (``diverging``, with the dimension ``part``
+        when every part was its own sampler) and observed data."""
+        dims, diverging = dict(self.dims), self.diverging
+        if self.diverging_parts is not None:
+            diverging, dims = self.diverging_parts, dims | {"diverging": ["part"]}
+        return to_idata(self.draws, diverging, dims, self.coords | (coords or {}),
                         observed, observed_dims)
 
 
@@ -186,12 +209,15 @@ def show_progress() -> bool:
 def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
              gate_on: Callable[[dict], dict] | None = None,
              init_params: dict | None = None, *, gate_vars: list[str] | None = None,
-             dims: dict | None = None, coords: dict | None = None) -> Fit:
+             dims: dict | None = None, coords: dict | None = None,
+             transform: Callable[[dict], dict] | None = None) -> Fit:
     """Sample ``model(*model_args)`` with NUTS, vectorised chains; gate; retry once.
 
     The gate checks ``gate_vars`` (sites, with ``dims``/``coords`` naming their trailing axes
     so selection is by coordinate), or what ``gate_on`` maps the draws to (the older layout:
-    ``{"mu[A]": (chain, draw)}``), or else every site.
+    ``{"mu[A]": (chain, draw)}``), or else every site. ``transform`` maps the sampler's draws
+    to the ones the Fit keeps (e.g. padding removed). The Fit keeps the adapted sampler:
+    :func:`continue_nuts` draws more from it without a new warmup.
     """
     attempt_settings = settings
     attempts = 0
@@ -200,26 +226,85 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
             attempts += 1
             started = progress.fit_started(attempt_settings)
             try:
-                draws, diverging = _sample(model, model_args, attempt_settings, init_params)
+                raw, diverging, mcmc = _sample(model, model_args, attempt_settings, init_params)
             finally:
                 progress.fit_finished(started)
-            divergences = int(diverging.sum())
-            info = _settings_dict(attempt_settings)
-            if gate_vars is not None:
-                gate = diagnose_arrays({k: draws[k] for k in gate_vars}, divergences, attempts,
-                                       info, dims, coords)
-            else:
-                gate = diagnose(gate_on(draws) if gate_on else draws, divergences, attempts,
-                                info)
-            progress.fit_checked(started, gate.passed, attempt_settings.retry)
-            if gate.passed or not attempt_settings.retry:
-                fit = Fit(draws, gate, attempt_settings, diverging, dict(dims or {}),
-                          dict(coords or {}))
-                if (fits := _RECORDER.get()) is not None:
-                    fits.append(fit)
+            chains = _Chains(mcmc, model_args, raw, diverging, gate_on, gate_vars, dims, coords,
+                             transform, attempts)
+            fit = chains.fit(attempt_settings)
+            progress.fit_checked(started, fit.gate.passed, attempt_settings.retry)
+            if fit.gate.passed or not attempt_settings.retry:
+                record(fit)
                 relieve_memory_maps()
                 return fit
             attempt_settings = attempt_settings.harder()
+
+
+def continue_nuts(fit: Fit, num_samples: int | None = None) -> Fit:
+    """``fit`` with ``num_samples`` more draws per chain (default: as many as it has per
+    chain run) from its adapted sampler: the chains continue from their last state with the
+    step size and mass matrix of the warmup (no new warmup), the draws are appended along
+    the draw axis and the gate is judged again on all of them. The input is left unchanged.
+    ``ValueError`` when the fit holds no sampler (:attr:`Fit.sampler` is None)."""
+    if not isinstance(fit.sampler, _Chains):
+        raise ValueError("this fit holds no sampler state to continue")
+    more = int(num_samples or fit.settings.num_samples)
+    with jax_scope():
+        started = progress.fit_started(replace(fit.settings, num_warmup=0, num_samples=more))
+        try:
+            chains = fit.sampler.extended(more)
+        finally:
+            progress.fit_finished(started)
+        out = chains.fit(fit.settings)
+    progress.fit_checked(started, out.gate.passed, False)
+    return record(out)
+
+
+@dataclass
+class _Chains:
+    """The sampler of one NUTS run and every draw it has given (raw sites, before
+    ``transform``), so that more draws can follow without a new warmup."""
+
+    mcmc: object
+    model_args: tuple
+    raw: dict
+    diverging: np.ndarray
+    gate_on: Callable | None
+    gate_vars: list[str] | None
+    dims: dict | None
+    coords: dict | None
+    transform: Callable | None
+    attempts: int
+    continued: int = 0  # draws per chain added after the first run
+
+    def fit(self, s: SamplerSettings) -> Fit:
+        raw, divergences = self.raw, int(self.diverging.sum())
+        info = _settings_dict(s) | ({"continued_draws_per_chain": self.continued}
+                                    if self.continued else {})
+        if self.gate_vars is not None:
+            gate = diagnose_arrays({k: raw[k] for k in self.gate_vars}, divergences,
+                                   self.attempts, info, self.dims, self.coords)
+        else:
+            gate = diagnose(self.gate_on(raw) if self.gate_on else raw, divergences,
+                            self.attempts, info)
+        draws = self.transform(raw) if self.transform else dict(raw)
+        return Fit(draws, gate, s, self.diverging, dict(self.dims or {}),
+                   dict(self.coords or {}), sampler=self)
+
+    def extended(self, more: int) -> _Chains:
+        """More draws from the last state (same kernel: compiled once per shape)."""
+        mcmc = self.mcmc
+        mcmc.post_warmup_state = mcmc.last_state
+        num_samples = mcmc.num_samples
+        mcmc.num_samples = more
+        try:
+            mcmc.run(mcmc.last_state.rng_key, *self.model_args, extra_fields=("diverging",))
+        finally:
+            mcmc.num_samples = num_samples
+        new, div = _collect(mcmc)
+        raw = {k: np.concatenate([self.raw[k], new[k]], axis=1) for k in self.raw}
+        return replace(self, raw=raw, diverging=np.concatenate([self.diverging, div], axis=1),
+                       continued=self.continued + more)
 
 
 def chain_method(num_chains: int, requested: str | None = None) -> str:
@@ -252,6 +337,10 @@ def _sample(model, model_args, s: SamplerSettings, init_params):
                 progress_bar=show_progress(), jit_model_args=True)
     mcmc.run(jax.random.PRNGKey(s.seed), *model_args, init_params=init_params,
              extra_fields=("diverging",))
+    samples, diverging = _collect(mcmc)
+    return samples, diverging, mcmc
+
+
+def _collect(mcmc) -> tuple[dict, np.ndarray]:
     samples = {k: np.asarray(v) for k, v in mcmc.get_samples(group_by_chain=True).items()}
-    diverging = np.asarray(mcmc.get_extra_fields(group_by_chain=True)["diverging"])
-    return samples, diverging
+    return samples, np.asarray(mcmc.get_extra_fields(group_by_chain=True)["diverging"])

@@ -27,8 +27,13 @@ dimensions per part. Given a draw of :math:`(\mu_j, \kappa_j)`, :math:`p_{ji}` i
 average these conditional Betas over the draws (Rao-Blackwellised), and the next lot's rate
 is :math:`\mathrm{Beta}(\mu_j\kappa_j, (1-\mu_j)\kappa_j)` mixed over the draws.
 
-All parts are sampled in one vectorised model (a plate over parts), so one compilation
-serves them all. Sufficient statistics: the likelihood depends on the lots only through the distinct
+One part is sampled by this model directly; several parts are sampled as independent
+problems, each its own NUTS chain, adaptation and gate
+(:mod:`qualbayes.models.lot_history_parts`, docs/speed.md); ``independent=False`` keeps one
+joint run over a plate of parts. A close call continues the adapted chains
+(:func:`more_draws`).
+
+Sufficient statistics: the likelihood depends on the lots only through the distinct
 (defectives, inspected) pairs and how many lots share each, so lots are collapsed into
 weighted terms :math:`\sum_k w_k \log \mathrm{BB}(x_k \mid n_k, \ldots)` (exact). Inspection
 data repeat themselves (sample sizes come from a few standard values, defect counts are
@@ -110,6 +115,10 @@ def lot_history_model_plain(x, n, w, scale):
         numpyro.sample("x", dist.Binomial(total_count=n, probs=p), obs=x)
 
 
+#: parts from which the history fit samples every part as its own problem (docs/speed.md)
+INDEPENDENT_FROM = 2
+
+
 def bucket(k: int, least: int = 8) -> int:
     """Padded length: the next power of two, at least ``least``."""
     return max(least, 1 << (max(k, 1) - 1).bit_length())
@@ -134,11 +143,17 @@ def pad(groups: list[tuple[np.ndarray, np.ndarray]], distinct: bool = True):
 
 
 def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: SamplerSettings,
-                  names: list[str] | None = None, model=None, prior=None) -> Fit:
-    """Fit every part's lot history at once. ``groups[j] = (x_j, n_j)``.
+                  names: list[str] | None = None, model=None, prior=None,
+                  independent: bool | None = None) -> Fit:
+    """Fit every part's lot history. ``groups[j] = (x_j, n_j)``.
+
+    ``independent`` (default: when there are at least :data:`INDEPENDENT_FROM` parts): every
+    part its own sampler, adaptation and gate
+    (:func:`qualbayes.models.lot_history_parts.fit_parts`); else one joint NUTS run.
 
     Draws of ``mu`` and ``kappa`` come back with shape (chain, draw, parts) with the padding
-    removed; the gate checks mu and log kappa of every real part.
+    removed; the gate checks mu and log kappa of every real part. The Fit keeps the adapted
+    sampler, so :func:`more_draws` continues its chains.
     """
     prior = prior if prior is not None else HistoryPrior()
     if model is None:
@@ -146,6 +161,12 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
                  else lot_history_model)
     k = len(groups)
     names = names or [str(j) for j in range(k)]
+    if independent is None:
+        independent = k >= INDEPENDENT_FROM
+    if independent and model is not lot_history_model_plain:
+        from qualbayes.models.lot_history_parts import fit_parts  # noqa: PLC0415
+
+        return fit_parts(groups, settings, names, prior, model=model)
     xs, ns, ws = pad(groups, distinct=model is not lot_history_model_plain)
 
     def gate_on(draws: dict) -> dict:
@@ -157,28 +178,17 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
 
     scale = None if prior.cv_scale is None else jnp.asarray(float(prior.cv_scale))
     args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), scale)
-    fit = run_nuts(model, args, settings, gate_on=gate_on)
-    fit.draws = {"mu": fit.draws["mu"][:, :, :k, 0], "kappa": fit.draws["kappa"][:, :, :k, 0]}
-    return fit
+    return run_nuts(model, args, settings, gate_on=gate_on,
+                    transform=lambda d: {"mu": d["mu"][:, :, :k, 0],
+                                         "kappa": d["kappa"][:, :, :k, 0]})
 
 
-def more_draws(fit: Fit, groups, names: list[str], prior, round_no: int) -> Fit:
-    """The fit with one more NUTS run of the same size (seed shifted by ``round_no``) added
-    as further chains; the gate is judged again on all chains together."""
-    from dataclasses import replace  # noqa: PLC0415
+def more_draws(fit: Fit, groups=None, names: list[str] | None = None, prior=None,
+               round_no: int = 1) -> Fit:
+    """The fit with as many draws again per chain, continued from its adapted chains (no
+    new warmup, the same compiled sampler); the gate is judged again on all draws.
+    ``groups``, ``names``, ``prior`` and ``round_no`` are kept for earlier callers."""
+    from qualbayes.inference.run import continue_nuts  # noqa: PLC0415
+    from qualbayes.models.lot_history_parts import continue_parts, is_part_fit  # noqa: PLC0415
 
-    from qualbayes.inference.gate import diagnose  # noqa: PLC0415
-
-    settings = replace(fit.settings, seed=fit.settings.seed + 7919 * round_no, retry=False)
-    extra = fit_histories(groups, settings, names=names, prior=prior)
-    draws = {k: np.concatenate([fit.draws[k], extra.draws[k]], axis=0) for k in ("mu", "kappa")}
-    checked = {}
-    for j, name in enumerate(names):
-        checked[f"mu[{name}]"] = draws["mu"][:, :, j]
-        checked[f"log_kappa[{name}]"] = np.log(draws["kappa"][:, :, j])
-    info = dict(fit.gate.settings)
-    info["chains"] = draws["mu"].shape[0]
-    info["extra_runs"] = round_no
-    gate = diagnose(checked, fit.gate.divergences + extra.gate.divergences, fit.gate.attempts,
-                    info)
-    return Fit(draws, gate, fit.settings)
+    return continue_parts(fit) if is_part_fit(fit) else continue_nuts(fit)

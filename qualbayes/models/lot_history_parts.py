@@ -5,49 +5,261 @@ the product of one posterior of :math:`(\mathrm{logit}\,\mu_j, \log(\tau_j - \ta
 per part. Sampled jointly, NUTS takes one step size and one tree depth for all 2 x parts
 dimensions, set by the hardest part. Here each (part, chain) is its own NUTS chain on the
 same one-part model (:func:`~qualbayes.models.lot_history.lot_history_model` with one row),
-with its own step-size and mass-matrix adaptation: ``jax.vmap`` over parts inside a
-``jax.pmap`` over chains (one CPU device per chain when the process has them, else a vmap).
-The gate is then judged per part, and a part that fails it is refitted alone with the
-harder settings (twice the draws, target acceptance 0.95) without refitting the others.
+with its own step-size and mass-matrix adaptation: ``jax.vmap`` over a chunk of parts inside
+a ``jax.pmap`` over chains (one CPU device per chain when the process has them, else a
+vmap). Chunks are run one after another through one compiled sampler per padded chunk shape
+(a vmap waits for the deepest tree of its chunk, so small chunks let easy parts finish
+early; docs/speed.md has the measurements behind :data:`CHUNK`).
 
-Parts are padded to a power of two with empty parts (no terms, weight 0) so that compiled
-code is reused across files of similar size; their draws are dropped.
+Each part has its own gate (R-hat and ESS of mu and log kappa, and its own divergences): a
+part that fails it is refitted alone with twice the warmup and the draws (thinned by 2 to
+the others' shape; a divergence anywhere in a thinned pair counts) and a higher target
+acceptance, without refitting the others; a part still failing is reported as not
+converged and only its lots lose their verdict. A close call continues every part's adapted
+chains (:func:`continue_parts`: no new warmup, the same compiled code).
+
+Parts and terms are padded (empty parts: no terms, weight 0) so that compiled code is
+reused across files of similar size; padding draws are dropped.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass, replace
 from functools import lru_cache, partial
 
 import numpy as np
 
-from qualbayes.inference.run import SamplerSettings, jax_scope
+from qualbayes.inference.run import Fit, SamplerSettings, jax_scope, record
+
+#: parts per compiled chunk (see docs/speed.md: measured 1, 10 and 100 parts x 20 lots)
+CHUNK = 8
 
 
 def sample_parts(model, xs, ns, ws, scale, s: SamplerSettings):
     """Draws of mu and kappa, shape (chain, draw, parts), and divergences (chain, draw,
     parts), every part its own chain of NUTS per chain index. ``scale``: a float or None."""
+    mu, kappa, div, _ = _run_chunk(model, xs, ns, ws, scale, s)
+    return mu, kappa, div
+
+
+def fit_parts(groups, settings: SamplerSettings, names: list[str], prior,
+              model=None, chunk: int | None = None) -> Fit:
+    """Every part of ``groups`` (``[(x_j, n_j)]``) its own NUTS problem; see the module text.
+
+    The Fit holds draws ``mu`` and ``kappa`` (chain, draw, part), ``diverging`` (chain,
+    draw: any part), ``diverging_parts`` (chain, draw, part), a gate whose ``select(part)``
+    sees only that part (its own divergences), and the samplers' states for
+    :func:`continue_parts`."""
+    from qualbayes import progress  # noqa: PLC0415
+    from qualbayes.models.lot_history import lot_history_model, pad  # noqa: PLC0415
+
+    model = model or lot_history_model
+    xs, ns, ws = pad(groups)
+    scale = None if prior.cv_scale is None else float(prior.cv_scale)
+    state = _PartChains(model, xs, ns, ws, scale, settings, list(names), chunk or CHUNK)
+    started = progress.fit_started(settings)
+    try:
+        state.run(np.arange(len(groups)), settings)
+        fit = state.fit()
+        failed = [j for j, name in enumerate(names) if not fit.gate.select(part=name).passed]
+        if failed and settings.retry:
+            state.run(np.array(failed), harder_for_part(settings))
+            state.retried = [names[j] for j in failed]
+            fit = state.fit()
+    finally:
+        progress.fit_finished(started)
+    progress.fit_checked(started, fit.gate.passed, False)
+    return record(fit)
+
+
+def harder_for_part(s: SamplerSettings) -> SamplerSettings:
+    """A failing part's retry: twice the warmup and twice the draws, target acceptance at
+    least 0.995; the draws are then thinned by 2, so that every part keeps the same (chain,
+    draw) shape (thinning an autocorrelated chain keeps most of its effective size)."""
+    return replace(s, num_warmup=2 * s.num_warmup, num_samples=2 * s.num_samples,
+                   target_accept=max(s.target_accept, 0.995), seed=s.seed + 1, retry=False)
+
+
+def continue_parts(fit: Fit, num_samples: int | None = None) -> Fit:
+    """``fit`` (from :func:`fit_parts`) with ``num_samples`` more draws per chain (default:
+    as many as it has per chain run) for every part, continued from each part's adapted
+    chain; every part's gate is judged again on all its draws."""
+    if not isinstance(fit.sampler, _PartChains):
+        raise ValueError("this fit holds no per-part sampler state to continue")
+    more = int(num_samples or fit.settings.num_samples)
+    return record(fit.sampler.extended(more).fit())
+
+
+def is_part_fit(fit: Fit) -> bool:
+    """True when ``fit`` came from :func:`fit_parts` (and can be continued part by part)."""
+    return isinstance(fit.sampler, _PartChains)
+
+
+@dataclass
+class _PartChains:
+    """The draws and last sampler states of every part (chain, part, ...)."""
+
+    model: object
+    xs: np.ndarray
+    ns: np.ndarray
+    ws: np.ndarray
+    scale: float | None
+    settings: SamplerSettings
+    names: list
+    chunk: int
+    mu: np.ndarray | None = None
+    kappa: np.ndarray | None = None
+    div: np.ndarray | None = None
+    #: per part: (settings it was sampled with, its state pytree, chain-major)
+    states: list | None = None
+    retried: list | None = None
+    continued: int = 0
+
+    def run(self, parts: np.ndarray, s: SamplerSettings) -> None:
+        """Sample ``parts`` (indices) with ``s`` in chunks; results replace those parts'."""
+        k = len(self.names)
+        if self.mu is None:
+            shape = (s.num_chains, s.num_samples, k)
+            self.mu, self.kappa = np.empty(shape), np.empty(shape)
+            self.div = np.zeros(shape, bool)
+            self.states = [None] * k
+        for start in range(0, len(parts), self.chunk):
+            idx = parts[start:start + self.chunk]
+            mu, kappa, div, st = _run_chunk(self.model, self.xs[idx], self.ns[idx],
+                                            self.ws[idx], self.scale, s)
+            thin = s.num_samples // self.mu.shape[1]  # a retry's longer chains, thinned
+            if thin > 1:
+                div = div.reshape(div.shape[0], -1, thin, div.shape[2]).any(axis=2)
+                mu, kappa = mu[:, thin - 1::thin], kappa[:, thin - 1::thin]
+            self.mu[:, :, idx], self.kappa[:, :, idx], self.div[:, :, idx] = mu, kappa, div
+            for i, j in enumerate(idx):
+                self.states[j] = (s, _take(st, i))
+
+    def extended(self, more: int) -> _PartChains:
+        """Every part's chains continued by ``more`` draws (grouped by the settings their
+        warmup used, so each group runs through the code that adapted it)."""
+        k = len(self.names)
+        new = [np.empty((self.mu.shape[0], more, k)) for _ in range(2)]
+        new_div = np.zeros((self.mu.shape[0], more, k), bool)
+        states = list(self.states)
+        by_settings: dict = {}
+        for j, (s, _) in enumerate(self.states):
+            by_settings.setdefault(_key(self.model, self.scale, s), []).append(j)
+        for key, parts in by_settings.items():
+            for start in range(0, len(parts), self.chunk):
+                idx = np.array(parts[start:start + self.chunk])
+                st = _stack([self.states[j][1] for j in idx])
+                mu, kappa, div, st = _continue_chunk(key, st, self.xs[idx], self.ns[idx],
+                                                     self.ws[idx], more)
+                new[0][:, :, idx], new[1][:, :, idx], new_div[:, :, idx] = mu, kappa, div
+                for i, j in enumerate(idx):
+                    states[j] = (self.states[j][0], _take(st, i))
+        return replace(self, mu=np.concatenate([self.mu, new[0]], axis=1),
+                       kappa=np.concatenate([self.kappa, new[1]], axis=1),
+                       div=np.concatenate([self.div, new_div], axis=1), states=states,
+                       continued=self.continued + more)
+
+    def fit(self) -> Fit:
+        from qualbayes.inference.gate import diagnose_arrays  # noqa: PLC0415
+        from qualbayes.inference.run import chain_method  # noqa: PLC0415
+
+        s = self.settings
+        info = {"sampler": "NUTS (numpyro), every part its own sampler",
+                "chains": s.num_chains, "warmup": s.num_warmup,
+                "draws_per_chain": s.num_samples, "target_accept": s.target_accept,
+                "max_tree_depth": s.max_tree_depth, "seed": s.seed,
+                "chain_method": chain_method(s.num_chains, s.chain_method),
+                "parts_per_chunk": self.chunk}
+        if self.retried:
+            info["retried_parts"] = list(self.retried)
+            info["retry"] = _describe(harder_for_part(s))
+        if self.continued:
+            info["continued_draws_per_chain"] = self.continued
+        dims = {"mu": ["part"], "log_kappa": ["part"]}
+        coords = {"part": list(self.names)}
+        per_part = self.div.sum(axis=(0, 1))
+        gate = diagnose_arrays({"mu": self.mu, "log_kappa": np.log(self.kappa)},
+                               int(per_part.sum()), 2 if self.retried else 1, info, dims,
+                               coords)
+        gate.local_divergences = {"part": {name: int(c) for name, c in
+                                           zip(self.names, per_part, strict=True)}}
+        return Fit({"mu": self.mu, "kappa": self.kappa}, gate, s, self.div.any(axis=2),
+                   {"mu": ["part"], "kappa": ["part"]}, coords, diverging_parts=self.div,
+                   sampler=self)
+
+
+def _describe(s: SamplerSettings) -> dict:
+    return {"warmup": s.num_warmup, "target_accept": s.target_accept, "seed": s.seed}
+
+
+def _key(model, scale, s: SamplerSettings) -> tuple:
+    return (model, None if scale is None else float(scale), int(s.num_warmup),
+            int(s.num_samples), float(s.target_accept), int(s.max_tree_depth),
+            _parallel(s), int(s.num_chains))
+
+
+def _parallel(s: SamplerSettings) -> bool:
+    import jax  # noqa: PLC0415
+
+    return jax.local_device_count() >= s.num_chains and s.chain_method != "vectorized"
+
+
+def _padded(arrays, width: int):
+    pad = width - arrays[0].shape[0]
+    return [np.concatenate([a, np.zeros((pad, *a.shape[1:]), a.dtype)]) for a in arrays]
+
+
+def _run_chunk(model, xs, ns, ws, scale, s: SamplerSettings):
+    """One chunk of parts: (chain, draw, part) draws and divergences, and the last states
+    (chain, part, ...), padding removed."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
 
     k = xs.shape[0]
-    pad = _bucket(k) - k
-    xs, ns, ws = (np.concatenate([a, np.zeros((pad, a.shape[1]))]) for a in (xs, ns, ws))
+    xs, ns, ws = _padded([xs, ns, ws], _bucket(k))
     with jax_scope():
-        parallel = jax.local_device_count() >= s.num_chains and s.chain_method != "vectorized"
-        run = _compiled(model, None if scale is None else float(scale), s.num_warmup,
-                        s.num_samples, float(s.target_accept), int(s.max_tree_depth), parallel)
+        run, _ = _compiled(*_key(model, scale, s))
         keys = jax.random.split(jax.random.PRNGKey(s.seed), s.num_chains)
-        mu, kappa, div = run(keys, jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
-    # (chain, parts, draw) -> (chain, draw, parts), padding removed
+        mu, kappa, div, states = run(keys, jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
     out = [np.moveaxis(np.asarray(a), 1, 2)[:, :, :k] for a in (mu, kappa, div)]
-    return out[0], out[1], out[2]
+    return out[0], out[1], out[2], jax.tree.map(lambda a: np.asarray(a)[:, :k], states)
+
+
+def _continue_chunk(key, states, xs, ns, ws, more: int):
+    import jax  # noqa: PLC0415
+    import jax.numpy as jnp  # noqa: PLC0415
+
+    k = xs.shape[0]
+    width = _bucket(k)
+    xs, ns, ws = _padded([xs, ns, ws], width)
+    states = jax.tree.map(lambda a: np.concatenate(
+        [a, np.repeat(a[:, :1], width - k, axis=1)], axis=1), states)
+    with jax_scope():
+        _, cont = _compiled(*key)
+        mu, kappa, div, states = cont(more)(states, jnp.asarray(xs), jnp.asarray(ns),
+                                            jnp.asarray(ws))
+    out = [np.moveaxis(np.asarray(a), 1, 2)[:, :, :k] for a in (mu, kappa, div)]
+    return out[0], out[1], out[2], jax.tree.map(lambda a: np.asarray(a)[:, :k], states)
+
+
+def _take(states, i: int):
+    import jax  # noqa: PLC0415
+
+    return jax.tree.map(lambda a: a[:, i], states)
+
+
+def _stack(states: list):
+    import jax  # noqa: PLC0415
+
+    return jax.tree.map(lambda *a: np.stack(a, axis=1), *states)
 
 
 @lru_cache(maxsize=16)
 def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_depth,
-              parallel):
+              parallel, num_chains):
     """One compiled sampler per model and settings: (keys, x, n, w) -> mu, kappa, diverging,
-    pmapped (or vmapped) over chains, vmapped over parts."""
+    last states, pmapped (or vmapped) over chains, vmapped over parts; and ``more`` ->
+    (states, x, n, w) -> the same, continuing from the states without warmup."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
     from numpyro.infer.hmc import hmc  # noqa: PLC0415
@@ -61,6 +273,16 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
 
     init_kernel, sample_kernel = hmc(potential_fn_gen=potential_gen, algo="NUTS")
 
+    def draws(state, x, n, w, length):
+        def step(st, _):
+            st = sample_kernel(st, model_args=(x, n, w))
+            return st, (st.z, st.diverging)
+
+        state, (z, div) = jax.lax.scan(step, state, None, length=length)
+        site = jax.vmap(lambda zz: constrain_fn(model, args(x, n, w), {}, zz,
+                                                return_deterministic=True))(z)
+        return site["mu"][:, 0, 0], site["kappa"][:, 0, 0], div, state
+
     def one(key, x, n, w):
         k_init, k_run = jax.random.split(key)
         z0 = {name: jax.random.uniform(kk, (1, 1), minval=-2.0, maxval=2.0)
@@ -70,22 +292,34 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
                             rng_key=k_run)
 
         def step(st, _):
-            st = sample_kernel(st, model_args=(x, n, w))
-            return st, (st.z, st.diverging)
+            return sample_kernel(st, model_args=(x, n, w)), None
 
         state, _ = jax.lax.scan(step, state, None, length=num_warmup)
-        _, (z, div) = jax.lax.scan(step, state, None, length=num_samples)
-        site = jax.vmap(lambda zz: constrain_fn(model, args(x, n, w), {}, zz,
-                                                return_deterministic=True))(z)
-        return site["mu"][:, 0, 0], site["kappa"][:, 0, 0], div
+        return draws(state, x, n, w, num_samples)
+
+    def over_parts(fn, first, x, n, w):
+        """``fn`` mapped over the parts axis: a vmap, or for a single part a plain call
+        (batching NUTS's while loops costs seconds of tracing on every run)."""
+        if x.shape[0] == 1:
+            one_part = fn(jax.tree.map(lambda a: a[0], first), x[0], n[0], w[0])
+            return jax.tree.map(lambda a: a[None], one_part)
+        return jax.vmap(fn)(first, x, n, w)
 
     def chain(key, x, n, w):
-        return jax.vmap(one)(jax.random.split(key, x.shape[0]), x, n, w)
+        return over_parts(one, jax.random.split(key, x.shape[0]), x, n, w)
 
-    if parallel:
-        return jax.pmap(chain, in_axes=(0, None, None, None))
-    return jax.jit(jax.vmap(chain, in_axes=(0, None, None, None)))
+    def mapped(fn, in_axes):
+        return jax.pmap(fn, in_axes=in_axes) if parallel else jax.jit(jax.vmap(fn, in_axes))
+
+    @lru_cache(maxsize=4)
+    def cont(more):
+        def go(states, x, n, w):
+            return over_parts(partial(draws, length=more), states, x, n, w)
+
+        return mapped(go, (0, None, None, None))
+
+    return mapped(chain, (0, None, None, None)), cont
 
 
 def _bucket(k: int) -> int:
-    return max(2, 1 << (max(k, 1) - 1).bit_length())
+    return 1 << (max(k, 1) - 1).bit_length()

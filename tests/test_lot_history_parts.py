@@ -1,0 +1,130 @@
+"""Close calls continue the adapted chains; parts fitted as independent problems, each with
+its own gate. References: the exact 2-D quadrature of models/lot_history_grid.py (itself
+checked against scipy.integrate.dblquad, docs/references.md "Quadrature reference"), and
+the Monte Carlo error sd / sqrt(ESS) of a mean."""
+
+import numpy as np
+import pytest
+
+from qualbayes.inference.run import SamplerSettings
+
+X1 = np.array([0, 1, 3, 0, 2, 5, 1, 0, 0, 4, 2, 1], float)
+N1 = np.array([50, 80, 125, 50, 80, 200, 125, 80, 50, 125, 200, 80], float)
+X2, N2 = np.zeros(15), np.full(15, 125.0)  # a clean history: a very different posterior
+QUICK = SamplerSettings(num_warmup=500, num_samples=1000, seed=3, target_accept=0.99)
+TRAP_N = 7777.0  # a lot inspected this many times marks the part the cliff model spoils
+CLIFF_MU = 0.014  # the median of mu for X1 plus 100 of 7,777 (quadrature, lot_history_grid)
+
+
+def _agrees_with_quadrature(mu, kappa, x, n):
+    from qualbayes.inference.diagnostics import ess_bulk
+    from qualbayes.models.lot_history_grid import posterior_grid
+
+    g = posterior_grid(x, n, size=400)
+    assert g.edge_mass < 1e-6
+    for values, exact in ((mu, g.mu), (np.log(kappa), np.log(g.kappa))):
+        ess = float(ess_bulk(values))
+        m = float(np.sum(g.weight * exact))
+        sd = float(np.sqrt(np.sum(g.weight * (exact - m) ** 2)))
+        # 4 Monte Carlo errors of the mean plus the grid's discretisation (1% of the sd)
+        assert abs(values.mean() - m) <= 4 * sd / np.sqrt(ess) + 0.01 * sd
+
+
+def _gate_on_all(draws, names):
+    from qualbayes.inference.gate import diagnose_arrays
+
+    return diagnose_arrays({"mu": draws["mu"], "log_kappa": np.log(draws["kappa"])}, 0,
+                           dims={"mu": ["part"], "log_kappa": ["part"]},
+                           coords={"part": names})
+
+
+def test_a_close_call_continues_the_joint_chains_and_the_gate_sees_every_draw():
+    from qualbayes.models.lot_history import fit_histories, more_draws
+
+    fit = fit_histories([(X1, N1)], QUICK, names=["P"], independent=False)
+    s = fit.draws["mu"].shape[1]  # the draws per chain of the (possibly retried) fit
+    more = more_draws(fit)
+    assert more.draws["mu"].shape == (4, 2 * s, 1) and more.diverging.shape == (4, 2 * s)
+    assert np.array_equal(more.draws["mu"][:, :s], fit.draws["mu"])  # extended, not new
+    assert more.gate.settings["continued_draws_per_chain"] == s
+    assert more.gate.settings["warmup"] == fit.gate.settings["warmup"]  # no new warmup
+    assert more.gate.attempts == fit.gate.attempts
+    # the gate is judged on all 1,000 draws per chain: equal to a fresh diagnosis of them
+    fresh = _gate_on_all(more.draws, ["P"])
+    assert more.gate.min_ess_bulk == pytest.approx(fresh.min_ess_bulk, rel=1e-12)
+    assert more.gate.min_ess_bulk > fit.gate.min_ess_bulk
+    # continued chains are still draws of the same posterior (no drift after the warmup)
+    _agrees_with_quadrature(more.draws["mu"][:, s:, 0], more.draws["kappa"][:, s:, 0],
+                            X1, N1)
+    _agrees_with_quadrature(more.draws["mu"][..., 0], more.draws["kappa"][..., 0], X1, N1)
+    again = more_draws(more)
+    assert again.draws["mu"].shape == (4, 3 * s, 1)
+    assert np.array_equal(again.draws["mu"][:, :2 * s], more.draws["mu"])
+
+
+def test_independent_parts_agree_with_quadrature_and_continue_part_by_part():
+    from qualbayes.models.lot_history import fit_histories, more_draws
+
+    names = ["1", "X[1"]
+    fit = fit_histories([(X1, N1), (X2, N2)], QUICK, names=names)
+    assert fit.gate.settings["sampler"].endswith("every part its own sampler")
+    assert fit.diverging_parts.shape == (4, 1000, 2) and fit.diverging.shape == (4, 1000)
+    more = more_draws(fit)
+    assert more.draws["kappa"].shape == (4, 2000, 2)
+    assert np.array_equal(more.draws["kappa"][:, :1000], fit.draws["kappa"])
+    assert more.diverging_parts.shape == (4, 2000, 2)
+    assert more.gate.settings["continued_draws_per_chain"] == 1000
+    fresh = _gate_on_all(more.draws, names)
+    for name in names:
+        assert more.gate.select(part=name).min_ess_bulk == pytest.approx(
+            fresh.select(part=name).min_ess_bulk, rel=1e-12)
+    for j, (x, n) in enumerate([(X1, N1), (X2, N2)]):
+        _agrees_with_quadrature(more.draws["mu"][:, :, j], more.draws["kappa"][:, :, j], x, n)
+    idata = more.to_idata()
+    assert idata.sample_stats["diverging"].dims == ("chain", "draw", "part")
+    assert [str(v) for v in idata.sample_stats["part"].values] == names
+
+
+def test_one_failing_part_does_not_mark_another(monkeypatch):
+    """A part whose posterior NUTS cannot cross (a cliff in the density) fails its own gate
+    with its own divergences, is retried alone, and loses only its own lots' verdicts; the
+    part named "1" keeps its verdicts although "X[1" ends with "1"."""
+    import jax.numpy as jnp
+    import numpyro
+    import pandas as pd
+
+    from qualbayes.data.lot_table import LotTable
+    from qualbayes.inference.run import recording_fits
+    from qualbayes.lot_question import assess_lots
+    from qualbayes.models import lot_history
+
+    def cliff(x, n, w, scale):
+        mu, _kappa = lot_history.hyperprior_sites(x.shape[0], scale)
+        loglik = numpyro.distributions.BetaBinomial(
+            mu * _kappa, (1.0 - mu) * _kappa, total_count=n).log_prob(x)
+        numpyro.factor("x", jnp.sum(w * loglik))
+        trapped = jnp.any(n == TRAP_N)
+        numpyro.factor("cliff", jnp.where(trapped & (jnp.sum(mu) < CLIFF_MU), -2000.0, 0.0))
+
+    monkeypatch.setattr(lot_history, "lot_history_model", cliff)
+    rows = [(f"A{i}", "1", int(n), int(x)) for i, (x, n) in enumerate(zip(X1, N1, strict=True))]
+    rows += [(f"B{i}", "X[1", int(n), int(x)) for i, (x, n) in enumerate(zip(X1, N1,
+                                                                            strict=True))]
+    rows.append(("B-trap", "X[1", int(TRAP_N), 100))  # about the history's own rate
+    frame = pd.DataFrame([(lot, part, None, None, None, n, x, i + 2) for i, (lot, part, n, x)
+                          in enumerate(rows)],
+                         columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
+                                  "defectives", "row"])
+    frame["lot_size"] = frame["lot_size"].astype("Int64")
+    table = LotTable(frame, "cliff.csv", None, 1, {}, [])
+    with recording_fits() as fits:
+        res = assess_lots(table, spec=0.05, confidence=0.9, prior="history", settings=QUICK)
+    good, bad = res.diagnostics["1"], res.diagnostics["X[1"]
+    assert good["passed"] and good["divergences"] == 0, good["reasons"]
+    assert not bad["passed"] and bad["divergences"] > 0
+    assert bad["settings"]["retried_parts"] == ["X[1"]  # retried alone
+    lots = res.lots
+    assert set(lots.loc[lots.part == "X[1", "decision"]) == {"not-converged"}
+    assert "not-converged" not in set(lots.loc[lots.part == "1", "decision"])
+    fit = fits[-1]
+    assert fit.diverging_parts[:, :, 0].sum() == 0 and fit.diverging_parts[:, :, 1].sum() > 0

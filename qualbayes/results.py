@@ -72,6 +72,18 @@ def _own_flags(name: str, dim: str, fits: tuple, shape: tuple):
     return None, None
 
 
+def _per_part_flags(dim: str, names: list[str], fits: tuple, shape: tuple):
+    """The (chain, draw, part) divergence flags of a fit that sampled every part as its own
+    problem (``Fit.diverging_parts``) over exactly ``names``, or None."""
+    for f in reversed(fits):
+        flags = getattr(f, "diverging_parts", None)
+        coords = [str(c) for c in (getattr(f, "coords", None) or {}).get(dim, [])]
+        if flags is not None and coords == [str(n) for n in names] \
+                and np.shape(flags) == (*shape, len(names)):
+            return np.asarray(flags)
+    return None
+
+
 def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, observed: dict,
                      observed_dims: dict, observed_coords: dict):
     """One InferenceData from per-element draws ``{name: {var: (chain, draw)}}``.
@@ -94,7 +106,11 @@ def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, obser
                  for v in variables}
     own = [_own_flags(n, dim, fits, shape) for n in names]
     dims = {v: [dim] for v in variables}
-    if all(f is not None for f, _ in own) and len({id(f) for f, _ in own}) > 1:
+    per_part = _per_part_flags(dim, names, fits, shape)
+    if per_part is not None:  # parts sampled as independent problems, each its own flags
+        diverging = per_part
+        dims["diverging"] = [dim]
+    elif all(f is not None for f, _ in own) and len({id(f) for f, _ in own}) > 1:
         diverging = np.stack([flags for _, flags in own], axis=-1)
         dims["diverging"] = [dim]
     elif own and own[0][0] is not None and all(f is own[0][0] for f, _ in own):

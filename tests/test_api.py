@@ -229,3 +229,18 @@ def test_a_history_fit_from_python_equals_the_command(tmp_path, capsys):
     result = qb.assess_lots(frame, spec="2%", prior="history")
     from_cli = [lot["prob_within_spec"] for lot in record["lots"]]
     assert result.to_frame()["prob_within_spec"].tolist() == from_cli
+
+
+def test_parts_fitted_apart_keep_their_own_divergence_flags_in_idata():
+    """Several parts are sampled as independent problems: ``idata.sample_stats.diverging``
+    has a ``part`` dimension holding each part's own flags (not one part's for all)."""
+    frame = pd.DataFrame({"lot": [f"L{i}" for i in range(8)],
+                          "part": ["A"] * 4 + ["B"] * 4,
+                          "inspected": [80] * 8, "defectives": [0, 1, 0, 0, 2, 0, 1, 3]})
+    result = qb.assess_lots(frame, spec="2%", prior="history")
+    idata = result.idata
+    flags = idata.sample_stats["diverging"]
+    assert flags.dims == ("chain", "draw", "part")
+    assert list(idata.posterior["part"].values) == ["A", "B"]
+    fit = next(f for f in result.fits if getattr(f, "diverging_parts", None) is not None)
+    np.testing.assert_array_equal(flags.values, fit.diverging_parts)

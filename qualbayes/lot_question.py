@@ -20,8 +20,8 @@ from qualbayes.models.lot_prior import HISTORY, HISTORY_PHI_UNIFORM, BetaPrior
 from qualbayes.models.lot_spread import HistoryPrior, PhiUniformPrior
 
 GROUP_COLUMNS = ("part", "supplier")
-#: Close calls draw more: up to this many further NUTS runs of the same size, each adding
-#: the same number of chains (so at most 4 x 4,000 = 16,000 draws with the defaults).
+#: Close calls draw more: up to this many further rounds, each continuing the adapted chains
+#: by as many draws again (so at most 4 chains x 4,000 = 16,000 draws with the defaults).
 MAX_EXTRA_RUNS = 3
 
 

@@ -47,6 +47,7 @@ from __future__ import annotations
 import numpy as np
 
 from qualbayes.inference.run import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.models import beta_binomial
 from qualbayes.models.lot_spread import KAPPA_MAX, PHI_MIN, HistoryPrior, PhiUniformPrior
 
 setup_jax()
@@ -94,7 +95,7 @@ def lot_history_model(x, n, w, scale):
     distinct (defectives, inspected) pairs of each part and the number of lots sharing each;
     ``scale`` the half-normal scale S of the lot-to-lot CV."""
     mu, kappa = hyperprior_sites(x.shape[0], scale)
-    loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
+    loglik = beta_binomial.log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa, xp=jnp)
     numpyro.factor("x", jnp.sum(w * loglik))
 
 
@@ -102,7 +103,7 @@ def lot_history_model_phi_uniform(x, n, w, scale=None):
     """The earlier hyperprior, phi ~ Uniform(PHI_MIN, 1) (``history-phi-uniform``): kept for
     comparison only; see docs/lots.md for why it is not the default."""
     mu, kappa = hyperprior_sites(x.shape[0], None)
-    loglik = dist.BetaBinomial(mu * kappa, (1.0 - mu) * kappa, total_count=n).log_prob(x)
+    loglik = beta_binomial.log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa, xp=jnp)
     numpyro.factor("x", jnp.sum(w * loglik))
 
 

@@ -35,10 +35,10 @@ Speed (the same model, a cheaper computation; bench/bench_suppliers.py, docs/sup
   the supplier has at least ``CENTRE_AT`` defectives (its data then pin :math:`a_s` better
   than the prior does) and there are at least ``CENTRE_MIN_SUPPLIERS`` suppliers (so that
   :math:`\sigma_b` is well known), and non-centred, :math:`a_s = m + \sigma_b z_s`,
-  otherwise; the period effects stay non-centred (a steady supplier's :math:`\sigma_{w,s}` goes toward 0, where the
-  centred form has a funnel: tree depth 10 and divergences when tried). Measured on 20
-  suppliers x 8 quarters x 30 lots: 63 leapfrog steps per draw non-centred, 31 with the
-  levels centred.
+  otherwise; the period effects stay non-centred (a steady supplier's :math:`\sigma_{w,s}`
+  goes toward 0, where the centred form has a funnel: tree depth 10 and divergences when
+  tried). Measured on 20 suppliers x 8 quarters x 30 lots: 63 leapfrog steps per draw
+  non-centred, 31 with the levels centred.
 
 The quantities reported are computed from the draws: the supplier's rate over the periods
 shown, :math:`r_s = \frac{1}{T_s}\sum_t \mu_{st}`; whether its latest period is worse than its

@@ -59,9 +59,10 @@ def test_drifting_supplier_is_found_ci_sized():
     assert _at_most(false, k, 0.05)
 
 
-@pytest.mark.slow
+@pytest.mark.slow  # 80 fits: about 5 minutes per pair of histories on the loaded machine
 def test_drifting_supplier_is_found_study():
-    """Whole histories of six suppliers, one of them drifting or not."""
+    """Whole histories of six suppliers, one of them drifting or not (docs/calibration.md,
+    "Supplier scorecard": the measured rates with their binomial standard errors)."""
     histories = 40
     found = false = 0
     for h in range(histories):

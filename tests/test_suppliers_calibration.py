@@ -48,7 +48,8 @@ def _at_most(count: int, n: int, rate: float) -> bool:
     return count <= stats.binom.isf(0.001, n, rate)
 
 
-@pytest.mark.slow  # 16 suppliers x 8 quarters: about 200 s of NUTS under load
+# in the default run: 16 suppliers x 8 quarters, one fit (about 200 s of NUTS before the
+# faster computation, under load; see the timing printed by the run below)
 def test_drifting_supplier_is_found_ci_sized():
     k = 8
     calls, _ = _calls(drift_rates(k, k), seed=21)

@@ -21,6 +21,8 @@ PERIODS = ("quarter", "month")
 NOT_CONVERGED = "not-converged"
 TOO_CLOSE = "too close to call"
 TARGET_ACCEPT = 0.95
+#: further NUTS runs of the same size drawn while a call is within 3 MCSE of C (as for lots)
+MAX_EXTRA_RUNS = 3
 
 MODEL = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot (marginalised); "
          "logit mu[s,t] = a[s] + sigma_w[s]*e[s,t], e ~ N(0,1); a[s] = m + sigma_b*z[s], "
@@ -47,6 +49,8 @@ class SupplierScorecard:
     diagnostics: dict
     notes: list[str] = field(default_factory=list)
     hyper: dict = field(default_factory=dict)  # posterior medians of m, sigma_b, sigma_w, phi
+    #: further runs drawn to settle close calls (0 to MAX_EXTRA_RUNS)
+    extra_runs: int = 0
 
     @property
     def converged(self) -> bool:
@@ -97,11 +101,7 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
                      settings=None) -> SupplierScorecard:
     """Fit the hierarchical model and summarise it per supplier and per period."""
     from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
-    from qualbayes.models.supplier_rates import fit_suppliers  # noqa: PLC0415
-    from qualbayes.models.supplier_summary import (  # noqa: PLC0415
-        cell_summaries,
-        supplier_summaries,
-    )
+    from qualbayes.models.supplier_rates import fit_suppliers, more_draws  # noqa: PLC0415
 
     if not 0.0 < spec < 1.0:
         raise OptionError(f"--spec {spec!r}: the limit must lie between 0 and 1")
@@ -115,6 +115,30 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
     names = [f"{suppliers[c[0]]} {c[1]}" for c in cells]
     fit = fit_suppliers([(c[2], c[3]) for c in cells], cell_supplier, suppliers, names,
                         period is not None, settings)
+    runs = 0
+    while True:
+        frame, periods = _tables(fit, suppliers, cells, cell_supplier, spec, confidence,
+                                 period)
+        close = fit.gate.passed and _has_close_call(frame)
+        if not close or runs >= MAX_EXTRA_RUNS:
+            break
+        runs += 1  # a close call: one more run of the same size, as further chains
+        fit = more_draws(fit, [(c[2], c[3]) for c in cells], cell_supplier, suppliers, names,
+                         period is not None, runs)
+    ok = fit.gate.passed
+    hyper = {k: float(np.median(fit.draws[k])) for k in ("m", "sigma_b", "phi")} if ok else {}
+    return SupplierScorecard(frame, periods, spec, confidence, period,
+                             MODEL if period else MODEL_NO_PERIOD, fit.settings.seed,
+                             fit.gate.to_dict(), _notes(frame, ok, runs), hyper, runs)
+
+
+def _tables(fit, suppliers, cells, cell_supplier, spec, confidence, period):
+    """The supplier table (worst first) and the period table from a fit."""
+    from qualbayes.models.supplier_summary import (  # noqa: PLC0415
+        cell_summaries,
+        supplier_summaries,
+    )
+
     theta = fit.draws["theta"]
     per_s = supplier_summaries(theta, cell_supplier, len(suppliers), spec=spec,
                                confidence=confidence)
@@ -142,11 +166,11 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
         "inspected": int(c[3].sum()), "defectives": int(c[2].sum()),
         **{k: float(v[i]) if ok else None for k, v in per_c.items()}}
         for i, c in enumerate(cells)])
-    hyper = {k: float(np.median(fit.draws[k])) for k in ("m", "sigma_b", "phi")} if ok else {}
+    return frame.reset_index(drop=True), periods
 
-    return SupplierScorecard(frame.reset_index(drop=True), periods, spec, confidence, period,
-                             MODEL if period else MODEL_NO_PERIOD, fit.settings.seed,
-                             fit.gate.to_dict(), _notes(frame, ok), hyper)
+
+def _has_close_call(frame: pd.DataFrame) -> bool:
+    return bool(((frame["limit_call"] == TOO_CLOSE) | (frame["latest_call"] == TOO_CLOSE)).any())
 
 
 def _limit_call(row: dict, confidence: float) -> str:
@@ -166,13 +190,18 @@ def _latest_call(row: dict, confidence: float, period: str | None) -> str | None
             "too-close": TOO_CLOSE}[word]
 
 
-def _notes(frame: pd.DataFrame, ok: bool) -> list[str]:
+def _notes(frame: pd.DataFrame, ok: bool, runs: int = 0) -> list[str]:
     if not ok:
         return ["the convergence gate failed: no rates, probabilities or calls are given"]
+    out = []
+    if runs:
+        out.append(f"close calls: {runs} further NUTS run(s) of the same size were drawn "
+                   f"(cap {MAX_EXTRA_RUNS}) to settle the probabilities within their Monte "
+                   "Carlo error")
     close = frame.loc[(frame["limit_call"] == TOO_CLOSE) | (frame["latest_call"] == TOO_CLOSE),
                       "supplier"].tolist()
     if close:
-        return [f"too close to call at this Monte Carlo precision: {', '.join(close)} (the "
-                "probability lies within 3 Monte Carlo standard errors of the confidence "
-                "level; rerun with more draws to settle it)"]
-    return []
+        out.append(f"too close to call at this Monte Carlo precision: {', '.join(close)} (the "
+                   "probability lies within 3 Monte Carlo standard errors of the confidence "
+                   f"level after {runs} further run(s), the cap)")
+    return out

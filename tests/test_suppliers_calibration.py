@@ -48,7 +48,8 @@ def _at_most(count: int, n: int, rate: float) -> bool:
     return count <= stats.binom.isf(0.001, n, rate)
 
 
-@pytest.mark.slow  # 16 suppliers x 8 quarters: about 200 s of NUTS under load
+# in the default run: 16 suppliers x 8 quarters, one fit (about 200 s of NUTS before the
+# faster computation, under load; see the timing printed by the run below)
 def test_drifting_supplier_is_found_ci_sized():
     k = 8
     calls, _ = _calls(drift_rates(k, k), seed=21)
@@ -59,9 +60,10 @@ def test_drifting_supplier_is_found_ci_sized():
     assert _at_most(false, k, 0.05)
 
 
-@pytest.mark.slow
+@pytest.mark.slow  # 80 fits: about 5 minutes per pair of histories on the loaded machine
 def test_drifting_supplier_is_found_study():
-    """Whole histories of six suppliers, one of them drifting or not."""
+    """Whole histories of six suppliers, one of them drifting or not (docs/calibration.md,
+    "Supplier scorecard": the measured rates with their binomial standard errors)."""
     histories = 40
     found = false = 0
     for h in range(histories):

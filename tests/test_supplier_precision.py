@@ -1,0 +1,54 @@
+"""Close calls of the supplier scorecard are re-sampled before they are labelled.
+
+A call whose probability lies within 3 MCSE of the confidence level C gets further NUTS runs
+of the same size (as further chains, the gate judged again on all of them), up to
+``scorecard.MAX_EXTRA_RUNS``; a call still that close is "too close to call at this Monte
+Carlo precision", never a verdict that could change with the seed (docs/suppliers.md).
+
+The close case is engineered: the limit is set to the supplier's own one-sided upper bound at
+C from a first fit with the same seed, so P(rate > limit) = 1 - C in those draws, which no
+further draws can move by more than a few MCSE (their own P is 1 - C up to Monte Carlo
+error: a combined P that left the 3-MCSE band would need a deviation of several MCSE).
+"""
+
+import numpy as np
+from supplier_sim import simulate
+
+from qualbayes import scorecard
+from qualbayes.inference.mcse import is_close_call
+from qualbayes.inference.run import SamplerSettings
+
+SETTINGS = SamplerSettings(num_warmup=500, num_samples=500, target_accept=0.95, seed=5)
+
+
+def _table():
+    return simulate(np.array([[0.004], [0.01], [0.03]]), lots=6, n=100, kappa=400, seed=3)
+
+
+def test_close_call_draws_more_then_says_too_close():
+    table = _table()
+    first = scorecard.assess_suppliers(table, 0.01, settings=SETTINGS)
+    assert first.converged, first.diagnostics["reasons"]
+    assert first.extra_runs == 0  # nothing close at a 1% limit: no extra draws
+    assert scorecard.TOO_CLOSE not in set(first.suppliers["limit_call"])
+    row = first.suppliers.set_index("supplier").loc["S01"]
+    # the limit at the supplier's own upper bound: P(rate > limit) = 1 - C in these draws
+    close = scorecard.assess_suppliers(table, float(row["rate_upper"]), settings=SETTINGS)
+    assert close.converged, close.diagnostics["reasons"]
+    assert close.extra_runs == scorecard.MAX_EXTRA_RUNS
+    assert close.diagnostics["settings"]["chains"] == SETTINGS.num_chains * (
+        1 + scorecard.MAX_EXTRA_RUNS)
+    s01 = close.suppliers.set_index("supplier").loc["S01"]
+    assert s01["limit_call"] == scorecard.TOO_CLOSE
+    assert is_close_call(1.0 - s01["prob_above"], s01["prob_above_mcse"], 0.95)
+    # the MCSE shrank with the further draws (about 1/2 for 4x the draws; allow for the
+    # MCSE's own estimation error)
+    assert s01["prob_above_mcse"] < 0.8 * first.suppliers.set_index("supplier").loc[
+        "S01", "prob_above_mcse"]
+    assert any("too close to call at this Monte Carlo precision" in n and "S01" in n
+               for n in close.notes)
+    assert any(f"{scorecard.MAX_EXTRA_RUNS} further NUTS run" in n for n in close.notes)
+    # every other call follows its (combined) probability and MCSE
+    for _, r in close.suppliers.iterrows():
+        near = is_close_call(1.0 - r["prob_above"], r["prob_above_mcse"], 0.95)
+        assert (r["limit_call"] == scorecard.TOO_CLOSE) == bool(near)

@@ -129,14 +129,20 @@ def test_lots_cross_check_agrees_and_a_shifted_fit_fails_the_gate(monkeypatch):
     p, mc = lots["prob_within_spec"].to_numpy(float), lots["prob_within_spec_mcse"].to_numpy(float)
     assert np.all(np.abs(p - q) <= 4 * mc + q_err + 1e-9), (p, q)
 
-    real = lot_history.fit_histories
+    real, real_more = lot_history.fit_histories, lot_history.more_draws
 
     def shifted(*args, **kwargs):  # the draws of mu moved up by a factor 1.5
         fit = real(*args, **kwargs)
         fit.draws["mu"] = fit.draws["mu"] * 1.5
         return fit
 
+    def shifted_more(*args, **kwargs):  # close calls continue the sampler's own chains,
+        fit = real_more(*args, **kwargs)  # so the continued draws are shifted too
+        fit.draws["mu"] = fit.draws["mu"] * 1.5
+        return fit
+
     monkeypatch.setattr(lot_history, "fit_histories", shifted)
+    monkeypatch.setattr(lot_history, "more_draws", shifted_more)
     bad = assess_lots(_lot_table(), spec=0.01, confidence=0.9, prior="history", seed=3)
     d = bad.diagnostics["P-7"]
     assert not d["passed"] and not d["cross_check"]["agreed"]

@@ -128,3 +128,18 @@ def test_one_failing_part_does_not_mark_another(monkeypatch):
     assert "not-converged" not in set(lots.loc[lots.part == "1", "decision"])
     fit = fits[-1]
     assert fit.diverging_parts[:, :, 0].sum() == 0 and fit.diverging_parts[:, :, 1].sum() > 0
+
+
+def test_identical_parts_in_different_chunks_draw_independent_streams():
+    """Two parts with the same data, sampled in different chunks, must not repeat the same
+    random stream (else their Monte Carlo errors are one error counted twice); both still
+    agree with the quadrature."""
+    from qualbayes.models.lot_history_parts import fit_parts
+    from qualbayes.models.lot_spread import HistoryPrior
+
+    s = SamplerSettings(num_warmup=300, num_samples=300, seed=5, target_accept=0.99)
+    fit = fit_parts([(X1, N1), (X1, N1)], s, ["A", "B"], HistoryPrior(), chunk=1)
+    a, b = fit.draws["mu"][:, :, 0], fit.draws["mu"][:, :, 1]
+    assert not np.allclose(a, b)
+    for j in (0, 1):
+        _agrees_with_quadrature(fit.draws["mu"][:, :, j], fit.draws["kappa"][:, :, j], X1, N1)

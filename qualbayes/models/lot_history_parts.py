@@ -126,7 +126,7 @@ class _PartChains:
         for start in range(0, len(parts), self.chunk):
             idx = parts[start:start + self.chunk]
             mu, kappa, div, st = _run_chunk(self.model, self.xs[idx], self.ns[idx],
-                                            self.ws[idx], self.scale, s)
+                                            self.ws[idx], self.scale, s, first=int(idx[0]))
             thin = s.num_samples // self.mu.shape[1]  # a retry's longer chains, thinned
             if thin > 1:
                 div = div.reshape(div.shape[0], -1, thin, div.shape[2]).any(axis=2)
@@ -209,9 +209,11 @@ def _padded(arrays, width: int):
     return [np.concatenate([a, np.zeros((pad, *a.shape[1:]), a.dtype)]) for a in arrays]
 
 
-def _run_chunk(model, xs, ns, ws, scale, s: SamplerSettings):
+def _run_chunk(model, xs, ns, ws, scale, s: SamplerSettings, first: int = 0):
     """One chunk of parts: (chain, draw, part) draws and divergences, and the last states
-    (chain, part, ...), padding removed."""
+    (chain, part, ...), padding removed. ``first``: the index of the chunk's first part,
+    folded into the seed so that no two parts of a fit share a random stream (parts in
+    different chunks would otherwise repeat the same keys)."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
 
@@ -219,7 +221,8 @@ def _run_chunk(model, xs, ns, ws, scale, s: SamplerSettings):
     xs, ns, ws = _padded([xs, ns, ws], _bucket(k))
     with jax_scope():
         run, _ = _compiled(*_key(model, scale, s))
-        keys = jax.random.split(jax.random.PRNGKey(s.seed), s.num_chains)
+        base = jax.random.fold_in(jax.random.PRNGKey(s.seed), first)
+        keys = jax.random.split(base, s.num_chains)
         mu, kappa, div, states = run(keys, jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
     out = [np.moveaxis(np.asarray(a), 1, 2)[:, :, :k] for a in (mu, kappa, div)]
     return out[0], out[1], out[2], jax.tree.map(lambda a: np.asarray(a)[:, :k], states)

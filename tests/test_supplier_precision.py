@@ -18,7 +18,10 @@ from qualbayes import scorecard
 from qualbayes.inference.mcse import is_close_call
 from qualbayes.inference.run import SamplerSettings
 
-SETTINGS = SamplerSettings(num_warmup=500, num_samples=500, target_accept=0.95, seed=5)
+# target acceptance 0.99: this three-supplier, six-lot history gave 6 divergent transitions
+# at 0.95 on the merged tree (the gate then refuses every call; that refusal is tested in
+# test_suppliers.py); this test is about close calls, so it samples with smaller steps
+SETTINGS = SamplerSettings(num_warmup=500, num_samples=500, target_accept=0.99, seed=5)
 
 
 def _table():

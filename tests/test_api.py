@@ -242,5 +242,6 @@ def test_parts_fitted_apart_keep_their_own_divergence_flags_in_idata():
     flags = idata.sample_stats["diverging"]
     assert flags.dims == ("chain", "draw", "part")
     assert list(idata.posterior["part"].values) == ["A", "B"]
-    fit = next(f for f in result.fits if getattr(f, "diverging_parts", None) is not None)
+    # the last fit: a close call continues the chains, so later fits hold more draws
+    fit = [f for f in result.fits if getattr(f, "diverging_parts", None) is not None][-1]
     np.testing.assert_array_equal(flags.values, fit.diverging_parts)

@@ -71,8 +71,12 @@ def test_sbc_lot_history(lot_sim):
     assert_calibrated(cal)
 
 
-def test_sbc_catches_a_dropped_lot_to_lot_term(lot_sim):
-    assert_detected(sbc.run(lot_sim, CI_SETTINGS, model=sbc.pooled_binomial_model,
+def test_sbc_catches_a_dropped_lot_to_lot_term():
+    # 100 replications (the calibration check uses 60): at 60 the wrong model's worst
+    # chi-square p-value sat at 2.3e-05 against the 1.7e-05 threshold for one seed stream,
+    # too little power to rely on; the threshold itself is the calibration check's
+    sim = sbc.simulate(100, 5, seed=2018)
+    assert_detected(sbc.run(sim, CI_SETTINGS, model=sbc.pooled_binomial_model,
                             name="lot history, variation dropped (wrong)"))
 
 

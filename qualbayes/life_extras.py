@@ -57,10 +57,6 @@ def add_extras(result, arrays: dict[str, dict], *, compare: list[str] | None = N
             rt = remaining_time(ch, arrays[name]["suspensions"], result.mission,
                                 result.target, result.confidence, new_units=new_units,
                                 longest=obs[name].longest)
-            # life_remaining words its own answer; its sentences are kept beside the group
-            # results (not in them) until that module returns numbers only
-            result.remaining_words[name] = {k: rt.pop(k) for k in ("basis", "words")
-                                            if k in rt}
             g["remaining_test"] = rt
         share = _prior_share(ch, result.prior)
         dominated = obs[name].failures == 0 or (share is not None and share > PRIOR_SHARE)

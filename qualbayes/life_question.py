@@ -55,9 +55,6 @@ class LifeAssessment:
     #: the other distributions fitted (``compare_models``), by family
     alternatives: tuple[str, ...] = ()
     alternatives_prior: object = None  # the lognormal prior they used (LognormalPrior)
-    #: the sentences qualbayes.life_remaining words its own answer with, by group (kept
-    #: here, beside the numbers, until that module returns numbers only)
-    remaining_words: dict[str, dict[str, str]] = field(default_factory=dict)
     comparisons: list[dict] = field(default_factory=list)  # see qualbayes.life_compare
 
     @property

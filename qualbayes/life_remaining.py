@@ -78,15 +78,12 @@ def remaining_time(chains: dict, suspensions, mission: float, target: float,
     running units' times (ignored with ``new_units``)."""
     ts = np.asarray(suspensions, float)
     if not new_units and ts.size == 0:
-        return {"found": False, "basis": "running units",
-                "words": "no unit is still running (no suspensions): give a number of new "
-                         "units to test (--new-units N) for the time they would need"}
+        return {"found": False, "case": "nothing-running", "new_units": 0, "running": 0}
     times, counts = np.unique(ts, return_counts=True)
     wts = _Weights(chains, times, counts.astype(float))
     good = (wts.beta * (math.log(mission) - wts.log_eta)
             <= math.log(-math.log(target))).astype(float)
-    basis = (f"{new_units} new unit(s) put on test" if new_units else
-             f"the {ts.size} suspended unit(s) (assumed still on test)")
+    basis = {"new_units": int(new_units or 0), "running": int(ts.size)}
     top = REACH * max(mission, longest or (ts.max() if ts.size else mission))
     grid = np.geomspace(top * 1e-4, top, GRID)
 
@@ -98,16 +95,13 @@ def remaining_time(chains: dict, suspensions, mission: float, target: float,
         r = at(x)
         sound = r["pareto_k"] <= K_MAX and r["ess"] >= ESS_MIN
         if not sound:
-            return _refused(x, r, prev, basis, confidence)
+            return _refused(x, r, prev, basis)
         if r["p"] >= confidence:
             hit = x
             break
         prev = (x, r)
     if hit is None:
-        return {"found": False, "basis": basis,
-                "words": f"survival alone does not bring P(R >= target) to {confidence:g} "
-                         f"within {_t(top)} more time ({basis}): the running units cannot "
-                         "settle this; more units or a design change are needed"}
+        return {"found": False, "case": "not-reached", "search_limit": float(top), **basis}
     lo = prev[0] if prev else 0.0
     hi = hit
     for _ in range(30):
@@ -119,25 +113,14 @@ def remaining_time(chains: dict, suspensions, mission: float, target: float,
         else:
             lo = mid
     r = at(hi)
-    return {"found": True, "basis": basis, "extra_time": hi, "prob_at_extra_time": r["p"],
-            "prob_mcse": r["mcse"], "pareto_k": r["pareto_k"], "weights_ess": r["ess"],
-            "words": f"P(R >= target) reaches {confidence:g} if {basis} each survive a "
-                     f"further {_t(hi)} without failure (P = {r['p']:.4f}, Monte Carlo error "
-                     f"{r['mcse']:.4f}; by reweighting the posterior draws, Pareto k "
-                     f"{r['pareto_k']:.2f}, {r['ess']:.0f} effective draws)"}
+    return {"found": True, "case": "reached", **basis, "extra_time": hi,
+            "prob_at_extra_time": r["p"], "prob_mcse": r["mcse"], "pareto_k": r["pareto_k"],
+            "weights_ess": r["ess"]}
 
 
-def _t(x: float) -> str:
-    return f"{x:,.0f}" if x >= 1000 else f"{x:.4g}"
-
-
-def _refused(x, r, prev, basis, confidence) -> dict:
-    reached = (f"; up to {_t(prev[0])} more, P(R >= target) only reaches {prev[1]['p']:.4f}"
-               if prev else "")
-    return {"found": False, "basis": basis, "refused": True, "pareto_k": r["pareto_k"],
-            "weights_ess": r["ess"],
-            "words": f"cannot say how much longer to test by reweighting: beyond {_t(x)} more "
-                     f"the weights degenerate (Pareto k {r['pareto_k']:.2f}, "
-                     f"{r['ess']:.0f} effective draws; needed k <= {K_MAX}, >= "
-                     f"{ESS_MIN:.0f}){reached}. The extra evidence would outweigh the present "
-                     f"posterior: refit with the extended data to reach {confidence:g}"}
+def _refused(x, r, prev, basis) -> dict:
+    return {"found": False, "case": "weights-degenerate", **basis, "refused": True,
+            "pareto_k": r["pareto_k"], "weights_ess": r["ess"], "beyond": float(x),
+            "pareto_k_max": K_MAX, "weights_ess_min": ESS_MIN,
+            "reached_time": float(prev[0]) if prev else None,
+            "reached_prob": float(prev[1]["p"]) if prev else None}

@@ -70,7 +70,7 @@ def test_remaining_time_is_confirmed_by_refitting_the_extended_data(tmp_path):
     g = res.groups[0]
     assert g["decision"] == "undecided"
     rt = g["remaining_test"]
-    assert rt["found"], res.remaining_words
+    assert rt["found"], rt
     x = rt["extra_time"]
     more = SamplerSettings(num_samples=4000)
     refit = {}
@@ -91,13 +91,16 @@ def test_remaining_time_with_new_units_and_refusal(tmp_path):
     prior = make_prior("1.5,3", None, None)
     table = write_table(tmp_path / "a.csv", {"X": (FAIL, RUNNING)})
     res = assess_life(table, 1000.0, 0.95, 0.9, prior, new_units=10)
-    assert res.remaining_words["X"]["basis"].startswith("10 new unit(s)")
+    from qualbayes.evidence.life_words import remaining_words
+
+    said = remaining_words(res.groups[0]["remaining_test"], 0.95)
+    assert said["basis"].startswith("10 new unit(s)")
     # reweighting must refuse (not guess) when the extra evidence swamps the draws: with the
     # default shape prior the weights degenerate before P reaches 0.95
     res = assess_life(table, 1000.0, 0.95, 0.95)
     rt = res.groups[0]["remaining_test"]
     assert res.groups[0]["decision"] == "undecided"
-    words = res.remaining_words["X"]["words"]
+    words = remaining_words(rt, 0.95)["words"]
     assert not rt["found"] and ("degenerate" in words or "does not bring" in words)
 
 

@@ -227,7 +227,7 @@ def worded_group(g: dict, result: LifeAssessment, arrays: dict | None) -> dict:
         done["fit_check"] = [fit_check_words(c) for c in g["fit_check"]]
     if g.get("remaining_test"):
         rt = g["remaining_test"]
-        said = result.remaining_words.get(g["group"], {})
+        said = remaining_words(rt, result.confidence)
         done["remaining_test"] = ({"found": rt["found"]}
                                   | {k: v for k, v in said.items() if k != "words"} | rt
                                   | {k: v for k, v in said.items() if k == "words"})
@@ -266,3 +266,40 @@ def worded(result: LifeAssessment, data=None) -> dict:
             "notes": run_notes(result),
             "comparisons": [comparison_words(c, result.confidence)
                             for c in result.comparisons]}
+
+
+def _t(x: float) -> str:
+    return f"{x:,.0f}" if x >= 1000 else f"{x:.4g}"
+
+
+def remaining_words(rt: dict, confidence: float) -> dict[str, str]:
+    """The basis and the sentence of a remaining-test-time answer
+    (:func:`qualbayes.life_remaining.remaining_time` returns numbers and a case code)."""
+    case = rt.get("case")
+    if case == "nothing-running":
+        return {"basis": "running units",
+                "words": "no unit is still running (no suspensions): give a number of new "
+                         "units to test (--new-units N) for the time they would need"}
+    basis = (f"{rt['new_units']} new unit(s) put on test" if rt.get("new_units") else
+             f"the {rt['running']} suspended unit(s) (assumed still on test)")
+    if case == "not-reached":
+        words = (f"survival alone does not bring P(R >= target) to {confidence:g} within "
+                 f"{_t(rt['search_limit'])} more time ({basis}): the running units cannot "
+                 "settle this; more units or a design change are needed")
+    elif case == "weights-degenerate":
+        reached = (f"; up to {_t(rt['reached_time'])} more, P(R >= target) only reaches "
+                   f"{rt['reached_prob']:.4f}" if rt.get("reached_time") is not None else "")
+        words = (f"cannot say how much longer to test by reweighting: beyond "
+                 f"{_t(rt['beyond'])} more the weights degenerate (Pareto k "
+                 f"{rt['pareto_k']:.2f}, {rt['weights_ess']:.0f} effective draws; needed k <= "
+                 f"{rt['pareto_k_max']}, >= {rt['weights_ess_min']:.0f}){reached}. The extra "
+                 f"evidence would outweigh the present posterior: refit with the extended data "
+                 f"to reach {confidence:g}")
+    else:
+        words = (f"P(R >= target) reaches {confidence:g} if {basis} each survive a further "
+                 f"{_t(rt['extra_time'])} without failure (P = {rt['prob_at_extra_time']:.4f}, "
+                 f"Monte Carlo error {rt['prob_mcse']:.4f}; by reweighting the posterior "
+                 f"draws, Pareto k {rt['pareto_k']:.2f}, {rt['weights_ess']:.0f} effective "
+                 "draws)")
+    return {"basis": basis, "words": words}
+

@@ -35,12 +35,19 @@ def weibull_life(table: LifeTable, shape_range, settings, gate_time: float,
                  reach: float) -> dict:
     """The life part of a returns record (file, source, prior, gate, summary, notes,
     sha256) with the draws (``LifeDraws``) under ``draws``."""
+    return weibull_life_with_prior(table, shape_prior(shape_range), settings, gate_time,
+                                   reach)
+
+
+def weibull_life_with_prior(table: LifeTable, prior, settings, gate_time: float,
+                            reach: float) -> dict:
+    """As :func:`weibull_life`, with the prior given as a ``LifePrior`` (the command line
+    builds it from its option text)."""
     from qualbayes.life_question import check_prior_use  # noqa: PLC0415
     from qualbayes.models.forecast import LifeDraws  # noqa: PLC0415
     from qualbayes.models.life import fit_life  # noqa: PLC0415
     from qualbayes.models.weibull import group_stats, posterior_mode  # noqa: PLC0415
 
-    prior = shape_prior(shape_range)
     name = table.groups[0]
     st = group_stats(**frame_arrays(table.frame))
     check_prior_use(table, {name: st}, prior)

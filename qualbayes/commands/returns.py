@@ -113,15 +113,11 @@ def run(args) -> int:
 
 
 def _plain_life(args, gate_time: float, reach: float) -> dict:
-    import numpy as np  # noqa: PLC0415
-
-    from qualbayes.data.life import frame_arrays, read_life  # noqa: PLC0415
+    from qualbayes.data.life import read_life  # noqa: PLC0415
     from qualbayes.errors import InputError  # noqa: PLC0415
+    from qualbayes.forecast_life import weibull_life_with_prior  # noqa: PLC0415
     from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415
-    from qualbayes.life_question import check_prior_use  # noqa: PLC0415
-    from qualbayes.models.forecast import LifeDraws  # noqa: PLC0415
-    from qualbayes.models.life import fit_life  # noqa: PLC0415
-    from qualbayes.models.weibull import group_stats, make_prior, posterior_mode  # noqa: PLC0415
+    from qualbayes.models.weibull import make_prior  # noqa: PLC0415
 
     prior = make_prior(args.shape_prior)
     table = read_life(args.life, sheet=args.life_sheet, columns=args.life_columns,
@@ -130,29 +126,8 @@ def _plain_life(args, gate_time: float, reach: float) -> dict:
         names = ", ".join(repr(g) for g in table.groups)
         raise InputError(f"the life data hold several groups ({names}); choose one with "
                          "--life-group", file=table.file)
-    name = table.groups[0]
-    st = group_stats(**frame_arrays(table.frame))
-    check_prior_use(table, {name: st}, prior)
-    mode = posterior_mode(st, prior)
-    fit = fit_life([st], [mode], prior, SamplerSettings(seed=args.seed), [name], gate_time)
-    b, log_eta = fit.draws["log_shape"][:, :, 0], fit.draws["log_scale"][:, :, 0]
-    return {"file": table.file, "source": "Weibull fit of the life data (as 'life')",
-            "prior": prior.describe(table.units), "diagnostics": fit.gate.to_dict(),
-            "summary": {"shape median": float(np.median(np.exp(b))),
-                        "scale median": float(np.median(np.exp(log_eta))),
-                        "units": st.units, "failures": st.failures},
-            "notes": _reach_note(table, reach), "sha256": table.sha256,
-            "draws": LifeDraws(log_eta, np.exp(-b), "weibull")}
-
-
-def _reach_note(table, reach: float) -> list[str]:
-    """Say so when the forecast runs to ages beyond the longest time in the life data."""
-    longest = float(table.frame["lower"].max())
-    if reach <= longest:
-        return []
-    return [f"the forecast reaches ages up to {reach:,.0f}, beyond the longest time in the "
-            f"life data ({longest:,.0f}): there the Weibull law is extrapolated, and a "
-            "wear-out mode that the test did not reach would not be foreseen"]
+    return weibull_life_with_prior(table, prior, SamplerSettings(seed=args.seed), gate_time,
+                                   reach)
 
 
 def _accelerated_life(args, terms, prior, gate_time: float) -> dict:

@@ -25,7 +25,8 @@ TARGET_ACCEPT = 0.95
 MAX_EXTRA_RUNS = 3
 
 MODEL = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot (marginalised); "
-         "logit mu[s,t] = a[s] + sigma_w[s]*e[s,t], e ~ N(0,1); a[s] = m + sigma_b*z[s], "
+         "logit mu[s,t] = a[s] + sigma_w[s]*e[s,t] + delta[s]*[t = latest], e ~ N(0,1), "
+         "delta ~ N(0,1) (suppliers with 2+ periods); a[s] = m + sigma_b*z[s], "
          "z ~ N(0,1); m ~ N(-5, 2^2), sigma_b ~ HalfNormal(1), sigma_w[s] ~ HalfNormal(0.5), "
          "phi = 1/sqrt(kappa+1) ~ Uniform(1e-4, 1); NUTS")
 MODEL_NO_PERIOD = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot "

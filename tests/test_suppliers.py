@@ -87,9 +87,11 @@ def _importance(draws: int, seed: int):
     z = rng.normal(size=(draws, 3))
     sw = np.abs(rng.normal(0, sr.SIGMA_W_SCALE, (draws, 3)))
     e = rng.normal(size=(draws, len(CELLS)))
+    delta = rng.normal(0, sr.CHANGE_SD, (draws, 3))  # each supplier's latest-period change
+    latest = sr.latest_cells(sup)  # [0, 1, 0, 1, 0, 1]: every supplier's second cell
     phi = rng.uniform(sr.PHI_MIN, 1.0, draws)
     kappa = (1.0 / phi**2 - 1.0)[:, None]
-    theta = (m[:, None] + sb[:, None] * z)[:, sup] + sw[:, sup] * e
+    theta = (m[:, None] + sb[:, None] * z)[:, sup] + sw[:, sup] * e + delta[:, sup] * latest
     mu = special.expit(theta)
     loglik = stats.betabinom.logpmf(x, N_UNITS, mu * kappa, (1 - mu) * kappa).sum(axis=1)
     w = np.exp(loglik - loglik.max())
@@ -118,6 +120,10 @@ def test_worse_than_before_and_worst_of_all_match_direct_simulation():
         p, se = ref[name]
         tol = 4.5 * np.sqrt(got[f"{key}_mcse"] ** 2 + se**2)
         assert np.all(np.abs(got[key] - p) <= tol), (name, got[key], p, tol)
+
+
+def test_latest_cells_marks_each_suppliers_last_cell_of_two_or_more():
+    assert sr.latest_cells(np.array([0, 0, 1, 2, 2, 2])).tolist() == [0, 1, 0, 0, 0, 1]
 
 
 def test_summaries_against_hand_counts():

@@ -60,20 +60,22 @@ def test_drifting_supplier_is_found_ci_sized():
     assert _at_most(false, k, 0.05)
 
 
-@pytest.mark.slow  # 80 fits: about 5 minutes per pair of histories on the loaded machine
+@pytest.mark.slow  # 40 fits: about 1 to 2 minutes each on an idle 2-core machine
 def test_drifting_supplier_is_found_study():
-    """Whole histories of six suppliers, one of them drifting or not (docs/calibration.md,
-    "Supplier scorecard": the measured rates with their binomial standard errors)."""
+    """Whole histories of six suppliers, the first drifting, the other five steady; each
+    history its own fit (docs/calibration.md, "Supplier scorecard": the measured rates with
+    their binomial standard errors). Found: the drifting supplier called "worse"; false
+    alarms: a steady supplier called "worse" (5 per history, 200 in all; the five share a
+    fit, so they are not quite independent trials)."""
     histories = 40
     found = false = 0
     for h in range(histories):
-        with_drift, _ = _calls(drift_rates(1, 5), seed=1000 + h)
-        without, _ = _calls(drift_rates(0, 6), seed=2000 + h)
-        found += with_drift[0] == "worse"
-        false += without[0] == "worse"
-    print(f"\nstudy: found {found}/{histories}, false alarms {false}/{histories}")
+        calls, _ = _calls(drift_rates(1, 5), seed=1000 + h)
+        found += calls[0] == "worse"
+        false += sum(c == "worse" for c in calls[1:])
+    print(f"\nstudy: found {found}/{histories}, false alarms {false}/{5 * histories}")
     assert _at_least(found, histories, 0.95)
-    assert _at_most(false, histories, 0.05)
+    assert _at_most(false, 5 * histories, 0.05)
 
 
 TRUE_RATES = (0.005, 0.008, 0.0125, 0.02)  # against a limit of 1%

@@ -15,7 +15,13 @@ from qualbayes.evidence.numbers import plural, probability, quantity, rate
 from qualbayes.evidence.report_common import META_KEYS
 from qualbayes.evidence.terminal import table as text_table
 from qualbayes.inference.gate import ESS_MIN, RHAT_MAX
-from qualbayes.models.supplier_rates import M_MEAN, M_SD, SIGMA_B_SCALE, SIGMA_W_SCALE
+from qualbayes.models.supplier_rates import (
+    CHANGE_SD,
+    M_MEAN,
+    M_SD,
+    SIGMA_B_SCALE,
+    SIGMA_W_SCALE,
+)
 from qualbayes.scorecard import SupplierScorecard
 
 PRIOR = {
@@ -23,6 +29,8 @@ PRIOR = {
     "sigma_b": f"HalfNormal({SIGMA_B_SCALE:g}): spread between suppliers (logit scale)",
     "sigma_w": f"HalfNormal({SIGMA_W_SCALE:g}), one per supplier: spread of its periods "
                "(logit scale)",
+    "delta": f"Normal(0, {CHANGE_SD:g}^2), one per supplier with two periods or more: change "
+             "of its latest period beyond that spread (logit scale)",
     "phi": "Uniform(1e-4, 1), phi = 1/sqrt(kappa + 1): lot-to-lot spread within a period",
 }
 

@@ -32,8 +32,9 @@ every m, only Z is summed again.
 
 >>> import numpy as np
 >>> a, b, w = np.array([2.0, 3.0]), np.array([200.0, 250.0]), np.log([0.4, 0.6])
->>> lu, _ = log_u(a, b, w[None, :], np.array([1]), np.array([50]), 400, 20)
->>> bool(abs(np.exp(log_choose(np.array([350]), np.arange(21)) + lu[0, 0]).sum() - 1) < 1)
+>>> lu, _ = log_u(a, b, w[None, :], np.array([1]), np.array([50]), 400, 350)
+>>> total = np.exp(log_choose(np.array([350]), np.arange(351)) + lu[0, 0]).sum()
+>>> bool(abs(total - 1.0) < 1e-12)  # the defectives left: every count 0..R, probability 1
 True
 """
 

@@ -14,8 +14,9 @@ the group at once:
 * the outlier p-values (:func:`outlier_pvalues`) from the mixture sums of each inspected
   count.
 
-Equal to the reference up to rounding: P and its error to about 1e-12, counts identical
-except where a reweighted P lies within about 1e-12 of the confidence level (tested in
+Equal to the reference up to rounding: P to about 1e-12, its stated error and the outlier
+p-values (differences of sums) to about 1e-10 absolute, every count and decision identical
+except where a reweighted P would lie within rounding of the confidence level (tested in
 tests/test_lot_grid_vector.py). Lots the sums cannot take (a scaled term that could
 overflow, more counts than the reference sums exactly) are answered by the reference code.
 """

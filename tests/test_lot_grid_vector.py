@@ -70,7 +70,7 @@ def test_vectorised_answers_equal_the_per_lot_path(seed, lots, rate, spec, conf)
 def test_large_lots_need_many_counts_and_match():
     """Lots of 50,000 units at a 5% rate: the defectives left run past the first blocks of
     counts, and the limit's count past 64."""
-    x, n, size, basis = _history(7, 30, 0.05, ns=(200, 500), sizes=(20_000, 50_000),
+    x, n, size, basis = _history(7, 10, 0.05, ns=(200, 500), sizes=(20_000, 50_000),
                                  blank=0.0, process=0.0)
     g = grid.posterior_grids([grid.group_terms(x, n)])[0]
     _same(qa.answer_group(g, x, n, size, basis, 0.05, 0.95),

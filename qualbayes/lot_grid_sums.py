@@ -78,7 +78,8 @@ def _ratio_products(a, b, total: int, t0: int, t1: int, ref: int):
     t = np.arange(t0, t1, dtype=float)[None, :]
     ratio = (a[:, None] + t) / (b[:, None] + (total - t - 1.0))
     ratio /= ratio[ref]
-    prod = np.cumprod(ratio, axis=1)
+    with np.errstate(over="ignore"):  # an overflow is seen by the caller (not finite)
+        prod = np.cumprod(ratio, axis=1)
     return first, np.concatenate([np.ones((a.size, 1)), prod], axis=1)
 
 

@@ -65,6 +65,11 @@ def _terminated(signum, frame):
 
 
 def main(argv: list[str] | None = None) -> int:
+    # One BLAS thread, set before numpy is first imported (the user's setting wins): the
+    # quadrature engine's many small matrix products ran 2.4 times slower with OpenBLAS's
+    # own threads waking for each (docs/speed.md, "Very large batches"); its groups run on
+    # threads of their own instead.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     from qualbayes.inference.run import configure_process  # noqa: PLC0415 - environment only
 
     configure_process()  # the process is the command's: jax float64, CPU devices, cache

@@ -43,9 +43,10 @@ def chunks(groups: dict[str, np.ndarray], lots: int = CHUNK_LOTS) -> list[list[s
 
 
 def _chunk_job(frame: pd.DataFrame, labels: list[str], positions: list[np.ndarray],
-               spec: float, confidence: float, prior, size: int) -> dict[str, dict]:
+               spec: float, confidence: float, prior, size: int,
+               workers: int | None = 1) -> dict[str, dict]:
     groups = dict(zip(labels, positions, strict=True))
-    return answer_groups(frame, groups, spec, confidence, prior, size)
+    return answer_groups(frame, groups, spec, confidence, prior, size, workers)
 
 
 def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
@@ -58,6 +59,8 @@ def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
     chunk_lots = CHUNK_LOTS if chunk_lots is None else chunk_lots
     if processes:  # at least two chunks per process, so that every process has work
         chunk_lots = min(chunk_lots, max(1, -(-len(frame) // (2 * processes))))
+    if processes is None and scheduler is None:  # one process: its threads share the groups
+        return answer_groups(frame, groups, spec, confidence, prior, size)
     parts = []
     for labels in chunks(groups, chunk_lots):
         rows = np.concatenate([groups[k] for k in labels])
@@ -65,11 +68,6 @@ def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
         ends = np.cumsum([len(groups[k]) for k in labels])
         pos = [np.arange(e - len(groups[k]), e) for k, e in zip(labels, ends, strict=True)]
         parts.append((sub, labels, pos))
-    if processes is None and scheduler is None:
-        out = {}
-        for sub, labels, pos in parts:
-            out.update(_chunk_job(sub, labels, pos, spec, confidence, prior, size))
-        return out
     return _run_dask(parts, spec, confidence, prior, size, processes, scheduler)
 
 
@@ -115,30 +113,35 @@ def assess_quadrature(frame: pd.DataFrame, spec: float, confidence: float, hyper
     groups = group_rows(frame, group_by)
     answers = run_chunks(frame, groups, spec, confidence, hyper, size, processes=processes,
                          scheduler=scheduler)
-    k = len(frame)
-    out: dict[str, np.ndarray] = {}
-    for label, idx in groups.items():
-        for c, values in answers[label]["columns"].items():
-            if c not in out:
-                out[c] = np.empty(k, dtype=object)
-            out[c][idx] = np.asarray(values, dtype=object)
-    group = np.empty(k, dtype=object)
+    labels = list(groups)
+    order = np.concatenate([groups[g] for g in labels]) if labels else np.zeros(0, int)
+    group = np.empty(len(frame), dtype=object)
     for label, idx in groups.items():
         group[idx] = label
     frame["group"] = group
+
+    def column(c: str) -> np.ndarray:  # every group's answers, in the lots' order
+        values = np.concatenate([np.asarray(answers[g]["columns"][c]) for g in labels])
+        out = np.empty(len(frame), dtype=values.dtype)
+        out[order] = values
+        return out
+
     for c in [*RESULT_COLUMNS, "prob_within_spec_error", "_approximate"]:
         if c in ("decision_basis", "own_data_prob", "own_data_decision"):
             continue
         if c == "prob_within_spec_mcse":
             frame[c] = np.nan
         elif c == "outlier":
-            frame[c] = (out["outlier_p"].astype(float) < OUTLIER_LEVEL).astype(object)
+            frame[c] = (column("outlier_p").astype(float) < OUTLIER_LEVEL).astype(object)
         elif c in _INT:
-            frame[c] = pd.array(list(out[c]), dtype="Int64")
+            values = column(c)
+            missing = pd.isna(values)
+            frame[c] = pd.arrays.IntegerArray(np.where(missing, 0, values).astype(np.int64),
+                                              missing)
         elif c in ("decision", "too_close", "_approximate"):
-            frame[c] = out[c]
+            frame[c] = column(c).astype(object)
         else:
-            frame[c] = out[c].astype(float)
+            frame[c] = column(c).astype(float)
     own_data_columns(frame, spec, confidence)
     close = frame["too_close"].astype(bool)
     notes = lot_notes(frame.assign(too_close=False), conflict=None)

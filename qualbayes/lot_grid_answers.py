@@ -179,7 +179,7 @@ def group_error(spread: float, lost_mass: float) -> float:
     return 2.0 * spread + lost_mass
 
 
-def _summary_nodes(g: grid.GridPosterior):
+def summary_nodes(g: grid.GridPosterior):
     """(a, b, w) of the grid of every other point, without the lightest SUMMARY_TAIL of its
     mass: the mixture behind bounds, means and counts (a quarter of the points; bounds
     within about 1% of the full grid's, as precise as the 1,000 thinned draws NUTS uses)."""
@@ -210,7 +210,7 @@ def answer_group(g: grid.GridPosterior, x, n, lot_size, basis, spec: float,
     err = np.full(k, group_error(spread, g.edge_mass + dropped))
     prob = np.clip(prob, 0.0, 1.0)
     dec, close = decide(prob, err, uniq[:, 0], confidence)
-    a, b, w = _summary_nodes(g)
+    a, b, w = summary_nodes(g)
     rates, rate_index = np.unique(uniq[:, :2], axis=0, return_inverse=True)
     alpha = a[:, None] + rates[:, 0][None, :]
     beta = b[:, None] + (rates[:, 1] - rates[:, 0])[None, :]
@@ -257,20 +257,26 @@ def outlier_pvalues(g: grid.GridPosterior, x, n) -> np.ndarray:
         a, b = g.a[heavy], g.b[heavy]
         logw = np.log(g.weight[heavy]) + special.betaln(a, b)
         for k, (xk, nk) in enumerate(zip(xs, ns, strict=True)):
-            lw = logw - special.betaln(a + xk, b + nk - xk)
-            wl = np.exp(lw - lw.max())
-            up, _ = grid.betabinom_tails(xk, nk, a, b)
-            pv[k] = min(1.0, float(wl @ up / wl.sum()))
+            pv[k] = outlier_pvalue(a, b, logw, xk, nk)
     lookup = {(a, b): v for a, b, v in zip(xs, ns, pv, strict=True)}
     return np.array([lookup[(float(a), float(b))] for a, b in
                      zip(np.asarray(x, float), np.asarray(n, float), strict=True)])
+
+
+def outlier_pvalue(a, b, logw, xk, nk) -> float:
+    """One distinct lot's leave-one-out p-value from nodes (a, b) with log weights ``logw``
+    (the grid's log weights plus log B(a, b))."""
+    lw = logw - special.betaln(a + xk, b + nk - xk)
+    wl = np.exp(lw - lw.max())
+    up, _ = grid.betabinom_tails(xk, nk, a, b)
+    return min(1.0, float(wl @ up / wl.sum()))
 
 
 def next_lot(g: grid.GridPosterior, spec: float, confidence: float, error: float) -> dict:
     """The next lot's rate, sum_i w_i Beta(a_i, b_i): median, bound, mean and P with the
     group's quadrature error."""
     p = float(g.weight @ special.betainc(g.a, g.b, spec))
-    a, b, w = _summary_nodes(g)
+    a, b, w = summary_nodes(g)
     return {
         "median": float(mixture_ppf(0.5, a[:, None], b[:, None], w)[0]),
         "upper_bound": float(mixture_ppf(confidence, a[:, None], b[:, None], w)[0]),
@@ -282,10 +288,49 @@ def next_lot(g: grid.GridPosterior, spec: float, confidence: float, error: float
     }
 
 
+#: groups whose grids are computed together (sharing the coarse pass) and handed to one thread
+BLOCK = 32
+
+
+def threads() -> int:
+    """Threads for the groups of one process: the CPUs this process may use (numpy releases
+    the interpreter lock inside its array loops, so blocks of groups run side by side)."""
+    import os  # noqa: PLC0415
+
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _answer_block(labels, groups, x_all, n_all, sizes, basis, spec, confidence, prior,
+                  size) -> dict[str, dict]:
+    from qualbayes.lot_grid_vector import answer_group_vector, outlier_pvalues  # noqa: PLC0415
+
+    grids = grid.posterior_grids([grid.group_terms(x_all[groups[k]], n_all[groups[k]])
+                                  for k in labels], prior, size=size)
+    out = {}
+    for label, g in zip(labels, grids, strict=True):
+        idx = groups[label]
+        cols = answer_group_vector(g, x_all[idx], n_all[idx], sizes[idx], basis[idx], spec,
+                                   confidence)
+        cols["outlier_p"] = outlier_pvalues(g, x_all[idx], n_all[idx])
+        err = float(cols["prob_within_spec_error"][0])
+        out[label] = {"columns": cols, "next_lot": next_lot(g, spec, confidence, err),
+                      "accuracy": {"method": METHOD.format(size=size), "max_error": err,
+                                   "edge_mass": g.edge_mass,
+                                   "grid_points": int(g.weight.size)}}
+    return out
+
+
 def answer_groups(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
-                  confidence: float, prior, size: int = GRID_SIZE) -> dict[str, dict]:
+                  confidence: float, prior, size: int = GRID_SIZE,
+                  workers: int | None = None) -> dict[str, dict]:
     """label -> {"columns", "next_lot", "accuracy"} for each group (rows ``groups[label]``
-    of ``frame``). The unit of work that :mod:`qualbayes.lot_batch` sends to workers."""
+    of ``frame``). The unit of work that :mod:`qualbayes.lot_batch` sends to workers. The
+    groups are answered in blocks of BLOCK (:mod:`qualbayes.lot_grid_vector`, the same
+    numbers as :func:`answer_group` up to rounding), on ``workers`` threads (default: the
+    CPUs available); the answers do not depend on the blocks or the threads."""
     from qualbayes.progress import task  # noqa: PLC0415
 
     x_all = frame["defectives"].to_numpy(float)
@@ -293,19 +338,24 @@ def answer_groups(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: floa
     sizes = frame["lot_size"].to_numpy(object)
     basis = frame["decision_basis"].to_numpy(object)
     labels = list(groups)
-    grids = grid.posterior_grids([grid.group_terms(x_all[groups[k]], n_all[groups[k]])
-                                  for k in labels], prior, size=size)
-    out = {}
+    blocks = [labels[i:i + BLOCK] for i in range(0, len(labels), BLOCK)]
+    workers = min(len(blocks), threads() if workers is None else int(workers))
+
+    def work(block):
+        return _answer_block(block, groups, x_all, n_all, sizes, basis, spec, confidence,
+                             prior, size)
+
+    out: dict[str, dict] = {}
     with task("quadrature answers", total=len(labels)) as t:
-        for label, g in zip(labels, grids, strict=True):
-            idx = groups[label]
-            cols = answer_group(g, x_all[idx], n_all[idx], sizes[idx], basis[idx], spec,
-                                confidence)
-            cols["outlier_p"] = outlier_pvalues(g, x_all[idx], n_all[idx])
-            err = float(cols["prob_within_spec_error"][0])
-            out[label] = {"columns": cols, "next_lot": next_lot(g, spec, confidence, err),
-                          "accuracy": {"method": METHOD.format(size=size), "max_error": err,
-                                       "edge_mass": g.edge_mass,
-                                       "grid_points": int(g.weight.size)}}
-            t.advance()
+        if workers > 1:
+            from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
+
+            with ThreadPoolExecutor(workers) as pool:
+                for block, done in zip(blocks, pool.map(work, blocks), strict=True):
+                    out.update(done)
+                    t.advance(len(block))
+        else:
+            for block in blocks:
+                out.update(work(block))
+                t.advance(len(block))
     return out

@@ -9,6 +9,7 @@ import pytest
 from scipy import integrate, special, stats
 
 from qualbayes import lot_grid_answers as qa
+from qualbayes import lot_grid_vector as qv
 from qualbayes.data.frames import lots_table
 from qualbayes.errors import OptionError, ParameterError
 from qualbayes.lot_question import assess_lots
@@ -212,6 +213,10 @@ def test_stated_error_bounds_the_error_against_a_finer_grid(lots, seed):
         want = qa.answer_group(ref, x, n, size, basis, spec, 0.95)
         diff = np.abs(got["prob_within_spec"] - want["prob_within_spec"])
         assert (diff <= got["prob_within_spec_error"]).all()
+        # the vectorised path of the command (qualbayes/lot_grid_vector.py): the same bound
+        vec = qv.answer_group_vector(fine, x, n, size, basis, spec, 0.95)
+        diff = np.abs(vec["prob_within_spec"] - want["prob_within_spec"])
+        assert (diff <= vec["prob_within_spec_error"]).all()
         err = got["prob_within_spec_error"][0]
         assert abs(qa.next_lot(fine, spec, 0.95, err)["prob_within_spec"]
                    - qa.next_lot(ref, spec, 0.95, 0.0)["prob_within_spec"]) <= err

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numpy as np
 import pandas as pd
 
 from qualbayes.data.columns import (
@@ -73,6 +74,11 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None,
                   strict: bool = False) -> LotTable:
     loc = locate(table, LOT_COLUMNS, mapping)
     headers = {k: v[1] for k, v in loc.columns.items()}
+    frame = _plain_lots(table, loc)
+    if frame is not None:  # every cell plain: the rows below would read them the same way
+        notes = [*table.notes, *unused_note(loc.unused)]
+        return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes,
+                        table.sha256, [], loc.unused)
     style = number_style(table, loc, ("inspected", "defectives", "lot_size"))
     records = []
     skipped: list[dict] = []
@@ -147,6 +153,79 @@ def validate_lots(table: RawTable, mapping: dict[str, str] | None = None,
     frame["lot_size"] = frame["lot_size"].astype("Int64")
     return LotTable(frame, table.file, table.sheet, loc.header_row, headers, notes,
                     table.sha256, skipped, loc.unused)
+
+
+def _plain_text(v) -> bool:
+    """A cell that :func:`parse_text` returns unchanged (plain printable ASCII, no
+    surrounding spaces, no error-value look) and that is no totals label."""
+    return (type(v) is str and 0 < len(v) <= 200 and v.isascii() and v.isprintable()
+            and v == v.strip() and not v.startswith(("#", "N/", "n/"))
+            and " ".join(v.split()).casefold().rstrip(":") not in TOTAL_LABELS)
+
+
+def _digits(v) -> bool:
+    return type(v) is str and v.isascii() and v.isdigit() and len(v) <= 15
+
+
+def _blank_text(v) -> bool:
+    return v is None or (type(v) is str and v.strip() == "")
+
+
+def _plain_lots(table: RawTable, loc) -> pd.DataFrame | None:
+    """The lots frame read column by column when every cell is plain (lot ids and labels
+    plain ASCII text, counts written as digits only, no blank lot or result, no date, no
+    formula): what the row-by-row validation gives for such a file, checked as a whole
+    (repeated ids, counts out of order, a totals row). None whenever any cell or check is
+    not plain: the rows are then read one by one, which words every fault."""
+    rows = table.rows[loc.first_data:]
+    if not rows or table.formula_cells or table.decimal_comma:
+        return None
+
+    def column(key):
+        if key not in loc.columns:
+            return None
+        j = loc.columns[key][0]
+        return [r[j] if j < len(r) else None for r in rows]
+
+    lots, n, x, size = column("lot"), column("inspected"), column("defectives"), column(
+        "lot_size")
+    if not (all(map(_plain_text, lots)) and all(map(_digits, n)) and all(map(_digits, x))):
+        return None
+    dates = column("date")
+    if dates is not None and not all(map(_blank_text, dates)):
+        return None
+    labels = {}
+    for key in ("part", "supplier"):
+        values = column(key)
+        if values is None:
+            labels[key] = [None] * len(rows)
+            continue
+        if not all(_blank_text(v) or _plain_text(v) for v in values):
+            return None
+        labels[key] = [None if _blank_text(v) else v for v in values]
+    n_arr = np.array(n, dtype=np.int64)
+    x_arr = np.array(x, dtype=np.int64)
+    if size is None:
+        size_arr = pd.array([None] * len(rows), dtype="Int64")
+    elif all(map(_digits, size)):
+        size_arr = pd.array(np.array(size, dtype=np.int64), dtype="Int64")
+    elif all(_digits(v) or _blank_text(v) for v in size):
+        miss = np.array([_blank_text(v) for v in size])
+        vals = np.array([0 if m else int(v) for v, m in zip(size, miss, strict=True)],
+                        dtype=np.int64)
+        size_arr = pd.arrays.IntegerArray(vals, miss)
+    else:
+        return None
+    big_n = size_arr.to_numpy(dtype=np.int64, na_value=np.iinfo(np.int64).max)
+    if ((n_arr == 0).any() or (x_arr > n_arr).any() or (n_arr > big_n).any()
+            or len(set(lots)) != len(lots)):
+        return None
+    if len(rows) >= 4 and n_arr[-1] == n_arr[:-1].sum() and x_arr[-1] == x_arr[:-1].sum():
+        return None  # a totals row: refused, with its words, by the row-by-row reading
+    return pd.DataFrame({"lot": lots, "part": labels["part"], "supplier": labels["supplier"],
+                         "date": [None] * len(rows), "lot_size": size_arr,
+                         "inspected": n_arr, "defectives": x_arr,
+                         "row": np.array(table.row_numbers[loc.first_data:], dtype=np.int64)})
 
 
 #: Lot ids that label a summary row rather than a lot, in the languages of plant exports

@@ -8,9 +8,20 @@ import math
 
 import numpy as np
 
+_AS_IS = frozenset({str, int, bool, type(None)})
+
 
 def plain(value):
     """Recursively convert numpy/pandas values to JSON-ready Python values."""
+    kind = type(value)  # the commonest exact types first (a record of 200,000 lots)
+    if kind in _AS_IS:
+        return value
+    if kind is float:
+        return value if math.isfinite(value) else None
+    if kind is dict:
+        return {str(k): plain(v) for k, v in value.items()}
+    if kind is list:
+        return [plain(v) for v in value]
     if isinstance(value, dict):
         return {str(k): plain(v) for k, v in value.items()}
     if isinstance(value, list | tuple):

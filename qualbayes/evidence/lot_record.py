@@ -6,6 +6,8 @@ report rebuilt from a saved record shows the same numbers.
 
 from __future__ import annotations
 
+import math
+
 import pandas as pd
 
 from qualbayes import cross_check
@@ -44,35 +46,50 @@ def _none(v):
     return None if v is None or (not isinstance(v, str) and pd.isna(v)) else v
 
 
+def _plain_column(series: pd.Series) -> list:
+    """A column as plain Python values (None for a missing or non-finite number): what
+    :func:`qualbayes.evidence.jsonout.plain` makes of each cell, a column at a time."""
+    if pd.api.types.is_float_dtype(series.dtype):
+        return [v if math.isfinite(v) else None for v in series.tolist()]
+    if pd.api.types.is_integer_dtype(series.dtype) or pd.api.types.is_bool_dtype(series.dtype):
+        return series.to_numpy(dtype=object, na_value=None).tolist()
+    return [plain(_none(v)) for v in series.tolist()]
+
+
+def _flag(values: list) -> list:
+    return [None if v is None else bool(v) for v in values]
+
+
+def _lot_rows(frame: pd.DataFrame) -> list[dict]:
+    """The record's ``lots``: one dict per lot, built column by column (the same values as
+    building each row with :func:`_none`)."""
+    col = {c: _plain_column(frame[c]) for c in frame.columns}
+    col["too_close"] = _flag(col["too_close"])
+    col["outlier"] = _flag(col["outlier"])
+    error = col.get("prob_within_spec_error")
+    keys = ("lot", "part", "supplier", "date", "row", "lot_size", "inspected", "defectives",
+            "posterior_mean")
+    tail = ("upper_bound", "prob_within_spec", "prob_within_spec_mcse")
+    rest = ("decision_basis", "decision", "too_close", "group", "outlier", "outlier_p",
+            "own_data_prob", "own_data_decision", "extra_clean_units_to_accept",
+            "remaining_units")
+    lots = []
+    for i in range(len(frame)):
+        row = {k: col[k][i] for k in keys}
+        row["interval"] = [col["interval_low"][i], col["interval_high"][i]]
+        row.update({k: col[k][i] for k in tail})
+        if error is not None:
+            row["prob_within_spec_error"] = error[i]
+        row.update({k: col[k][i] for k in rest})
+        row["remaining_defectives"] = {"median": col["remaining_defectives_median"][i],
+                                       "upper_bound": col["remaining_defectives_upper"][i]}
+        lots.append(row)
+    return lots
+
+
 def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str,
                 versions: dict) -> dict:
-    lots = []
-    for r in result.lots.to_dict("records"):
-        lots.append({
-            "lot": r["lot"], "part": _none(r["part"]), "supplier": _none(r["supplier"]),
-            "date": _none(r["date"]), "row": r["row"],
-            "lot_size": _none(r["lot_size"]), "inspected": r["inspected"],
-            "defectives": r["defectives"],
-            "posterior_mean": _none(r["posterior_mean"]),
-            "interval": [_none(r["interval_low"]), _none(r["interval_high"])],
-            "upper_bound": _none(r["upper_bound"]),
-            "prob_within_spec": _none(r["prob_within_spec"]),
-            "prob_within_spec_mcse": _none(r["prob_within_spec_mcse"]),
-            **({"prob_within_spec_error": _none(r["prob_within_spec_error"])}
-               if "prob_within_spec_error" in r else {}),
-            "decision_basis": _none(r["decision_basis"]),
-            "decision": r["decision"],
-            "too_close": bool(r["too_close"]) if _none(r["too_close"]) is not None else None,
-            "group": _none(r["group"]),
-            "outlier": bool(r["outlier"]) if _none(r["outlier"]) is not None else None,
-            "outlier_p": _none(r["outlier_p"]),
-            "own_data_prob": _none(r["own_data_prob"]),
-            "own_data_decision": _none(r["own_data_decision"]),
-            "extra_clean_units_to_accept": _none(r["extra_clean_units_to_accept"]),
-            "remaining_units": _none(r["remaining_units"]),
-            "remaining_defectives": {"median": _none(r["remaining_defectives_median"]),
-                                     "upper_bound": _none(r["remaining_defectives_upper"])},
-        })
+    lots = _lot_rows(result.lots)
     c, s = result.confidence, result.spec
     return plain({
         "kind": "lots",
@@ -98,11 +115,11 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
         "posterior_draws": {k: {"mu": v["mu"], "kappa": v["kappa"]}
                             for k, v in result.draws.items()},
         "diagnostics": result.diagnostics, "next_lot": result.next_lot,
-        "lots": lots, "notes": result.notes,
+        "lots": [], "notes": result.notes,
         "decision_counts": result.lots["decision"].value_counts().to_dict(),
         "caution": CAUTION, "standards": list(STANDARDS),
         "command": command, "versions": versions,
-    })
+    }) | {"lots": lots}  # the lots are plain already (built column by column); same key order
 
 
 #: A terminal shows at most this many lot rows; the rest are counted and left to the files.

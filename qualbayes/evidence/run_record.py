@@ -70,13 +70,41 @@ def _sha(value) -> str:
 
 
 def _digest_of(body: dict) -> dict:
-    parts = {}
-    for key, value in body.items():
-        parts[key] = _sha(value)
+    """Each key's and each result item's SHA-256, and the whole body's: every value is
+    written in canonical JSON once and streamed into its own hash and the body's (the same
+    bytes as :func:`canonical` of the whole, without holding them all at once)."""
+    hashes: dict[str, str] = {}
+    items: dict[str, dict[str, str]] = {}
+    whole = hashlib.sha256(b"{")
+    for n, key in enumerate(sorted(body)):
+        whole.update((b"," if n else b"") + canonical(key) + b":")
+        value = body[key]
         if key in ITEM_KEYS and isinstance(value, list):
-            parts.update({f"{key}[{i}]": _sha(item) for i, item in enumerate(value)})
+            listed = hashlib.sha256(b"[")
+            whole.update(b"[")
+            items[key] = {}
+            for i, item in enumerate(value):
+                text = canonical(item)
+                if i:
+                    listed.update(b",")
+                    whole.update(b",")
+                listed.update(text)
+                whole.update(text)
+                items[key][f"{key}[{i}]"] = hashlib.sha256(text).hexdigest()
+            listed.update(b"]")
+            whole.update(b"]")
+            hashes[key] = listed.hexdigest()
+        else:
+            text = canonical(value)
+            whole.update(text)
+            hashes[key] = hashlib.sha256(text).hexdigest()
+    whole.update(b"}")
+    parts: dict[str, str] = {}
+    for key in body:
+        parts[key] = hashes[key]
+        parts.update(items.get(key, {}))
     return {"algorithm": "sha256 of canonical JSON (sorted keys, no spaces)",
-            "content": _sha(body), "keys": parts}
+            "content": whole.hexdigest(), "keys": parts}
 
 
 def seal(record: dict) -> dict:

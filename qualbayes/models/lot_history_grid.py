@@ -259,7 +259,7 @@ def _betabinom_logpmf(k, n, a, b):
             + special.betaln(a + k, b + n - k) - special.betaln(a, b))
 
 
-_MAX_TAIL_TERMS = 2**24
+MAX_TAIL_TERMS = 2**24
 
 
 def betabinom_tails(k, n, a, b) -> tuple[np.ndarray, np.ndarray]:
@@ -271,7 +271,7 @@ def betabinom_tails(k, n, a, b) -> tuple[np.ndarray, np.ndarray]:
     k, n = int(k), int(n)
     low_side = k + 1 <= n - k + 1
     terms = (k + 1) if low_side else (n - k + 1)
-    if terms * a.size > _MAX_TAIL_TERMS:
+    if terms * a.size > MAX_TAIL_TERMS:
         lower = special.betainc(a, b, min(1.0, (k + 0.5) / n))
         upper = 1.0 - special.betainc(a, b, max(0.0, (k - 0.5) / n))
         return upper, lower

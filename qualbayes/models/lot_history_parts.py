@@ -11,7 +11,8 @@ vmap). Chunks of :data:`CHUNK` parts run one after another through one compiled 
 padded shape. A vmap over parts runs every lane to the deepest tree of the chunk and, under
 the batching, both branches of the adaptation's conditionals on every warmup step, so wider
 chunks do not pay: measured, 64 parts in one call of 64 had used more CPU, unfinished, than
-100 parts in calls of 8 (docs/speed.md, "Many parts with NUTS").
+100 parts in calls of 8 (docs/speed.md, "Many parts with NUTS"). A retry or a close call
+of a few parts runs at the next power of two of their number (one part: no vmap at all).
 
 Each part's random keys come from the seed and the part's index in the fit
 (:func:`part_keys`), and a vmapped lane never reads another lane's data, so a part's draws
@@ -236,10 +237,11 @@ def _padded(arrays, width: int):
 
 
 def _width(parts: int, chunk: int) -> int:
-    """Parts per compiled call for a run of ``parts`` parts: a power of two, at most the
-    chunk (at least 8 when the chunk allows, so that a retry of a few parts reuses one
-    compiled width), so that a few widths serve every file."""
-    return min(_bucket(max(parts, min(8, chunk))), _bucket(chunk))
+    """Parts per compiled call for a run of ``parts`` parts: the next power of two, at most
+    the chunk's, so that a few widths serve every file. Not more: a lane of padding costs as
+    much as a real part, and a part that NUTS finds hard (the one a retry is for) would be
+    copied into every padding lane."""
+    return min(_bucket(parts), _bucket(chunk))
 
 
 def part_keys(seed: int, parts: np.ndarray, num_chains: int, width: int):

@@ -102,15 +102,18 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     if full and np.size(a0) > SUMMARY_DRAWS:
         keep = np.linspace(0, np.size(a0) - 1, SUMMARY_DRAWS).round().astype(int)
         a0, b0 = np.asarray(a0)[keep], np.asarray(b0)[keep]
+    rate: dict[tuple, tuple] = {}  # (x, n) -> the rate's summaries (equal for any lot size)
     for j, (x, n, rem, size, basis) in enumerate(combos):
         cols["decision_basis"][j] = basis
         if not full:
             continue
         alpha, beta = a0 + x, b0 + (n - x)
-        cols["posterior_mean"][j] = mixtures.mean(alpha, beta)
-        cols["interval_low"][j] = mixtures.ppf(tail, alpha, beta)
-        cols["interval_high"][j] = mixtures.ppf(1.0 - tail, alpha, beta)
-        cols["upper_bound"][j] = mixtures.ppf(confidence, alpha, beta)
+        if (x, n) not in rate:
+            rate[(x, n)] = (mixtures.mean(alpha, beta), mixtures.ppf(tail, alpha, beta),
+                            mixtures.ppf(1.0 - tail, alpha, beta),
+                            mixtures.ppf(confidence, alpha, beta))
+        (cols["posterior_mean"][j], cols["interval_low"][j], cols["interval_high"][j],
+         cols["upper_bound"][j]) = rate[(x, n)]
         d = cols["decision"][j]
         if d == ACCEPT:
             cols["extra_clean_units_to_accept"][j] = 0

@@ -105,3 +105,31 @@ def test_the_life_gate_judges_log_shape_and_log_scale_only():
     kw = gate_dims(["A", "1"])
     assert kw["gate_vars"] == GATE_VARS == ["log_shape", "log_scale"]
     assert kw["coords"] == {"group": ["A", "1"]}
+
+
+def test_selection_by_index_equals_a_scan_of_every_parameter():
+    # select() looks parameters up in an index built once (1,000 parts are selected one by
+    # one); it must pick exactly what a scan of every parameter's coordinates picks, in
+    # order, for tags, coordinates and both, including labels that end like others
+    rng = np.random.default_rng(4)
+    names = ["1", "X[1", "11", "A", "a b", "2"]
+    draws = rng.normal(size=(4, 100, len(names), 2))
+    gate = diagnose_arrays({"mu": draws[..., 0], "log_kappa": draws[..., 1]}, 0,
+                           dims={"mu": ["part"], "log_kappa": ["part"]},
+                           coords={"part": names})
+
+    def scan(tag=None, **coords):
+        chosen = gate.params
+        if tag is not None:
+            chosen = [p for p in chosen if str(tag) in (str(v) for v in p.coords.values())]
+        return [p.name for p in chosen
+                if all(str(p.coords.get(k)) == str(v) for k, v in coords.items())]
+
+    for name in [*names, "X", "[1", "nothing"]:
+        assert [p.name for p in gate.select(name).params] == scan(name)
+        assert [p.name for p in gate.select(part=name).params] == scan(part=name)
+        assert [p.name for p in gate.select(name, part=name).params] == scan(name, part=name)
+    assert [p.name for p in gate.select().params] == [p.name for p in gate.params]
+    # a parameter list changed after a selection is indexed again
+    gate.params = gate.params[:2]
+    assert [p.name for p in gate.select(part="1").params] == ["mu[1]"]

@@ -143,3 +143,72 @@ def test_identical_parts_in_different_chunks_draw_independent_streams():
     assert not np.allclose(a, b)
     for j in (0, 1):
         _agrees_with_quadrature(fit.draws["mu"][:, :, j], fit.draws["kappa"][:, :, j], X1, N1)
+
+
+def test_a_part_draws_the_same_whatever_the_other_parts_of_its_call():
+    """Parts share a compiled call (vmapped): part 0's draws must not depend on the data of
+    the part beside it, and two identical parts in one call must not share a stream. Each
+    part's keys come from the seed and its own index, so its draws are the same whatever
+    shares its call."""
+    from qualbayes.models.lot_history_parts import fit_parts
+    from qualbayes.models.lot_spread import HistoryPrior
+
+    s = SamplerSettings(num_warmup=200, num_samples=200, seed=7, target_accept=0.99,
+                        retry=False)
+    beside_other = fit_parts([(X1, N1), (X2, N2)], s, ["A", "B"], HistoryPrior(), chunk=4)
+    beside_same = fit_parts([(X1, N1), (X1, N1)], s, ["A", "B"], HistoryPrior(), chunk=4)
+    for var in ("mu", "kappa"):
+        assert np.array_equal(beside_other.draws[var][:, :, 0], beside_same.draws[var][:, :, 0])
+    assert not np.allclose(beside_same.draws["mu"][:, :, 0], beside_same.draws["mu"][:, :, 1])
+    assert np.array_equal(beside_other.diverging_parts[:, :, 0],
+                          beside_same.diverging_parts[:, :, 0])
+
+
+def test_a_part_is_continued_alone_from_its_own_chains():
+    from qualbayes.models.lot_history import fit_histories, more_draws
+
+    names = ["1", "X[1"]
+    s = SamplerSettings(num_warmup=300, num_samples=300, seed=11, target_accept=0.99,
+                        retry=False)
+    fit = fit_histories([(X1, N1), (X2, N2)], s, names=names)
+    more = more_draws(fit, parts=[1])
+    assert more.coords["part"] == ["X[1"] and more.draws["mu"].shape == (4, 600, 1)
+    assert np.array_equal(more.draws["kappa"][:, :300, 0], fit.draws["kappa"][:, :, 1])
+    assert more.diverging_parts.shape == (4, 600, 1)
+    assert more.gate.settings["continued_draws_per_chain"] == 300
+    fresh = _gate_on_all(more.draws, ["X[1"])
+    assert more.gate.select(part="X[1").min_ess_tail == pytest.approx(
+        fresh.select(part="X[1").min_ess_tail, rel=1e-12)
+    # the continued draws are still draws of the part's posterior
+    _agrees_with_quadrature(more.draws["mu"][..., 0], more.draws["kappa"][..., 0], X2, N2)
+
+
+def test_only_the_part_with_a_close_call_draws_more():
+    """C set to the exact (quadrature) P of one lot of part "P": that lot is within a few
+    MCSE of C, so part "P" continues its chains; part "Q" (a clean history, P far above C)
+    keeps its draws. Reference: the 2-D quadrature of models/lot_history_grid.py."""
+    import pandas as pd
+
+    from qualbayes.data.lot_table import LotTable
+    from qualbayes.lot_question import assess_lots
+    from qualbayes.models import lot_history_grid as grid
+
+    rows = [("A", "P", 80, 0), ("B", "P", 125, 1), ("C", "P", 80, 2)]
+    rows += [(f"Q{i}", "Q", 125, 0) for i in range(15)]
+    frame = pd.DataFrame([(lot, part, None, None, None, n, x, i + 2)
+                          for i, (lot, part, n, x) in enumerate(rows)],
+                         columns=["lot", "part", "supplier", "date", "lot_size", "inspected",
+                                  "defectives", "row"])
+    frame["lot_size"] = frame["lot_size"].astype("Int64")
+    c = float(grid.prob_within(grid.posterior_grid([0, 1, 2], [80, 125, 80], size=800),
+                               [1], [125], 0.03)[0])
+    res = assess_lots(LotTable(frame, "t.csv", None, 1, {}, []), 0.03, c, "history",
+                      seed=2)
+    assert res.converged
+    p_draws, q_draws = res.draws["P"]["mu"], res.draws["Q"]["mu"]
+    assert p_draws.shape[1] > q_draws.shape[1] == 1000  # only P drew more
+    assert res.diagnostics["P"]["settings"]["continued_draws_per_chain"] > 0
+    assert "continued_draws_per_chain" not in res.diagnostics["Q"]["settings"]
+    assert any("group(s) with a close call" in n for n in res.notes)
+    q_lots = res.lots[res.lots.part == "Q"]
+    assert set(q_lots["decision"]) == {"accept"} and not q_lots["too_close"].any()

@@ -62,6 +62,10 @@ class GateResult:
     #: divergences of each element when every element had its own sampler, by dimension and
     #: label (``{"part": {"A": 0, "X[1": 3}}``): selecting an element keeps only its own
     local_divergences: dict = field(default_factory=dict)
+    #: positions of the parameters by coordinate, built on the first :meth:`select` (a fit
+    #: of 1,000 parts is selected part by part: a scan of every parameter each time would
+    #: cost the square of the parts)
+    _index: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
     @property
     def passed(self) -> bool:
@@ -114,14 +118,17 @@ class GateResult:
         parameters of a part named "X[1". Divergences belong to the joint sampler and are
         kept whole, unless every element had its own sampler (``local_divergences``): then
         the element's own count."""
+        by_value, by_coord = self._positions()
+        picks = []
         if tag is not None:
             tag = str(tag)
-            chosen = [p for p in self.params if tag in (str(v) for v in p.coords.values())]
+            picks.append(by_value.get(tag, ()))
+        picks += [by_coord.get((k, str(v)), ()) for k, v in coords.items()]
+        if picks:
+            keep = set(picks[0]).intersection(*picks[1:])
+            chosen = [self.params[i] for i in sorted(keep)]
         else:
             chosen = self.params
-        if coords:
-            chosen = [p for p in chosen
-                      if all(str(p.coords.get(k)) == str(v) for k, v in coords.items())]
         divergences, local = self.divergences, {}
         for dim, counts in self.local_divergences.items():
             label = str(coords[dim]) if dim in coords else tag
@@ -129,6 +136,21 @@ class GateResult:
                 divergences, local = counts[label], {dim: {label: counts[label]}}
                 break
         return GateResult(chosen, divergences, self.attempts, self.settings, local)
+
+    def _positions(self) -> tuple[dict, dict]:
+        """({str(value): positions}, {(dim, str(value)): positions}) of the parameters,
+        rebuilt when the parameter list has changed since it was built."""
+        key = (id(self.params), len(self.params))
+        if self._index is None or self._index[0] != key:
+            by_value: dict = {}
+            by_coord: dict = {}
+            for i, p in enumerate(self.params):
+                for v in dict.fromkeys(str(v) for v in p.coords.values()):
+                    by_value.setdefault(v, []).append(i)
+                for k, v in p.coords.items():
+                    by_coord.setdefault((k, str(v)), []).append(i)
+            self._index = (key, by_value, by_coord)
+        return self._index[1], self._index[2]
 
     def to_dict(self) -> dict:
         return {

@@ -185,11 +185,14 @@ def fit_histories(groups: list[tuple[np.ndarray, np.ndarray]], settings: Sampler
 
 
 def more_draws(fit: Fit, groups=None, names: list[str] | None = None, prior=None,
-               round_no: int = 1) -> Fit:
+               round_no: int = 1, parts=None) -> Fit:
     """The fit with as many draws again per chain, continued from its adapted chains (no
     new warmup, the same compiled sampler); the gate is judged again on all draws.
-    ``groups``, ``names``, ``prior`` and ``round_no`` are kept for earlier callers."""
+    ``parts`` (indices): when every part has its own sampler, only these parts are
+    continued and the Fit returned holds only them, in that order; a joint fit is always
+    continued whole. ``groups``, ``names``, ``prior`` and ``round_no`` are kept for earlier
+    callers."""
     from qualbayes.inference.run import continue_nuts  # noqa: PLC0415
     from qualbayes.models.lot_history_parts import continue_parts, is_part_fit  # noqa: PLC0415
 
-    return continue_parts(fit) if is_part_fit(fit) else continue_nuts(fit)
+    return continue_parts(fit, parts=parts) if is_part_fit(fit) else continue_nuts(fit)

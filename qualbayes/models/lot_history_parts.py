@@ -7,19 +7,27 @@ dimensions, set by the hardest part. Here each (part, chain) is its own NUTS cha
 same one-part model (:func:`~qualbayes.models.lot_history.lot_history_model` with one row),
 with its own step-size and mass-matrix adaptation: ``jax.vmap`` over a chunk of parts inside
 a ``jax.pmap`` over chains (one CPU device per chain when the process has them, else a
-vmap). Chunks are run one after another through one compiled sampler per padded chunk shape
-(a vmap waits for the deepest tree of its chunk, so small chunks let easy parts finish
-early; docs/speed.md has the measurements behind :data:`CHUNK`).
+vmap). Chunks of :data:`CHUNK` parts run one after another through one compiled sampler per
+padded shape. A vmap over parts runs every lane to the deepest tree of the chunk and, under
+the batching, both branches of the adaptation's conditionals on every warmup step, so wider
+chunks do not pay: measured, 64 parts in one call of 64 had used more CPU, unfinished, than
+100 parts in calls of 8 (docs/speed.md, "Many parts with NUTS"). A retry or a close call
+of a few parts runs at the next power of two of their number (one part: no vmap at all).
+
+Each part's random keys come from the seed and the part's index in the fit
+(:func:`part_keys`), and a vmapped lane never reads another lane's data, so a part's draws
+do not depend on the chunk it is sampled in nor on the other parts (tested).
 
 Each part has its own gate (R-hat and ESS of mu and log kappa, and its own divergences): a
 part that fails it is refitted alone with twice the warmup and the draws (thinned by 2 to
 the others' shape; a divergence anywhere in a thinned pair counts) and a higher target
 acceptance, without refitting the others; a part still failing is reported as not
-converged and only its lots lose their verdict. A close call continues every part's adapted
-chains (:func:`continue_parts`: no new warmup, the same compiled code).
+converged and only its lots lose their verdict. A close call continues the adapted chains
+of the parts that need it (:func:`continue_parts` with ``parts``: no new warmup, the same
+compiled code); the other parts keep their draws.
 
-Parts and terms are padded (empty parts: no terms, weight 0) so that compiled code is
-reused across files of similar size; padding draws are dropped.
+Parts and terms are padded (a chunk's last part repeated; terms of weight 0) so that
+compiled code is reused across files of similar size; padding draws are dropped.
 """
 
 from __future__ import annotations
@@ -31,7 +39,8 @@ import numpy as np
 
 from qualbayes.inference.run import Fit, SamplerSettings, jax_scope, record
 
-#: parts per compiled chunk (see docs/speed.md: measured 1, 10 and 100 parts x 20 lots)
+#: parts per compiled call (a power of two; measured 8 against 64: docs/speed.md, "Many parts
+#: with NUTS")
 CHUNK = 8
 
 
@@ -80,14 +89,17 @@ def harder_for_part(s: SamplerSettings) -> SamplerSettings:
                    target_accept=max(s.target_accept, 0.995), seed=s.seed + 1, retry=False)
 
 
-def continue_parts(fit: Fit, num_samples: int | None = None) -> Fit:
+def continue_parts(fit: Fit, num_samples: int | None = None, parts=None) -> Fit:
     """``fit`` (from :func:`fit_parts`) with ``num_samples`` more draws per chain (default:
-    as many as it has per chain run) for every part, continued from each part's adapted
-    chain; every part's gate is judged again on all its draws."""
+    as many as it has per chain run), continued from each part's adapted chain; every
+    part's gate is judged again on all its draws. ``parts`` (indices into the fit's parts,
+    default all): only these are continued, and the Fit returned holds only them, in that
+    order (the others keep their draws in ``fit``)."""
     if not isinstance(fit.sampler, _PartChains):
         raise ValueError("this fit holds no per-part sampler state to continue")
     more = int(num_samples or fit.settings.num_samples)
-    return record(fit.sampler.extended(more).fit())
+    chains = fit.sampler if parts is None else fit.sampler.subset(parts)
+    return record(chains.extended(more).fit())
 
 
 def is_part_fit(fit: Fit) -> bool:
@@ -126,7 +138,8 @@ class _PartChains:
         for start in range(0, len(parts), self.chunk):
             idx = parts[start:start + self.chunk]
             mu, kappa, div, st = _run_chunk(self.model, self.xs[idx], self.ns[idx],
-                                            self.ws[idx], self.scale, s, first=int(idx[0]))
+                                            self.ws[idx], self.scale, s, parts=idx,
+                                            width=_width(len(parts), self.chunk))
             thin = s.num_samples // self.mu.shape[1]  # a retry's longer chains, thinned
             if thin > 1:
                 div = div.reshape(div.shape[0], -1, thin, div.shape[2]).any(axis=2)
@@ -134,6 +147,16 @@ class _PartChains:
             self.mu[:, :, idx], self.kappa[:, :, idx], self.div[:, :, idx] = mu, kappa, div
             for i, j in enumerate(idx):
                 self.states[j] = (s, _take(st, i))
+
+    def subset(self, parts) -> _PartChains:
+        """The same chains for the parts ``parts`` (indices) only, in that order."""
+        idx = np.asarray(parts, int)
+        names = [self.names[j] for j in idx]
+        retried = [n for n in (self.retried or []) if n in names] or None
+        return replace(self, xs=self.xs[idx], ns=self.ns[idx], ws=self.ws[idx], names=names,
+                       mu=self.mu[:, :, idx], kappa=self.kappa[:, :, idx],
+                       div=self.div[:, :, idx], states=[self.states[j] for j in idx],
+                       retried=retried)
 
     def extended(self, more: int) -> _PartChains:
         """Every part's chains continued by ``more`` draws (grouped by the settings their
@@ -146,11 +169,12 @@ class _PartChains:
         for j, (s, _) in enumerate(self.states):
             by_settings.setdefault(_key(self.model, self.scale, s), []).append(j)
         for key, parts in by_settings.items():
+            width = _width(len(parts), self.chunk)
             for start in range(0, len(parts), self.chunk):
                 idx = np.array(parts[start:start + self.chunk])
                 st = _stack([self.states[j][1] for j in idx])
                 mu, kappa, div, st = _continue_chunk(key, st, self.xs[idx], self.ns[idx],
-                                                     self.ws[idx], more)
+                                                     self.ws[idx], more, width)
                 new[0][:, :, idx], new[1][:, :, idx], new_div[:, :, idx] = mu, kappa, div
                 for i, j in enumerate(idx):
                     states[j] = (self.states[j][0], _take(st, i))
@@ -205,38 +229,64 @@ def _parallel(s: SamplerSettings) -> bool:
 
 
 def _padded(arrays, width: int):
+    """Each array (part, ...) padded to ``width`` parts by repeating its last part: a
+    padding lane then samples a real posterior (a lane of the prior alone could take the
+    longest trees of the batch) and its draws are dropped."""
     pad = width - arrays[0].shape[0]
-    return [np.concatenate([a, np.zeros((pad, *a.shape[1:]), a.dtype)]) for a in arrays]
+    return [np.concatenate([a, np.repeat(a[-1:], pad, axis=0)]) for a in arrays]
 
 
-def _run_chunk(model, xs, ns, ws, scale, s: SamplerSettings, first: int = 0):
+def _width(parts: int, chunk: int) -> int:
+    """Parts per compiled call for a run of ``parts`` parts: the next power of two, at most
+    the chunk's, so that a few widths serve every file. Not more: a lane of padding costs as
+    much as a real part, and a part that NUTS finds hard (the one a retry is for) would be
+    copied into every padding lane."""
+    return min(_bucket(parts), _bucket(chunk))
+
+
+def part_keys(seed: int, parts: np.ndarray, num_chains: int, width: int):
+    """Random keys (chain, width, 2): part ``j``'s chains split from ``fold_in(seed, j)``,
+    ``j`` its index in the fit, so that a part's stream does not depend on the chunk it is
+    sampled in nor on the other parts (padding lanes get the keys of further indices)."""
+    import jax  # noqa: PLC0415
+    import jax.numpy as jnp  # noqa: PLC0415
+
+    last = int(parts[-1]) if len(parts) else 0
+    extra = np.arange(last + 1, last + 1 + width - len(parts))
+    idx = jnp.asarray(np.concatenate([np.asarray(parts, int), extra]))
+    base = jax.random.PRNGKey(seed)
+    keys = jax.vmap(lambda j: jax.random.split(jax.random.fold_in(base, j), num_chains))(idx)
+    return jnp.swapaxes(keys, 0, 1)
+
+
+def _run_chunk(model, xs, ns, ws, scale, s: SamplerSettings, parts=None, width=None):
     """One chunk of parts: (chain, draw, part) draws and divergences, and the last states
-    (chain, part, ...), padding removed. ``first``: the index of the chunk's first part,
-    folded into the seed so that no two parts of a fit share a random stream (parts in
-    different chunks would otherwise repeat the same keys)."""
+    (chain, part, ...), padding removed. ``parts``: the chunk's part indices in the fit
+    (their random keys, :func:`part_keys`); ``width``: the compiled number of parts."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
 
     k = xs.shape[0]
-    xs, ns, ws = _padded([xs, ns, ws], _bucket(k))
+    parts = np.arange(k) if parts is None else np.asarray(parts)
+    width = width or _bucket(k)
+    xs, ns, ws = _padded([xs, ns, ws], width)
     with jax_scope():
         run, _ = _compiled(*_key(model, scale, s))
-        base = jax.random.fold_in(jax.random.PRNGKey(s.seed), first)
-        keys = jax.random.split(base, s.num_chains)
+        keys = part_keys(s.seed, parts, s.num_chains, width)
         mu, kappa, div, states = run(keys, jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
     out = [np.moveaxis(np.asarray(a), 1, 2)[:, :, :k] for a in (mu, kappa, div)]
     return out[0], out[1], out[2], jax.tree.map(lambda a: np.asarray(a)[:, :k], states)
 
 
-def _continue_chunk(key, states, xs, ns, ws, more: int):
+def _continue_chunk(key, states, xs, ns, ws, more: int, width: int | None = None):
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
 
     k = xs.shape[0]
-    width = _bucket(k)
+    width = width or _bucket(k)
     xs, ns, ws = _padded([xs, ns, ws], width)
     states = jax.tree.map(lambda a: np.concatenate(
-        [a, np.repeat(a[:, :1], width - k, axis=1)], axis=1), states)
+        [a, np.repeat(a[:, -1:], width - k, axis=1)], axis=1), states)
     with jax_scope():
         _, cont = _compiled(*key)
         mu, kappa, div, states = cont(more)(states, jnp.asarray(xs), jnp.asarray(ns),
@@ -260,9 +310,10 @@ def _stack(states: list):
 @lru_cache(maxsize=16)
 def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_depth,
               parallel, num_chains):
-    """One compiled sampler per model and settings: (keys, x, n, w) -> mu, kappa, diverging,
-    last states, pmapped (or vmapped) over chains, vmapped over parts; and ``more`` ->
-    (states, x, n, w) -> the same, continuing from the states without warmup."""
+    """One compiled sampler per model and settings: (keys (chain, part), x, n, w) -> mu,
+    kappa, diverging, last states, pmapped (or vmapped) over chains, vmapped over parts;
+    and ``more`` -> (states, x, n, w) -> the same, continuing from the states without
+    warmup."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
     from numpyro.infer.hmc import hmc  # noqa: PLC0415
@@ -308,8 +359,8 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
             return jax.tree.map(lambda a: a[None], one_part)
         return jax.vmap(fn)(first, x, n, w)
 
-    def chain(key, x, n, w):
-        return over_parts(one, jax.random.split(key, x.shape[0]), x, n, w)
+    def chain(keys, x, n, w):
+        return over_parts(one, keys, x, n, w)
 
     def mapped(fn, in_axes):
         return jax.pmap(fn, in_axes=in_axes) if parallel else jax.jit(jax.vmap(fn, in_axes))

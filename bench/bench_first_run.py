@@ -47,6 +47,7 @@ _LOWER = re.compile(r"Finished jaxpr to MLIR module conversion \S+ in ([\d.]+) s
 def run(argv: list[str], cache: str) -> dict:
     env = {k: v for k, v in os.environ.items() if not k.startswith(("JAX_", "XLA_"))}
     env |= {"PYTHONPATH": str(ROOT), "QUALBAYES_JAX_CACHE": cache, "JAX_LOG_COMPILES": "1"}
+    load = os.getloadavg()[0]
     with tempfile.TemporaryDirectory() as work:
         t = time.perf_counter()
         before = resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -61,7 +62,8 @@ def run(argv: list[str], cache: str) -> dict:
     xla = [(name, float(s)) for name, s in _XLA.findall(log)]
     big = [s for name, s in xla if s >= 0.5]
     hits = log.count("Persistent compilation cache hit")
-    return {"wall": wall, "cpu": cpu, "compiles": len(xla), "hits": hits,
+    return {"load": f"{load:.1f}-{os.getloadavg()[0]:.1f}", "wall": wall, "cpu": cpu,
+            "compiles": len(xla), "hits": hits,
             "xla": sum(s for _, s in xla), "big": len(big),
             "trace": sum(map(float, _TRACE.findall(log))) + sum(map(float,
                                                                     _LOWER.findall(log)))}
@@ -128,6 +130,8 @@ def main() -> None:
     parser.add_argument("--prepare", action="store_true",
                         help="run `qualbayes prepare` on the empty cache first")
     parser.add_argument("--only", help="run only the cases whose name contains this")
+    parser.add_argument("--repeat", type=int, default=1,
+                        help="first-ever and warm pairs per case (each on a new empty cache)")
     parser.add_argument("--model-compile", action="store_true",
                         help="compile cost of the lots history likelihood, two forms")
     opts = parser.parse_args()
@@ -137,28 +141,33 @@ def main() -> None:
     print(f"load average before: {os.getloadavg()[0]:.1f}")
     print("| command | run | wall (s) | CPU (s) | compilations (>= 0.5 s) | "
           "persistent-cache hits | XLA compile or load (s) | tracing + lowering (s) | "
-          "first / warm: wall, CPU |")
-    print("|---|---|---|---|---|---|---|---|---|")
+          "first / warm: wall, CPU | load 1-min (start-end) |")
+    print("|---|---|---|---|---|---|---|---|---|---|")
     for name, argv in CASES.items():
         if opts.only and opts.only not in name:
             continue
-        with tempfile.TemporaryDirectory() as cache:
-            if opts.prepare:
-                r = run(["prepare"], cache)
-                print(f"| qualbayes prepare | once, empty cache | {r['wall']:.1f} | "
-                      f"{r['cpu']:.1f} | "
-                      f"{r['compiles']} ({r['big']}) | {r['hits']} | {r['xla']:.1f} | "
-                      f"{r['trace']:.1f} | |")
-            first = run(argv, cache)
-            warm = run(argv, cache)
-        label = "first after prepare" if opts.prepare else "first-ever"
-        for run_name, r in ((label, first), ("warm", warm)):
-            ratio = (f"{first['wall'] / warm['wall']:.2f}, {first['cpu'] / warm['cpu']:.2f}"
-                     if r is warm else "")
-            print(f"| {name} | {run_name} | {r['wall']:.1f} | {r['cpu']:.1f} | "
-                  f"{r['compiles']} ({r['big']}) | "
-                  f"{r['hits']} | {r['xla']:.1f} | {r['trace']:.1f} | {ratio} |")
+        for _ in range(opts.repeat):
+            pair(name, argv, opts.prepare)
     print(f"load average after: {os.getloadavg()[0]:.1f}")
+
+
+def pair(name: str, argv: list[str], prepare: bool) -> None:
+    """One first-ever run on a new empty cache, then a warm run on what it left."""
+    with tempfile.TemporaryDirectory() as cache:
+        if prepare:
+            r = run(["prepare"], cache)
+            print(f"| qualbayes prepare | once, empty cache | {r['wall']:.1f} | "
+                  f"{r['cpu']:.1f} | {r['compiles']} ({r['big']}) | {r['hits']} | "
+                  f"{r['xla']:.1f} | {r['trace']:.1f} | | {r['load']} |", flush=True)
+        first = run(argv, cache)
+        warm = run(argv, cache)
+    label = "first after prepare" if prepare else "first-ever"
+    for run_name, r in ((label, first), ("warm", warm)):
+        ratio = (f"{first['wall'] / warm['wall']:.2f}, {first['cpu'] / warm['cpu']:.2f}"
+                 if r is warm else "")
+        print(f"| {name} | {run_name} | {r['wall']:.1f} | {r['cpu']:.1f} | "
+              f"{r['compiles']} ({r['big']}) | {r['hits']} | {r['xla']:.1f} | "
+              f"{r['trace']:.1f} | {ratio} | {r['load']} |", flush=True)
 
 
 if __name__ == "__main__":

@@ -5,8 +5,8 @@ floats, needed by the beta-binomial at large concentration), which restores the 
 ``jax_enable_x64`` on exit, and never touches ``jax_platforms`` or ``XLA_FLAGS``. The chain
 method (``parallel`` over CPU devices, or ``vectorized``) and the number of chains are
 arguments (:class:`SamplerSettings`). Only the command-line entry point configures the
-process (:func:`configure_process`: one CPU device per chain, float64, CPU, and a persistent
-compilation cache), before jax is imported.
+process (:func:`configure_process`: one CPU device per chain, float64, CPU, a persistent
+compilation cache and the compile options COMPILE_FLAGS), before jax is imported.
 
 The sampler of each (model, argument shapes, sampler setting) is built once in the process
 and kept (:mod:`qualbayes.inference.nuts_program`): a second fit of the same shape, a retry
@@ -29,20 +29,27 @@ from qualbayes import progress
 from qualbayes.inference.gate import GateResult, diagnose, diagnose_arrays
 
 HOST_DEVICES = 4  # the default number of chains
+#: XLA's CPU compiler without its newer fusion emitters: the sampler compiles in about half
+#: the CPU time at about the same sampling speed (docs/speed.md, "The first run, measured
+#: this round"); draws equal to float rounding
+COMPILE_FLAGS = "--xla_cpu_use_fusion_emitters=false"
 
 
 def configure_process() -> None:
     """For the command line only: set, through the environment and before jax is imported,
     one CPU "device" per chain (chains then run as a pmap, which jax traces once, instead of
     a vmap of NUTS's while loops, whose batching costs seconds of tracing per run; measured:
-    1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap), 64-bit floats, CPU only, and a
+    1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap), 64-bit floats, CPU only, XLA's
+    CPU compiler options :data:`COMPILE_FLAGS` (half the compile time), and a
     persistent compilation cache (``QUALBAYES_JAX_CACHE``, "off" for none) so that a second
     run reuses compiled code. Values the user already set in the environment win. If jax is
     already imported, its configuration is updated to the same values."""
     flags = os.environ.get("XLA_FLAGS", "")
     if "xla_force_host_platform_device_count" not in flags:
-        os.environ["XLA_FLAGS"] = (
-            f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}").strip()
+        flags = f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}".strip()
+    if "xla_cpu_use_fusion_emitters" not in flags:
+        flags = f"{flags} {COMPILE_FLAGS}"
+    os.environ["XLA_FLAGS"] = flags
     values = {"JAX_ENABLE_X64": "1", "JAX_PLATFORMS": "cpu"}
     cache = os.environ.get("QUALBAYES_JAX_CACHE",
                            str(Path.home() / ".cache" / "qualbayes" / "jax"))

@@ -17,7 +17,7 @@ form of ``qualbayes.models.beta_binomial`` (same hyperprior, same data, one chai
 first run minus a second run of the same compiled sampler; CPU seconds of this process, which
 load disturbs less than wall time), and the length of each gradient program.
 
-``--compile-flags [FLAGS ...]`` measures, in a fresh process per variant and without a
+``--compile-flags [--variant=FLAGS ...]`` measures, in a fresh process per variant and without a
 persistent cache, the CPU seconds of a first fit (compiling included) and of a fit once
 compiled for the one-part sampler that the parts path uses, under each XLA_FLAGS variant
 (default: the compiler as shipped against ``--xla_cpu_use_fusion_emitters=false``).
@@ -191,17 +191,21 @@ def main() -> None:
     parser.add_argument("--only", help="run only the cases whose name contains this")
     parser.add_argument("--repeat", type=int, default=1,
                         help="first-ever and warm pairs per case (each on a new empty cache)")
-    parser.add_argument("--compile-flags", nargs="*", metavar="FLAGS",
+    parser.add_argument("--compile-flags", action="store_true",
                         help="compile and sampling cost of the one-part history sampler "
-                             "under each XLA_FLAGS variant ('' = the default compiler)")
+                             "under each --variant of XLA_FLAGS")
+    parser.add_argument("--variant", action="append", metavar="FLAGS",
+                        help="with --compile-flags: XLA_FLAGS to try, written "
+                             "--variant=--xla_...; '--variant=' is the default compiler "
+                             "(default: both with and without the fusion emitters)")
     parser.add_argument("--model-compile", action="store_true",
                         help="compile cost of the lots history likelihood, two forms")
     opts = parser.parse_args()
     if opts.model_compile:
         model_compile()
         return
-    if opts.compile_flags is not None:
-        compile_flags(opts.compile_flags or ["", "--xla_cpu_use_fusion_emitters=false"])
+    if opts.compile_flags:
+        compile_flags(opts.variant or ["", "--xla_cpu_use_fusion_emitters=false"])
         return
     print(f"load average before: {os.getloadavg()[0]:.1f}")
     print("| command | run | wall (s) | CPU (s) | compilations (>= 0.5 s) | "

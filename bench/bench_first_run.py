@@ -16,11 +16,17 @@ history model costs with numpyro's ``BetaBinomial.log_prob`` and with the short 
 form of ``qualbayes.models.beta_binomial`` (same hyperprior, same data, one chain; compile =
 first run minus a second run of the same compiled sampler; CPU seconds of this process, which
 load disturbs less than wall time), and the length of each gradient program.
+
+``--compile-flags [--variant=FLAGS ...]`` measures, in a fresh process per variant and without a
+persistent cache, the CPU seconds of a first fit (compiling included) and of a fit once
+compiled for the one-part sampler that the parts path uses, under each XLA_FLAGS variant
+(default: the compiler as shipped against ``--xla_cpu_use_fusion_emitters=false``).
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import re
 import resource
@@ -47,6 +53,7 @@ _LOWER = re.compile(r"Finished jaxpr to MLIR module conversion \S+ in ([\d.]+) s
 def run(argv: list[str], cache: str) -> dict:
     env = {k: v for k, v in os.environ.items() if not k.startswith(("JAX_", "XLA_"))}
     env |= {"PYTHONPATH": str(ROOT), "QUALBAYES_JAX_CACHE": cache, "JAX_LOG_COMPILES": "1"}
+    load = os.getloadavg()[0]
     with tempfile.TemporaryDirectory() as work:
         t = time.perf_counter()
         before = resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -61,10 +68,64 @@ def run(argv: list[str], cache: str) -> dict:
     xla = [(name, float(s)) for name, s in _XLA.findall(log)]
     big = [s for name, s in xla if s >= 0.5]
     hits = log.count("Persistent compilation cache hit")
-    return {"wall": wall, "cpu": cpu, "compiles": len(xla), "hits": hits,
+    return {"load": f"{load:.1f}-{os.getloadavg()[0]:.1f}", "wall": wall, "cpu": cpu,
+            "compiles": len(xla), "hits": hits,
             "xla": sum(s for _, s in xla), "big": len(big),
             "trace": sum(map(float, _TRACE.findall(log))) + sum(map(float,
                                                                     _LOWER.findall(log)))}
+
+
+FLAG_RUN = r"""
+import json, os, resource, time
+from qualbayes.inference.run import configure_process
+configure_process()
+import jax, jax.numpy as jnp, numpy as np
+from qualbayes.models import lot_history_parts as lp
+from qualbayes.models.lot_history import lot_history_model, pad
+compiled = []
+jax.monitoring.register_event_duration_secs_listener(
+    lambda e, s, **k: compiled.append(s) if e.endswith("backend_compile_duration") else None)
+def cpu():
+    r = resource.getrusage(resource.RUSAGE_SELF)
+    return r.ru_utime + r.ru_stime
+rng = np.random.default_rng(7)
+n = rng.choice([80.0, 125.0, 200.0], 14)
+xs, ns, ws = pad([(rng.binomial(n.astype(int), 0.01).astype(float), n)])
+out = {"load": os.getloadavg()[0]}
+with jax.enable_x64(True):
+    args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
+    c = cpu()
+    run, _ = lp._compiled(lot_history_model, 0.5, 1000, 1000, 0.99, 10, True, 4)
+    mu = run(jax.random.split(jax.random.PRNGKey(1), 4), *args)[0]
+    out |= {"first": cpu() - c, "compile_wall": sum(compiled)}
+    c = cpu()
+    for seed in (2, 3):
+        mu = run(jax.random.split(jax.random.PRNGKey(seed), 4), *args)[0]
+    out |= {"sample": (cpu() - c) / 2, "mu": float(np.mean(mu))}
+print(json.dumps(out))
+"""
+
+
+def compile_flags(variants: list[str]) -> None:
+    """The one-part history sampler (the parts path's program, 4 chains, 1,000 + 1,000) in a
+    fresh process per XLA_FLAGS variant, no persistent cache: CPU seconds of the first fit
+    (compiling included), XLA compile wall seconds, CPU seconds of a fit once compiled."""
+    print("| XLA_FLAGS added | first fit CPU (s) | XLA compile wall (s) | "
+          "fit once compiled, CPU (s) | mean of mu | load 1-min |")
+    print("|---|---|---|---|---|---|")
+    for flags in variants:
+        env = {k: v for k, v in os.environ.items() if not k.startswith(("JAX_", "XLA_"))}
+        env |= {"PYTHONPATH": str(ROOT), "QUALBAYES_JAX_CACHE": "off",
+                "XLA_FLAGS": flags or "--xla_cpu_use_fusion_emitters=true"}
+        out = subprocess.run([sys.executable, "-c", FLAG_RUN], capture_output=True,
+                             text=True, env=env)
+        if out.returncode != 0:
+            print(f"| {flags} | failed: {out.stderr.strip()[-200:]} |||||")
+            continue
+        r = json.loads(out.stdout.strip().splitlines()[-1])
+        print(f"| {flags or '(none: fusion emitters on)'} | {r['first']:.1f} | "
+              f"{r['compile_wall']:.1f} | {r['sample']:.2f} | {r['mu']:.12f} | "
+              f"{r['load']:.1f} |", flush=True)
 
 
 def model_compile() -> None:
@@ -128,37 +189,54 @@ def main() -> None:
     parser.add_argument("--prepare", action="store_true",
                         help="run `qualbayes prepare` on the empty cache first")
     parser.add_argument("--only", help="run only the cases whose name contains this")
+    parser.add_argument("--repeat", type=int, default=1,
+                        help="first-ever and warm pairs per case (each on a new empty cache)")
+    parser.add_argument("--compile-flags", action="store_true",
+                        help="compile and sampling cost of the one-part history sampler "
+                             "under each --variant of XLA_FLAGS")
+    parser.add_argument("--variant", action="append", metavar="FLAGS",
+                        help="with --compile-flags: XLA_FLAGS to try, written "
+                             "--variant=--xla_...; '--variant=' is the default compiler "
+                             "(default: both with and without the fusion emitters)")
     parser.add_argument("--model-compile", action="store_true",
                         help="compile cost of the lots history likelihood, two forms")
     opts = parser.parse_args()
     if opts.model_compile:
         model_compile()
         return
+    if opts.compile_flags:
+        compile_flags(opts.variant or ["", "--xla_cpu_use_fusion_emitters=false"])
+        return
     print(f"load average before: {os.getloadavg()[0]:.1f}")
     print("| command | run | wall (s) | CPU (s) | compilations (>= 0.5 s) | "
           "persistent-cache hits | XLA compile or load (s) | tracing + lowering (s) | "
-          "first / warm: wall, CPU |")
-    print("|---|---|---|---|---|---|---|---|---|")
+          "first / warm: wall, CPU | load 1-min (start-end) |")
+    print("|---|---|---|---|---|---|---|---|---|---|")
     for name, argv in CASES.items():
         if opts.only and opts.only not in name:
             continue
-        with tempfile.TemporaryDirectory() as cache:
-            if opts.prepare:
-                r = run(["prepare"], cache)
-                print(f"| qualbayes prepare | once, empty cache | {r['wall']:.1f} | "
-                      f"{r['cpu']:.1f} | "
-                      f"{r['compiles']} ({r['big']}) | {r['hits']} | {r['xla']:.1f} | "
-                      f"{r['trace']:.1f} | |")
-            first = run(argv, cache)
-            warm = run(argv, cache)
-        label = "first after prepare" if opts.prepare else "first-ever"
-        for run_name, r in ((label, first), ("warm", warm)):
-            ratio = (f"{first['wall'] / warm['wall']:.2f}, {first['cpu'] / warm['cpu']:.2f}"
-                     if r is warm else "")
-            print(f"| {name} | {run_name} | {r['wall']:.1f} | {r['cpu']:.1f} | "
-                  f"{r['compiles']} ({r['big']}) | "
-                  f"{r['hits']} | {r['xla']:.1f} | {r['trace']:.1f} | {ratio} |")
+        for _ in range(opts.repeat):
+            pair(name, argv, opts.prepare)
     print(f"load average after: {os.getloadavg()[0]:.1f}")
+
+
+def pair(name: str, argv: list[str], prepare: bool) -> None:
+    """One first-ever run on a new empty cache, then a warm run on what it left."""
+    with tempfile.TemporaryDirectory() as cache:
+        if prepare:
+            r = run(["prepare"], cache)
+            print(f"| qualbayes prepare | once, empty cache | {r['wall']:.1f} | "
+                  f"{r['cpu']:.1f} | {r['compiles']} ({r['big']}) | {r['hits']} | "
+                  f"{r['xla']:.1f} | {r['trace']:.1f} | | {r['load']} |", flush=True)
+        first = run(argv, cache)
+        warm = run(argv, cache)
+    label = "first after prepare" if prepare else "first-ever"
+    for run_name, r in ((label, first), ("warm", warm)):
+        ratio = (f"{first['wall'] / warm['wall']:.2f}, {first['cpu'] / warm['cpu']:.2f}"
+                 if r is warm else "")
+        print(f"| {name} | {run_name} | {r['wall']:.1f} | {r['cpu']:.1f} | "
+              f"{r['compiles']} ({r['big']}) | {r['hits']} | {r['xla']:.1f} | "
+              f"{r['trace']:.1f} | {ratio} | {r['load']} |", flush=True)
 
 
 if __name__ == "__main__":

@@ -108,6 +108,7 @@ from qualbayes.inference.run import configure_process
 configure_process()  # the command line's process: a CPU device per chain, cache on
 import jax
 import numpy as np
+from qualbayes.inference import nuts_program
 from qualbayes.inference.run import SamplerSettings, chain_method
 from qualbayes.models.lot_history import fit_histories
 events = []
@@ -116,6 +117,9 @@ fast = SamplerSettings(num_warmup=200, num_samples=200, seed=3, retry=False)
 out = {"method": chain_method(fast.num_chains)}
 n = np.array([80.0, 80, 125, 200, 125])
 for name, x in (("first", [0, 1, 2, 0, 1]), ("second", [3, 0, 0, 1, 5])):
+    if name == "second":  # as a new process would: nothing kept in memory
+        nuts_program.forget()
+        jax.clear_caches()
     events.clear()
     fit = fit_histories([(np.array(x, float), n)], fast)
     out[name] = {"hits": sum(e.endswith("cache_hits") for e in events),
@@ -127,8 +131,9 @@ print(json.dumps(out))
 
 def test_one_compiled_sampler_serves_new_data_of_the_same_shape(tmp_path):
     """With a CPU device per chain (the command line), a second data set of the same padded
-    shape is served from the persistent cache: no compilation misses (numpyro's built-in
-    parallel method baked the data into the program and compiled again: one miss)."""
+    shape, with nothing kept in memory (the kept sampler dropped, as in a new process), is
+    served from the persistent cache: no compilation misses (numpyro's built-in parallel
+    method baked the data into the program and compiled again: one miss)."""
     out = subprocess.run([sys.executable, "-c", SAME_SHAPE], capture_output=True, text=True,
                          env=_env(str(tmp_path / "cache")), cwd=tmp_path, timeout=900)
     assert out.returncode == 0, out.stderr[-3000:]
@@ -137,3 +142,93 @@ def test_one_compiled_sampler_serves_new_data_of_the_same_shape(tmp_path):
     assert got["first"]["misses"] >= 1  # the first-ever fit compiles
     assert got["second"]["misses"] == 0 and got["second"]["hits"] >= 1, got
     assert got["first"]["mu"] != got["second"]["mu"]  # really other data
+
+
+def test_kept_program_gives_numpyro_draws_and_continues_them():
+    """The kept two-program sampler (inference/nuts_program.py) is numpyro's NUTS with the
+    loop cut into calls: same seed, same draws and divergences as ``MCMC.run`` (the chains as
+    the command line maps them, data as inputs), and a continuation equals numpyro's own
+    continuation from ``post_warmup_state``. Exactly equal (measured: every bit): the
+    transitions are the same operations, only the loop around them is cut into calls."""
+    import jax
+    import jax.numpy as jnp
+    from numpyro.infer import MCMC, NUTS
+
+    from qualbayes.inference.compile_cache import chain_runner
+    from qualbayes.inference.run import SamplerSettings, chain_method, continue_nuts, run_nuts
+    from qualbayes.models.lot_history import lot_history_model, pad
+
+    n = np.array([80.0, 125, 200, 80, 125, 200, 80])
+    xs, ns, ws = pad([(np.array([0.0, 1, 3, 0, 2, 0, 1]), n)])
+    args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), jnp.asarray(0.5))
+    s = SamplerSettings(num_warmup=150, num_samples=120, target_accept=0.95, seed=11,
+                        retry=False)
+    with jax.enable_x64(True):
+        fit = run_nuts(lot_history_model, args, s)
+        more = continue_nuts(fit, 80)
+        mcmc = MCMC(NUTS(lot_history_model, target_accept_prob=0.95),
+                    num_warmup=150, num_samples=120, num_chains=4, progress_bar=False,
+                    chain_method=chain_runner(chain_method(4)), jit_model_args=True)
+        mcmc.run(jax.random.PRNGKey(11), *args, extra_fields=("diverging",))
+        ref = {k: np.asarray(v) for k, v in mcmc.get_samples(group_by_chain=True).items()}
+        ref_div = np.asarray(mcmc.get_extra_fields(group_by_chain=True)["diverging"])
+        mcmc.post_warmup_state = mcmc.last_state
+        mcmc.num_samples = 80
+        mcmc.run(mcmc.last_state.rng_key, *args, extra_fields=("diverging",))
+        ref_more = {k: np.asarray(v) for k, v in mcmc.get_samples(group_by_chain=True).items()}
+    assert set(fit.draws) == set(ref)
+    for k in ref:
+        assert fit.draws[k].shape == ref[k].shape == (4, 120, 1, 1)
+        np.testing.assert_array_equal(fit.draws[k], ref[k])
+        np.testing.assert_array_equal(more.draws[k][:, 120:], ref_more[k])
+        np.testing.assert_array_equal(more.draws[k][:, :120], fit.draws[k])
+    np.testing.assert_array_equal(fit.diverging, ref_div)
+    assert fit.draws["mu"].std() > 0  # real draws, not a constant
+
+
+KEPT = r"""
+import hashlib, json, sys
+from qualbayes.inference.run import configure_process
+configure_process()  # the command line's process: a CPU device per chain, cache on
+import jax
+import numpy as np
+from qualbayes.inference.run import SamplerSettings
+from qualbayes.models.lot_history import fit_histories, more_draws
+durations = []
+jax.monitoring.register_event_duration_secs_listener(
+    lambda e, secs, **k: durations.append(e))
+n = np.array([80.0, 80, 125, 200, 125])
+out = {}
+for name, x, seed in (("first", [0, 1, 2, 0, 1], 3), ("second", [3, 0, 0, 1, 5], 4)):
+    s = SamplerSettings(num_warmup=200, num_samples=200, seed=seed, retry=False)
+    durations.clear()
+    fit = fit_histories([(np.array(x, float), n)], s)
+    fit = more_draws(fit)
+    out[name] = {
+        "traced": sum(e.endswith("jaxpr_trace_duration") for e in durations),
+        "compiled": sum(e.endswith("backend_compile_duration") for e in durations),
+        "draws": fit.draws["mu"].shape,
+        "digest": hashlib.sha256(np.ascontiguousarray(fit.draws["mu"]).tobytes()
+                                 + fit.diverging.tobytes()).hexdigest()}
+print(json.dumps(out))
+"""
+
+
+def test_second_fit_of_a_shape_reuses_the_sampler_and_the_seed_fixes_the_draws(tmp_path):
+    """In one process, a second fit of the same padded shape (other data, other seed) and
+    its continuation trace, lower and compile nothing: the kept program serves it. Two fresh
+    processes with the same seeds give identical draws (the second starts from the
+    persistent cache the first filled, so loading compiled code cannot change a draw)."""
+    runs = []
+    for _ in range(2):
+        out = subprocess.run([sys.executable, "-c", KEPT], capture_output=True, text=True,
+                             env=_env(str(tmp_path / "cache")), cwd=tmp_path, timeout=900)
+        assert out.returncode == 0, out.stderr[-3000:]
+        runs.append(json.loads(out.stdout.strip().splitlines()[-1]))
+    for got in runs:
+        assert got["first"]["traced"] >= 1  # the first fit builds the sampler
+        assert got["second"]["traced"] == 0 and got["second"]["compiled"] == 0, got
+        assert got["second"]["draws"][:2] == [4, 400]  # 200 draws, continued by 200
+        assert got["first"]["digest"] != got["second"]["digest"]
+    assert runs[0]["first"]["digest"] == runs[1]["first"]["digest"]
+    assert runs[0]["second"]["digest"] == runs[1]["second"]["digest"]

@@ -11,6 +11,11 @@ two data sets of one shape, second run a cache hit, bench/bench_first_run.py and
 tests/test_first_run.py). The draws equal the built-in method's up to floating-point
 rounding (constants folded by the compiler against inputs).
 
+``run_nuts`` no longer goes through numpyro's ``MCMC``: it keeps one sampler per shape in
+the process (:mod:`qualbayes.inference.nuts_program`, the same data-as-inputs mapping). This
+chain method stays for code that runs numpyro's ``MCMC`` itself (the reference in
+tests/test_first_run.py).
+
 Imports jax when called: only the sampler path uses it.
 """
 

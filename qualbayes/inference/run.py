@@ -5,8 +5,12 @@ floats, needed by the beta-binomial at large concentration), which restores the 
 ``jax_enable_x64`` on exit, and never touches ``jax_platforms`` or ``XLA_FLAGS``. The chain
 method (``parallel`` over CPU devices, or ``vectorized``) and the number of chains are
 arguments (:class:`SamplerSettings`). Only the command-line entry point configures the
-process (:func:`configure_process`: one CPU device per chain, float64, CPU, and a persistent
-compilation cache), before jax is imported.
+process (:func:`configure_process`: one CPU device per chain, float64, CPU, a persistent
+compilation cache and the compile options COMPILE_FLAGS), before jax is imported.
+
+The sampler of each (model, argument shapes, sampler setting) is built once in the process
+and kept (:mod:`qualbayes.inference.nuts_program`): a second fit of the same shape, a retry
+of the same setting or a close call's continuation traces and compiles nothing.
 """
 
 from __future__ import annotations
@@ -25,20 +29,27 @@ from qualbayes import progress
 from qualbayes.inference.gate import GateResult, diagnose, diagnose_arrays
 
 HOST_DEVICES = 4  # the default number of chains
+#: XLA's CPU compiler without its newer fusion emitters: the sampler compiles in about half
+#: the CPU time at about the same sampling speed (docs/speed.md, "The first run, measured
+#: this round"); draws equal to float rounding
+COMPILE_FLAGS = "--xla_cpu_use_fusion_emitters=false"
 
 
 def configure_process() -> None:
     """For the command line only: set, through the environment and before jax is imported,
     one CPU "device" per chain (chains then run as a pmap, which jax traces once, instead of
     a vmap of NUTS's while loops, whose batching costs seconds of tracing per run; measured:
-    1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap), 64-bit floats, CPU only, and a
+    1,000 lots, warm cache, 6.3 s vectorised, 2.6 s pmap), 64-bit floats, CPU only, XLA's
+    CPU compiler options :data:`COMPILE_FLAGS` (half the compile time), and a
     persistent compilation cache (``QUALBAYES_JAX_CACHE``, "off" for none) so that a second
     run reuses compiled code. Values the user already set in the environment win. If jax is
     already imported, its configuration is updated to the same values."""
     flags = os.environ.get("XLA_FLAGS", "")
     if "xla_force_host_platform_device_count" not in flags:
-        os.environ["XLA_FLAGS"] = (
-            f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}").strip()
+        flags = f"{flags} --xla_force_host_platform_device_count={HOST_DEVICES}".strip()
+    if "xla_cpu_use_fusion_emitters" not in flags:
+        flags = f"{flags} {COMPILE_FLAGS}"
+    os.environ["XLA_FLAGS"] = flags
     values = {"JAX_ENABLE_X64": "1", "JAX_PLATFORMS": "cpu"}
     cache = os.environ.get("QUALBAYES_JAX_CACHE",
                            str(Path.home() / ".cache" / "qualbayes" / "jax"))
@@ -125,6 +136,9 @@ def relieve_memory_maps(share: float = 0.5) -> bool:
 
     import jax  # noqa: PLC0415
 
+    from qualbayes.inference import nuts_program  # noqa: PLC0415
+
+    nuts_program.forget()  # the kept samplers hold compiled code too
     jax.clear_caches()
     gc.collect()
     return True
@@ -201,8 +215,8 @@ def to_idata(draws: dict, diverging=None, dims: dict | None = None, coords: dict
 
 
 def show_progress() -> bool:
-    """numpyro's own bar stays off: qualbayes.progress shows each fit with its time elapsed
-    (numpyro's bars do not update under parallel chains)."""
+    """No sampler progress bar: qualbayes.progress shows each fit with its time elapsed
+    (kept for earlier callers)."""
     return False
 
 
@@ -226,10 +240,11 @@ def run_nuts(model: Callable, model_args: tuple, settings: SamplerSettings,
             attempts += 1
             started = progress.fit_started(attempt_settings)
             try:
-                raw, diverging, mcmc = _sample(model, model_args, attempt_settings, init_params)
+                raw, diverging, runner = _sample(model, model_args, attempt_settings,
+                                                 init_params)
             finally:
                 progress.fit_finished(started)
-            chains = _Chains(mcmc, model_args, raw, diverging, gate_on, gate_vars, dims, coords,
+            chains = _Chains(runner, model_args, raw, diverging, gate_on, gate_vars, dims, coords,
                              transform, attempts)
             fit = chains.fit(attempt_settings)
             progress.fit_checked(started, fit.gate.passed, attempt_settings.retry)
@@ -265,7 +280,7 @@ class _Chains:
     """The sampler of one NUTS run and every draw it has given (raw sites, before
     ``transform``), so that more draws can follow without a new warmup."""
 
-    mcmc: object
+    runner: tuple  # (nuts_program.Program, the chains' last state)
     model_args: tuple
     raw: dict
     diverging: np.ndarray
@@ -292,18 +307,12 @@ class _Chains:
                    dict(self.coords or {}), sampler=self)
 
     def extended(self, more: int) -> _Chains:
-        """More draws from the last state (same kernel: compiled once per shape)."""
-        mcmc = self.mcmc
-        mcmc.post_warmup_state = mcmc.last_state
-        num_samples = mcmc.num_samples
-        mcmc.num_samples = more
-        try:
-            mcmc.run(mcmc.last_state.rng_key, *self.model_args, extra_fields=("diverging",))
-        finally:
-            mcmc.num_samples = num_samples
-        new, div = _collect(mcmc)
+        """More draws from the last state (the same kept program: compiled once per shape)."""
+        program, state = self.runner
+        state, new, div = program.advance(state, self.model_args, more)
         raw = {k: np.concatenate([self.raw[k], new[k]], axis=1) for k in self.raw}
-        return replace(self, raw=raw, diverging=np.concatenate([self.diverging, div], axis=1),
+        return replace(self, runner=(program, state),
+                       raw=raw, diverging=np.concatenate([self.diverging, div], axis=1),
                        continued=self.continued + more)
 
 
@@ -325,22 +334,22 @@ def _settings_dict(s: SamplerSettings) -> dict:
 
 
 def _sample(model, model_args, s: SamplerSettings, init_params):
-    import jax  # noqa: PLC0415
-    from numpyro.infer import MCMC, NUTS  # noqa: PLC0415
+    """Warmup and draws through the process's kept program for this model, shape and
+    setting (:mod:`qualbayes.inference.nuts_program`): a second fit of the same shape in
+    this process traces, lowers and compiles nothing."""
+    from qualbayes.inference.nuts_program import program_for  # noqa: PLC0415
 
-    from qualbayes.inference.compile_cache import chain_runner  # noqa: PLC0415
+    if init_params is not None:
+        import jax  # noqa: PLC0415
+        import jax.numpy as jnp  # noqa: PLC0415
 
-    kernel = NUTS(model, target_accept_prob=s.target_accept, max_tree_depth=s.max_tree_depth)
-    method = chain_runner(chain_method(s.num_chains, s.chain_method))  # data as inputs
-    mcmc = MCMC(kernel, num_warmup=s.num_warmup, num_samples=s.num_samples,
-                num_chains=s.num_chains, chain_method=method,
-                progress_bar=show_progress(), jit_model_args=True)
-    mcmc.run(jax.random.PRNGKey(s.seed), *model_args, init_params=init_params,
-             extra_fields=("diverging",))
-    samples, diverging = _collect(mcmc)
-    return samples, diverging, mcmc
-
-
-def _collect(mcmc) -> tuple[dict, np.ndarray]:
-    samples = {k: np.asarray(v) for k, v in mcmc.get_samples(group_by_chain=True).items()}
-    return samples, np.asarray(mcmc.get_extra_fields(group_by_chain=True)["diverging"])
+        init_params = jax.tree.map(lambda a: jnp.asarray(a, jnp.result_type(a)), init_params)
+    program = program_for(model, model_args, num_chains=s.num_chains,
+                          num_warmup=s.num_warmup, target_accept=s.target_accept,
+                          max_tree_depth=s.max_tree_depth,
+                          method=chain_method(s.num_chains, s.chain_method),
+                          init_params=init_params)
+    state = program.start(s.seed, model_args, init_params)
+    state, _, _ = program.advance(state, model_args, s.num_warmup, keep=False)
+    state, samples, diverging = program.advance(state, model_args, s.num_samples)
+    return samples, diverging, (program, state)

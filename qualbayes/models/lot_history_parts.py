@@ -39,9 +39,12 @@ import numpy as np
 
 from qualbayes.inference.run import Fit, SamplerSettings, jax_scope, record
 
-#: parts per compiled call (a power of two; measured 8 against 64: docs/speed.md, "Many parts
-#: with NUTS")
-CHUNK = 8
+#: parts per compiled chunk. 1, measured from two sides: a vmap over parts batches NUTS's
+#: while loops, whose tracing and compilation cost the demo's first run 13 s and 12 CPU s
+#: more than one part at a time (docs/speed.md, "The first run, measured this round"), and
+#: 8 against 64 parts per call used more CPU, not less, at 64 ("Many parts with NUTS").
+#: A part's draws do not depend on the chunk (its keys come from its own index).
+CHUNK = 1
 
 
 def sample_parts(model, xs, ns, ws, scale, s: SamplerSettings):
@@ -307,13 +310,22 @@ def _stack(states: list):
     return jax.tree.map(lambda *a: np.stack(a, axis=1), *states)
 
 
+#: NUTS transitions per call of a chunk's compiled ``steps`` program
+STEPS = 500
+
+
 @lru_cache(maxsize=16)
 def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_depth,
               parallel, num_chains):
-    """One compiled sampler per model and settings: (keys (chain, part), x, n, w) -> mu,
-    kappa, diverging, last states, pmapped (or vmapped) over chains, vmapped over parts;
-    and ``more`` -> (states, x, n, w) -> the same, continuing from the states without
-    warmup."""
+    """One compiled sampler per model and settings: (keys (chain, part), x, n, w) -> mu, kappa,
+    diverging, last states, pmapped (or vmapped) over chains, vmapped over parts; and ``more`` ->
+    (states, x, n, w) -> the same, continuing from the states without warmup.
+
+    Two programs: ``init`` (initial point, step-size search) and ``steps`` (up to
+    :data:`STEPS` NUTS transitions, warmup adaptation inside by the iteration counter,
+    collecting mu, kappa and divergences). Warmup, draws and every continuation call the
+    same ``steps``: the NUTS transition is compiled once per shape (it was compiled three
+    times: warmup and draws of the first run, and the continuation)."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
     from numpyro.infer.hmc import hmc  # noqa: PLC0415
@@ -327,52 +339,71 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
 
     init_kernel, sample_kernel = hmc(potential_fn_gen=potential_gen, algo="NUTS")
 
-    def draws(state, x, n, w, length):
-        def step(st, _):
-            st = sample_kernel(st, model_args=(x, n, w))
-            return st, (st.z, st.diverging)
-
-        state, (z, div) = jax.lax.scan(step, state, None, length=length)
-        site = jax.vmap(lambda zz: constrain_fn(model, args(x, n, w), {}, zz,
-                                                return_deterministic=True))(z)
-        return site["mu"][:, 0, 0], site["kappa"][:, 0, 0], div, state
-
-    def one(key, x, n, w):
+    def init_one(key, x, n, w):
         k_init, k_run = jax.random.split(key)
         z0 = {name: jax.random.uniform(kk, (1, 1), minval=-2.0, maxval=2.0)
               for name, kk in zip(("mu", "spread_y"), jax.random.split(k_init), strict=True)}
-        state = init_kernel(z0, num_warmup, target_accept_prob=target_accept,
-                            max_tree_depth=max_tree_depth, model_args=(x, n, w),
-                            rng_key=k_run)
+        return init_kernel(z0, num_warmup, target_accept_prob=target_accept,
+                           max_tree_depth=max_tree_depth, model_args=(x, n, w),
+                           rng_key=k_run)
 
-        def step(st, _):
-            return sample_kernel(st, model_args=(x, n, w)), None
+    def steps_one(state, x, n, w, count):
+        kept = (jnp.zeros(STEPS), jnp.zeros(STEPS), jnp.zeros(STEPS, bool))
 
-        state, _ = jax.lax.scan(step, state, None, length=num_warmup)
-        return draws(state, x, n, w, num_samples)
+        def body(i, carry):
+            st, (mu, kappa, div) = carry
+            st = sample_kernel(st, model_args=(x, n, w))
+            site = constrain_fn(model, args(x, n, w), {}, st.z, return_deterministic=True)
+            return st, (mu.at[i].set(site["mu"][0, 0]), kappa.at[i].set(site["kappa"][0, 0]),
+                        div.at[i].set(st.diverging))
 
-    def over_parts(fn, first, x, n, w):
+        state, kept = jax.lax.fori_loop(0, count, body, (state, kept))
+        return (*kept, state)
+
+    def over_parts(fn, first, x, n, w, *rest):
         """``fn`` mapped over the parts axis: a vmap, or for a single part a plain call
         (batching NUTS's while loops costs seconds of tracing on every run)."""
         if x.shape[0] == 1:
-            one_part = fn(jax.tree.map(lambda a: a[0], first), x[0], n[0], w[0])
+            one_part = fn(jax.tree.map(lambda a: a[0], first), x[0], n[0], w[0], *rest)
             return jax.tree.map(lambda a: a[None], one_part)
-        return jax.vmap(fn)(first, x, n, w)
+        return jax.vmap(fn, in_axes=(0, 0, 0, 0, *(None,) * len(rest)))(first, x, n, w, *rest)
 
-    def chain(keys, x, n, w):
-        return over_parts(one, keys, x, n, w)
+    def chain_init(keys, x, n, w):
+        return over_parts(init_one, keys, x, n, w)
+
+    def chain_steps(states, x, n, w, count):
+        return over_parts(steps_one, states, x, n, w, count)
 
     def mapped(fn, in_axes):
         return jax.pmap(fn, in_axes=in_axes) if parallel else jax.jit(jax.vmap(fn, in_axes))
 
-    @lru_cache(maxsize=4)
+    init = mapped(chain_init, (0, None, None, None))
+    steps = mapped(chain_steps, (0, None, None, None, None))
+
+    def advance(states, x, n, w, total, keep=True):
+        """``total`` transitions in calls of at most STEPS: (mu, kappa, div) as (chain, part,
+        draw) and the last states. States enter every call as numpy arrays (one input
+        signature, so the first run and a continuation share one trace)."""
+        kept, done = [], 0
+        while done < total:
+            c = min(STEPS, total - done)
+            states = jax.tree.map(np.asarray, states)
+            *out, states = steps(states, x, n, w, jnp.asarray(c, jnp.int32))
+            if keep:
+                kept.append([np.asarray(a)[:, :, :c] for a in out])
+            done += c
+        if not keep:
+            return None, None, None, states
+        return (*(np.concatenate([k[i] for k in kept], axis=2) for i in range(3)), states)
+
+    def run(keys, x, n, w):
+        *_, states = advance(init(keys, x, n, w), x, n, w, num_warmup, keep=False)
+        return advance(states, x, n, w, num_samples)
+
     def cont(more):
-        def go(states, x, n, w):
-            return over_parts(partial(draws, length=more), states, x, n, w)
+        return partial(advance, total=more)
 
-        return mapped(go, (0, None, None, None))
-
-    return mapped(chain, (0, None, None, None)), cont
+    return run, cont
 
 
 def _bucket(k: int) -> int:

@@ -1,0 +1,194 @@
+"""One compiled NUTS sampler per model, data shape and sampler setting, kept in the process.
+
+numpyro's ``MCMC.run`` maps its chains over a new function object on every run, so every fit
+traced, lowered and loaded (or compiled) the whole sampler again, even a second fit of the
+same shape in the same process; and a first run (warmup and draws in one loop) and its
+continuation (draws only) were two programs, each compiling the NUTS transition. Here the
+sampler is two programs, built once per :func:`program_for` key and kept in the process:
+
+- ``init``: numpyro's ``NUTS.init`` for every chain (initial point, step-size search,
+  adaptation state), from the chain's random key;
+- ``steps``: up to :data:`CHUNK` NUTS transitions from a state, collecting the constrained
+  sites (as numpyro's postprocessing gives them) and the divergences. Warmup adaptation is
+  inside the transition (it follows the iteration counter of the state), so warmup, draws
+  and every later continuation are calls of this one program.
+
+The chains are mapped with ``pmap`` over CPU devices (``parallel``), a ``vmap``
+(``vectorized``) or ``lax.map`` (``sequential``), with the model's arguments (the data) as
+unmapped inputs: one compiled sampler serves any data of the same shape, in this process and
+from the persistent compilation cache.
+
+The algorithm and the random streams are numpyro's own: the chain keys are
+``split(PRNGKey(seed), chains)`` (one chain: the key itself), each chain is initialised by
+the kernel's ``init`` and advanced by its ``sample``, exactly as ``MCMC.run`` does; only the
+loop is cut into calls (tests/test_first_run.py compares the draws with ``MCMC.run``).
+
+Imports jax and numpyro: only the sampler paths import this.
+"""
+
+from __future__ import annotations
+
+import functools
+from collections import OrderedDict
+from dataclasses import dataclass
+
+import numpy as np
+
+#: transitions per call of the ``steps`` program (any count is run in calls of at most this)
+CHUNK = 500
+#: programs kept in the process (least recently used dropped first)
+KEEP = 8
+
+_PROGRAMS: OrderedDict = OrderedDict()
+
+
+@dataclass
+class Program:
+    """The compiled sampler of one key: ``init`` and ``steps`` (see the module text)."""
+
+    init: object
+    steps: object
+    num_chains: int
+    uses: int = 0
+
+    def start(self, seed: int, model_args: tuple, init_params=None):
+        """Every chain's initial state (numpyro's keys and ``NUTS.init``)."""
+        import jax  # noqa: PLC0415
+
+        key = jax.random.PRNGKey(seed)
+        keys = key[None] if self.num_chains == 1 else jax.random.split(key, self.num_chains)
+        return self.init(keys, init_params, model_args)
+
+    def advance(self, state, model_args: tuple, count: int, keep: bool = True):
+        """``count`` transitions from ``state``: (last state, sites {name: (chain, count,
+        ...)}, diverging (chain, count)); with ``keep=False`` (warmup) nothing is collected
+        and the sites and divergences are None."""
+        import jax.numpy as jnp  # noqa: PLC0415
+
+        parts, divs, done = [], [], 0
+        while done < count:
+            n = min(CHUNK, count - done)
+            state, sites, div = self.steps(state, model_args, jnp.asarray(n, jnp.int32))
+            if keep:
+                parts.append({k: np.asarray(v)[:, :n] for k, v in sites.items()})
+                divs.append(np.asarray(div)[:, :n])
+            done += n
+        if not keep:
+            return state, None, None
+        if not parts:
+            raise ValueError("no draws asked for")
+        sites = {k: np.concatenate([p[k] for p in parts], axis=1) for k in parts[0]}
+        return state, sites, np.concatenate(divs, axis=1)
+
+
+def program_for(model, model_args: tuple, *, num_chains: int, num_warmup: int,
+                target_accept: float, max_tree_depth: int, method: str,
+                init_params=None) -> Program:
+    """The kept program for this model, argument shapes and settings (built on first use).
+    A model that cannot be a dictionary key (a closure over unhashable values) gets a new
+    program, as before."""
+    key = _key(model, model_args, num_chains, num_warmup, target_accept, max_tree_depth,
+               method, init_params)
+    if key is not None and key in _PROGRAMS:
+        _PROGRAMS.move_to_end(key)
+        program = _PROGRAMS[key]
+    else:
+        program = _build(model, num_chains, num_warmup, target_accept, max_tree_depth,
+                         method, init_params is not None)
+        if key is not None:
+            _PROGRAMS[key] = program
+            while len(_PROGRAMS) > KEEP:
+                _PROGRAMS.popitem(last=False)
+    program.uses += 1
+    return program
+
+
+def forget() -> None:
+    """Drop every kept program (their compiled code is released with jax's caches)."""
+    _PROGRAMS.clear()
+
+
+def kept() -> int:
+    """How many programs the process keeps (for tests and benchmarks)."""
+    return len(_PROGRAMS)
+
+
+def _hashable(value):
+    """``value`` as a dictionary key part, or TypeError."""
+    if isinstance(value, functools.partial):
+        return ("partial", _hashable(value.func), tuple(_hashable(a) for a in value.args),
+                tuple(sorted((k, _hashable(v)) for k, v in value.keywords.items())))
+    hash(value)
+    return value
+
+
+def _key(model, model_args, num_chains, num_warmup, target_accept, max_tree_depth, method,
+         init_params):
+    import jax  # noqa: PLC0415
+
+    try:
+        model_key = _hashable(model)
+    except TypeError:
+        return None
+    leaves, tree = jax.tree.flatten(model_args)
+    shapes = tuple((np.shape(a), str(jax.numpy.result_type(a))) for a in leaves)
+    init = None
+    if init_params is not None:
+        init_leaves, init_tree = jax.tree.flatten(init_params)
+        init = (init_tree, tuple((np.shape(a), str(jax.numpy.result_type(a)))
+                                 for a in init_leaves))
+    return (model_key, tree, shapes, int(num_chains), int(num_warmup), float(target_accept),
+            int(max_tree_depth), method, init, bool(jax.config.jax_enable_x64))
+
+
+def _build(model, num_chains, num_warmup, target_accept, max_tree_depth, method,
+           has_init) -> Program:
+    import jax  # noqa: PLC0415
+    import jax.numpy as jnp  # noqa: PLC0415
+    from numpyro.infer import NUTS  # noqa: PLC0415
+
+    kernel = NUTS(model, target_accept_prob=target_accept, max_tree_depth=max_tree_depth)
+
+    def init_one(key, init_params, args):
+        return kernel.init(key, num_warmup, init_params, model_args=args, model_kwargs={})
+
+    def steps_one(state, args, n):
+        post = kernel.postprocess_fn(args, {})
+        proto = post(state.z)
+        sites = jax.tree.map(lambda v: jnp.zeros((CHUNK, *jnp.shape(v)), jnp.result_type(v)),
+                             proto)
+        div = jnp.zeros((CHUNK,), bool)
+
+        def body(i, carry):
+            st, sites, div = carry
+            st = kernel.sample(st, args, {})
+            sites = jax.tree.map(lambda b, v: b.at[i].set(v), sites, post(st.z))
+            return st, sites, div.at[i].set(st.diverging)
+
+        return jax.lax.fori_loop(0, n, body, (state, sites, div))
+
+    init_axes = (0, 0 if has_init else None, None)
+    steps_axes = (0, None, None)
+    return Program(_mapped(init_one, init_axes, method, num_chains),
+                   _mapped(steps_one, steps_axes, method, num_chains), num_chains)
+
+
+def _mapped(fn, in_axes, method: str, num_chains: int):
+    """``fn`` of one chain mapped over the chains (axis 0 of the arguments marked 0)."""
+    import jax  # noqa: PLC0415
+
+    if method == "parallel" and num_chains > 1:
+        return jax.pmap(fn, in_axes=in_axes)
+    if method == "sequential" and num_chains > 1:
+        def over_chains(*args):
+            mapped = [a for a, axis in zip(args, in_axes, strict=True) if axis == 0]
+
+            def one(xs):
+                it = iter(xs)
+                return fn(*(next(it) if axis == 0 else a
+                            for a, axis in zip(args, in_axes, strict=True)))
+
+            return jax.lax.map(one, mapped)
+
+        return jax.jit(over_chains)
+    return jax.jit(jax.vmap(fn, in_axes=in_axes))

@@ -158,10 +158,14 @@ class SamplerSettings:
     chain_method: str | None = None
 
     def harder(self) -> SamplerSettings:
-        """The retry: twice the draws, a higher target acceptance (smaller steps)."""
+        """The retry: twice the draws, a higher target acceptance (smaller steps): at least
+        0.95, and halfway from the first run's target to 1 when that was already 0.95 or
+        more (0.95 -> 0.975, 0.99 -> 0.995), so that a retry after divergences always takes
+        smaller steps (before, a run at 0.95 was retried at 0.95)."""
+        target = (max(self.target_accept, 0.95) if self.target_accept < 0.95
+                  else self.target_accept + (1.0 - self.target_accept) / 2.0)
         return replace(self, num_warmup=2 * self.num_warmup, num_samples=2 * self.num_samples,
-                       target_accept=max(self.target_accept, 0.95), seed=self.seed + 1,
-                       retry=False)
+                       target_accept=target, seed=self.seed + 1, retry=False)
 
 
 @dataclass

@@ -181,6 +181,23 @@ class LotResult:
         return _posterior_idata(draws, "part", list(draws), self.fits, observed, dims,
                                 {"lot": lots["lot"].astype(str).tolist()})
 
+    def idata_of(self, part: str):
+        """The InferenceData of one part: its draws as used for its answers (after any
+        further draws of a close call), its own divergence flags and its lots' data. Works
+        when the parts hold different numbers of draws (where ``idata`` raises
+        :class:`DrawCountError`)."""
+        draws = getattr(self.assessment, "draws", None)
+        if not draws:
+            return None
+        if part not in draws:
+            raise KeyError(f"no part {part!r}; the parts are {list(draws)}")
+        lots = self.lots.loc[self.lots["part"].astype(str) == str(part)]
+        observed = {"defectives": lots["defectives"].to_numpy(int),
+                    "inspected": lots["inspected"].to_numpy(int)}
+        dims = {"defectives": ["lot"], "inspected": ["lot"]}
+        return _posterior_idata({part: draws[part]}, "part", [part], self.fits, observed,
+                                dims, {"lot": lots["lot"].astype(str).tolist()})
+
 
 # --------------------------------------------------------------------------- life
 

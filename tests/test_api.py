@@ -245,3 +245,11 @@ def test_parts_fitted_apart_keep_their_own_divergence_flags_in_idata():
     # the last fit: a close call continues the chains, so later fits hold more draws
     fit = [f for f in result.fits if getattr(f, "diverging_parts", None) is not None][-1]
     np.testing.assert_array_equal(flags.values, fit.diverging_parts)
+    # one part alone: its own draws, its own flags and only its lots
+    one = result.idata_of("B")
+    assert list(one.posterior["part"].values) == ["B"]
+    np.testing.assert_array_equal(one.posterior["mu"].values[..., 0],
+                                  idata.posterior["mu"].sel(part="B").values)
+    assert one.observed_data["defectives"].values.tolist() == [2, 0, 1, 3]
+    with pytest.raises(KeyError, match="no part"):
+        result.idata_of("C")

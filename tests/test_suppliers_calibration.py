@@ -31,10 +31,13 @@ def drift_rates(drifting: int, steady: int) -> np.ndarray:
     return rates
 
 
-def _calls(rates, seed):
+def _calls(rates, seed, *, gate_must_pass: bool = True):
+    """The latest-period calls by supplier (S00, S01, ...). With ``gate_must_pass=False`` a
+    failed gate is returned as every call "not-converged" (no verdict: counted as not found
+    and as no false alarm by the study)."""
     table = simulate(rates, lots=LOTS, n=N, kappa=KAPPA, seed=seed)
     result = assess_suppliers(table, 0.01, period="quarter", seed=seed)
-    assert result.converged, result.diagnostics["reasons"]
+    assert result.converged or not gate_must_pass, result.diagnostics["reasons"]
     s = result.suppliers.set_index("supplier").sort_index()
     return s["latest_call"].tolist(), s
 
@@ -70,7 +73,7 @@ def test_drifting_supplier_is_found_study():
     histories = 40
     found = false = 0
     for h in range(histories):
-        calls, _ = _calls(drift_rates(1, 5), seed=1000 + h)
+        calls, _ = _calls(drift_rates(1, 5), seed=1000 + h, gate_must_pass=False)
         found += calls[0] == "worse"
         false += sum(c == "worse" for c in calls[1:])
     print(f"\nstudy: found {found}/{histories}, false alarms {false}/{5 * histories}")

@@ -124,9 +124,10 @@ def _fits(where: dict) -> list[tuple]:
 
 def _continue_close(where: dict, close: list[str]) -> list[str]:
     """Continue the chains behind the groups ``close`` (``where`` updated in place); returns
-    the labels whose draws changed. Groups sampled as their own problems continue alone
-    (:func:`qualbayes.models.lot_history.more_draws` with ``parts``); a joint fit is
-    continued whole, so every group it holds changes."""
+    the labels whose draws changed. A fit holding a close group is continued for every group
+    it holds (parts sampled as their own problems each from their own state, through
+    :func:`qualbayes.models.lot_history.more_draws` with ``parts``), so every group keeps
+    the same number of draws."""
     from qualbayes.models import lot_history  # noqa: PLC0415 - jax path
     from qualbayes.models.lot_history_parts import is_part_fit  # noqa: PLC0415
 
@@ -137,9 +138,13 @@ def _continue_close(where: dict, close: list[str]) -> list[str]:
         if not mine:
             continue
         if is_part_fit(f):
-            new = lot_history.more_draws(f, parts=[where[label][1] for label in mine])
-            where.update({label: (new, k) for k, label in enumerate(mine)})
-            changed += mine
+            # every part of the fit continues (each from its own state), not only the close
+            # ones: the parts then keep equal numbers of draws, so ``LotResult.idata`` stays
+            # one rectangular InferenceData (continuing only the close parts made it raise
+            # DrawCountError in the documented walk-through)
+            new = lot_history.more_draws(f, parts=[where[label][1] for label in labels])
+            where.update({label: (new, k) for k, label in enumerate(labels)})
+            changed += labels
         else:
             new = lot_history.more_draws(f)
             where.update({label: (new, where[label][1]) for label in labels})

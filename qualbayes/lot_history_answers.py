@@ -94,12 +94,9 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     notes.append(cross_check.summary_line(checks))
     if runs:
         per_chain = fit.settings.num_samples
-        continued = sum(f is not fit for f, _ in where.values())
         whose, times = "", f"{runs} time(s)"
         if len(_fits(where)) > 1:
-            whose = (f" of the {continued} group(s) with a close call (each group its own "
-                     "sampler; the other groups keep their draws)")
-            times = f"up to {runs} time(s)"
+            whose, times = " of the fits holding a close call", f"up to {runs} time(s)"
         notes.append(f"close calls: the adapted chains{whose} were continued {times} by "
                      f"{per_chain:,} draws per chain, without a new warmup (cap "
                      f"{MAX_EXTRA_RUNS}), to settle P within its Monte Carlo error; the gate "

@@ -126,26 +126,17 @@ def _continue_close(where: dict, close: list[str]) -> list[str]:
     :func:`qualbayes.models.lot_history.more_draws` with ``parts``), so every group keeps
     the same number of draws."""
     from qualbayes.models import lot_history  # noqa: PLC0415 - jax path
-    from qualbayes.models.lot_history_parts import is_part_fit  # noqa: PLC0415
 
     changed = []
     wanted = set(close)
     for f, labels in _fits(where):
-        mine = [label for label in labels if label in wanted]
-        if not mine:
+        if wanted.isdisjoint(labels):
             continue
-        if is_part_fit(f):
-            # every part of the fit continues (each from its own state), not only the close
-            # ones: the parts then keep equal numbers of draws, so ``LotResult.idata`` stays
-            # one rectangular InferenceData (continuing only the close parts made it raise
-            # DrawCountError in the documented walk-through)
-            new = lot_history.more_draws(f, parts=[where[label][1] for label in labels])
-            where.update({label: (new, k) for k, label in enumerate(labels)})
-            changed += labels
-        else:
-            new = lot_history.more_draws(f)
-            where.update({label: (new, where[label][1]) for label in labels})
-            changed += labels
+        # the whole fit continues (parts sampled apart each from its own state): every group
+        # keeps the same number of draws, so ``LotResult.idata`` stays one InferenceData
+        new = lot_history.more_draws(f)
+        where.update({label: (new, where[label][1]) for label in labels})
+        changed += labels
     return changed
 
 

@@ -34,6 +34,7 @@ import pandas as pd
 from scipy import special
 
 from qualbayes.lot_decisions import LOT, MAX_EXTRA_UNITS, MIN_WEIGHT_ESS, PROCESS, draws_g
+from qualbayes.lot_grid_bounds import mixture_quantiles
 from qualbayes.models import lot_history_grid as grid
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
@@ -277,9 +278,10 @@ def next_lot(g: grid.GridPosterior, spec: float, confidence: float, error: float
     group's quadrature error."""
     p = float(g.weight @ special.betainc(g.a, g.b, spec))
     a, b, w = summary_nodes(g)
+    median, bound = mixture_quantiles((0.5, confidence), a[:, None], b[:, None], w)[:, 0]
     return {
-        "median": float(mixture_ppf(0.5, a[:, None], b[:, None], w)[0]),
-        "upper_bound": float(mixture_ppf(confidence, a[:, None], b[:, None], w)[0]),
+        "median": float(median),
+        "upper_bound": float(bound),
         "mean": float(w @ (a / (a + b))),
         "prob_within_spec": p, "prob_within_spec_mcse": None,
         "prob_within_spec_error": error,

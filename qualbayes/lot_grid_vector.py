@@ -30,6 +30,7 @@ from qualbayes import lot_grid_answers as qa
 from qualbayes import lot_grid_sums as sums
 from qualbayes.lot_decisions import LOT, MIN_WEIGHT_ESS, draws_g
 from qualbayes.lot_decisions import MAX_PMF_TERMS as DRAW_TERMS
+from qualbayes.lot_grid_bounds import mixture_quantiles
 from qualbayes.models import lot_history_grid as grid
 from qualbayes.questions import ACCEPT
 
@@ -211,8 +212,9 @@ def answer_group_vector(g: grid.GridPosterior, x, n, lot_size, basis, spec: floa
     alpha = a[:, None] + rates[:, 0][None, :]
     beta = b[:, None] + (rates[:, 1] - rates[:, 0])[None, :]
     tail = (1.0 - confidence) / 2.0
-    bounds = {q: qa.mixture_ppf(q, alpha, beta, w)[rate_index.ravel()]
-              for q in (tail, 1.0 - tail, confidence)}
+    levels = (tail, 1.0 - tail, confidence)
+    quantiles = mixture_quantiles(levels, alpha, beta, w)
+    bounds = {q: quantiles[i][rate_index.ravel()] for i, q in enumerate(levels)}
     mean = (w @ (alpha / (alpha + beta)))[rate_index.ravel()]
     med, up, q_exact, tables = _remaining(a, b, w, cx, cn, cs, spec, confidence)
     extra = _extra(a, b, w, uniq, dec, close, spec, confidence, tables)

@@ -69,9 +69,24 @@ def _probs(ga, gb, gw, gh, cx, cn, cs, cl, spec):
     return prob, half, exact
 
 
-def _remaining(a, b, w, cx, cn, cs, spec, confidence):
+def _first_counts(start: int, remaining, rate_high) -> int:
+    """The first number of counts summed for the defectives left of one lot size: the
+    smallest of ``start``, 2 ``start``, 4 ``start``, ... (the counts the search doubles
+    through) reaching R p + 2.5 sqrt(R p) + 3 for every lot, p its rate's upper interval
+    end (above the confidence level's quantile), so that the search seldom needs to sum
+    again; the answers do not depend on it."""
+    mean = np.asarray(remaining, float) * np.asarray(rate_high, float)
+    guess = float((mean + 2.5 * np.sqrt(mean) + 3.0).max(initial=0.0))
+    d_max = start
+    while d_max < min(guess, _QUANTILE_COUNTS):
+        d_max *= 2
+    return d_max
+
+
+def _remaining(a, b, w, cx, cn, cs, spec, confidence, rate_high=None):
     """(median, bound, exact) of the defectives not inspected, and log U and log H per lot
-    size for the clean-unit search: {size: (lots, log U, log H)}."""
+    size for the clean-unit search: {size: (lots, log U, log H)}. ``rate_high``: each
+    lot's upper interval end of its rate, where to start summing (:func:`_first_counts`)."""
     k = len(cx)
     med, up = np.full(k, -1), np.full(k, -1)
     exact = np.ones(k, bool)
@@ -84,6 +99,8 @@ def _remaining(a, b, w, cx, cn, cs, spec, confidence):
         sel = np.flatnonzero(cs == size)
         rem = int(size) - cn[sel].astype(int)
         d_max = max(64, int(np.floor(spec * size - cx[sel] + 1e-9).max()))
+        if rate_high is not None:
+            d_max = _first_counts(d_max, rem, rate_high[sel])
         while True:
             got = sums.log_u(a, b, logw, cx[sel], cn[sel], int(size), d_max, lh[:, sel])
             if got is None:
@@ -216,7 +233,8 @@ def answer_group_vector(g: grid.GridPosterior, x, n, lot_size, basis, spec: floa
     quantiles = mixture_quantiles(levels, alpha, beta, w)
     bounds = {q: quantiles[i][rate_index.ravel()] for i, q in enumerate(levels)}
     mean = (w @ (alpha / (alpha + beta)))[rate_index.ravel()]
-    med, up, q_exact, tables = _remaining(a, b, w, cx, cn, cs, spec, confidence)
+    med, up, q_exact, tables = _remaining(a, b, w, cx, cn, cs, spec, confidence,
+                                          quantiles[1][rate_index.ravel()])
     extra = _extra(a, b, w, uniq, dec, close, spec, confidence, tables)
     known = cs >= 0
     exact &= q_exact

@@ -228,3 +228,50 @@ def test_quadrature_command_imports_no_sampler():
 
     assert heavy_imports(["lots", str(EXAMPLES / "incoming_inspection.xlsx"), "--spec", "1%",
                           "--prior", "history", "--engine", "quadrature"]) == []
+
+
+def _zoomed(g, terms, size=200):
+    """A finer grid of the same posterior on the box where ``g`` has its mass (half the
+    box again on each side), every point kept: the reference for a large group, whose
+    command grid (the box of the coarse pass) holds only a few points with weight."""
+    u = special.logit(g.mu)
+    v = np.log(1.0 / np.sqrt(g.kappa * g.mu * (1.0 - g.mu)) - spread_floor(g.mu))
+    on = g.weight > 1e-14
+    axes = []
+    for c in (u, v):
+        lo, hi = c[on].min(), c[on].max()
+        axes.append(np.linspace(lo - 0.5 * (hi - lo), hi + 0.5 * (hi - lo), size))
+    uu, vv = np.meshgrid(*axes, indexing="ij")
+    mu, kappa, lp = grid._prior_terms(uu, vv, HistoryPrior())
+    lp = lp + grid.term_loglik(mu * kappa, (1.0 - mu) * kappa, *terms)
+    return grid._weights(lp, mu, kappa, size)
+
+
+@pytest.mark.parametrize("lots", [3_000, 200_000])
+def test_stated_error_of_a_large_group_bounds_a_zoomed_finer_grid(lots, monkeypatch):
+    """A large group (a Beta(3, 297) process; 200,000 lots: 68 grid points with weight and
+    a stated error near 0.0065 at a 1% limit): the stated error of every P, and of the next
+    lot's, covers the difference from a 200 x 200 grid zoomed on the posterior's mass plus
+    that grid's own stated error (it keeps every point: no mass left out)."""
+    rng = np.random.default_rng(1)
+    n = rng.choice([50, 80, 125, 200, 315], lots)
+    x = rng.binomial(n, rng.beta(3, 297, lots))
+    t = grid.group_terms(x, n)
+    shown = 300  # the answers of the first lots (each answer uses the whole group's grid)
+    size = pd.array(rng.choice([800, 2000, 3200, 5000], shown), "Int64")
+    basis = np.where(np.arange(shown) < shown // 5, "process", "lot").astype(object)
+    fine = grid.posterior_grids([t])[0]
+    zoom = _zoomed(fine, t)
+    assert zoom.edge_mass < 1e-12  # the zoomed box holds the mass
+    for spec in (0.005, 0.01, 0.02):
+        got = qv.answer_group_vector(fine, x[:shown], n[:shown], size, basis, spec, 0.95)
+        with monkeypatch.context() as m:
+            m.setattr(qa, "PRUNE", 0.0)
+            ref = qv.answer_group_vector(zoom, x[:shown], n[:shown], size, basis, spec, 0.95)
+        err, ref_err = got["prob_within_spec_error"], ref["prob_within_spec_error"][0]
+        assert ref_err < 0.01 * err[0]  # the reference is much finer
+        diff = np.abs(got["prob_within_spec"] - ref["prob_within_spec"])
+        assert (diff + ref_err <= err).all(), (spec, diff.max(), err[0])
+        nxt = abs(qa.next_lot(fine, spec, 0.95, err[0])["prob_within_spec"]
+                  - qa.next_lot(zoom, spec, 0.95, 0.0)["prob_within_spec"])
+        assert nxt + ref_err <= err[0]

@@ -59,42 +59,51 @@ def log_choose(r, d) -> np.ndarray:
 
 def log_beta_path(a, b, total: int, t0: int, t1: int) -> np.ndarray:
     """log B(a + T, b + total - T) for T = t0..t1 (nodes x (t1 - t0 + 1)): one log-beta
-    per node, then cumulative logarithms of the ratios."""
-    first = special.betaln(a + t0, b + (total - t0))[:, None]
-    if t1 <= t0:
-        return first
-    t = np.arange(t0, t1, dtype=float)[None, :]
-    steps = np.log((a[:, None] + t) / (b[:, None] + (total - t - 1.0)))
-    return np.concatenate([first, first + np.cumsum(steps, axis=1)], axis=1)
+    per node, then cumulative logarithms of the ratios (a view of :func:`_path_rows`)."""
+    return _path_rows(a, b, total, t0, t1).T
+
+
+def _path_rows(a, b, total: int, t0: int, t1: int) -> np.ndarray:
+    """:func:`log_beta_path` with T along the rows ((t1 - t0 + 1) x nodes): the running
+    sums then add whole rows of nodes (the same additions in the same order)."""
+    first = special.betaln(a + t0, b + (total - t0))
+    out = np.empty((max(t1 - t0, 0) + 1, a.size))
+    out[0] = first
+    if t1 > t0:
+        t = np.arange(t0, t1, dtype=float)[:, None]
+        np.cumsum(np.log((a[None, :] + t) / (b[None, :] + (total - t - 1.0))), axis=0,
+                  out=out[1:])
+        out[1:] += first
+    return out
 
 
 def _ratio_products(a, b, total: int, t0: int, t1: int, ref: int):
     """(log B(a + t0, b + total - t0) per node, products over t0 <= t < T of the ratio
-    ((a + t)/(b + total - t - 1)) / (the same at node ``ref``), T = t0..t1): the log-betas
-    along T relative to the reference node, without a logarithm per element."""
+    ((a + t)/(b + total - t - 1)) / (the same at node ``ref``), T = t0..t1, as rows (T x
+    nodes)): the log-betas along T relative to the reference node, without a logarithm per
+    element."""
     first = special.betaln(a + t0, b + (total - t0))
-    if t1 <= t0:
-        return first, np.ones((a.size, 1))
-    t = np.arange(t0, t1, dtype=float)[None, :]
-    ratio = (a[:, None] + t) / (b[:, None] + (total - t - 1.0))
-    ratio /= ratio[ref]
-    with np.errstate(over="ignore"):  # an overflow is seen by the caller (not finite)
-        prod = np.cumprod(ratio, axis=1)
-    return first, np.concatenate([np.ones((a.size, 1)), prod], axis=1)
+    prod = np.ones((max(t1 - t0, 0) + 1, a.size))
+    if t1 > t0:
+        t = np.arange(t0, t1, dtype=float)[:, None]
+        ratio = (a[None, :] + t) / (b[None, :] + (total - t - 1.0))
+        ratio /= ratio[:, ref:ref + 1]
+        with np.errstate(over="ignore"):  # an overflow is seen by the caller (not finite)
+            np.cumprod(ratio, axis=0, out=prod[1:])
+    return first, prod
 
 
 def log_h(a, b, x, n) -> np.ndarray:
-    """log B(a_i + x_c, b_i + n_c - x_c) (nodes x lots): one log-beta per node and distinct
-    n, then the path over x."""
+    """log B(a_i + x_c, b_i + n_c - x_c) (nodes x lots, a view of a lots x nodes array):
+    one log-beta per node and distinct n, then the path over x."""
     x = np.asarray(x, int)
     n = np.asarray(n, int)
-    lh = np.empty((a.size, len(x)))
+    rows = np.empty((len(x), a.size))
     for nv in np.unique(n):
-        sel = n == nv
+        sel = np.flatnonzero(n == nv)
         xs = x[sel]
-        path = log_beta_path(a, b, int(nv), int(xs.min()), int(xs.max()))
-        lh[:, sel] = path[:, xs - xs.min()]
-    return lh
+        rows[sel] = _path_rows(a, b, int(nv), int(xs.min()), int(xs.max()))[xs - xs.min()]
+    return rows.T
 
 
 def log_u(a, b, logw, x, n, size: int, d_max: int, lh=None):
@@ -108,13 +117,13 @@ def log_u(a, b, logw, x, n, size: int, d_max: int, lh=None):
     ref = int(np.argmax(logw[0]))
     t0, t1 = int(x.min()), int(min(size, int(x.max()) + d_max))
     lg0, prod = _ratio_products(a, b, size, t0, t1, ref)
-    top = prod.max(axis=1)
+    top = prod.max(axis=0)
     if not (np.isfinite(top).all() and top.max() < 1e300 and prod.min() >= 0.0):
         return None
-    e = prod / top[:, None]  # G_i(T) / G_ref(T), scaled by node to at most 1
+    e = prod / top[None, :]  # G_i(T) / G_ref(T), scaled by node to at most 1 (T x nodes)
     lh = log_h(a, b, x, n) if lh is None else lh
     # log G_ref(T): the reference node's own path
-    lg_ref = log_beta_path(a[ref:ref + 1], b[ref:ref + 1], size, t0, t1)[0]
+    lg_ref = _path_rows(a[ref:ref + 1], b[ref:ref + 1], size, t0, t1)[:, 0]
     rows = x[:, None] + np.arange(d_max + 1)[None, :] - t0
     inside = rows <= t1 - t0
     rows = np.minimum(rows, t1 - t0)
@@ -126,7 +135,7 @@ def log_u(a, b, logw, x, n, size: int, d_max: int, lh=None):
         expo = base + lw[:, None]
         if np.nanmax(expo) > GUARD:
             return None
-        s = e.T @ np.exp(expo)
+        s = e @ np.exp(expo)
         with np.errstate(divide="ignore"):
             out[k] = np.where(inside, np.log(s[rows, cols]) + scale, -np.inf)
     return out, lh

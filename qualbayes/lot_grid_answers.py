@@ -306,11 +306,11 @@ def threads() -> int:
 
 
 def _answer_block(labels, groups, x_all, n_all, sizes, basis, spec, confidence, prior,
-                  size) -> dict[str, dict]:
+                  size, coarse=None) -> dict[str, dict]:
     from qualbayes.lot_grid_vector import answer_group_vector, outlier_pvalues  # noqa: PLC0415
 
     grids = grid.posterior_grids([grid.group_terms(x_all[groups[k]], n_all[groups[k]])
-                                  for k in labels], prior, size=size)
+                                  for k in labels], prior, size=size, coarse=coarse)
     out = {}
     for label, g in zip(labels, grids, strict=True):
         idx = groups[label]
@@ -343,9 +343,11 @@ def answer_groups(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: floa
     blocks = [labels[i:i + BLOCK] for i in range(0, len(labels), BLOCK)]
     workers = min(len(blocks), threads() if workers is None else int(workers))
 
+    coarse: dict = {}  # each distinct (x, n)'s coarse row, shared by the blocks
+
     def work(block):
         return _answer_block(block, groups, x_all, n_all, sizes, basis, spec, confidence,
-                             prior, size)
+                             prior, size, coarse)
 
     out: dict[str, dict] = {}
     with task("quadrature answers", total=len(labels)) as t:

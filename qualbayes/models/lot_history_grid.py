@@ -183,14 +183,17 @@ def group_terms(x, n, w=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return _terms(x, n, w)
 
 
-def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64) -> list[GridPosterior]:
+def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64,
+                    coarse: dict | None = None) -> list[GridPosterior]:
     r"""The posterior grids of many groups at once; ``terms``: one (x, n, count) triple of
     arrays per group (:func:`group_terms`). The coarse pass shares its box among the groups:
-    each distinct (x, n) of a chunk of groups is evaluated once on it and each group adds
-    its own terms (the same arithmetic, in the same order, whatever the chunk: a group's
-    answer does not depend on the others). The fine pass evaluates each group's terms with
-    :func:`term_loglik`. Memory: about ``chunk`` x 8,100 x (distinct terms of the chunk)
-    floats for the coarse pass, and a few ``size`` x ``size`` arrays per group.
+    each distinct (x, n) is evaluated once on it and each group adds its own terms (the
+    same arithmetic, in the same order, whatever the chunk: a group's answer does not
+    depend on the others). ``coarse``: a dict kept by the caller across calls (and
+    threads) holding each (x, n)'s coarse row, so that batches of groups evaluate each
+    distinct (x, n) once in all (the rows do not depend on the prior). The fine pass
+    evaluates each group's terms with :func:`term_loglik`. Memory: 8,100 floats per
+    distinct (x, n) for the coarse pass, and a few ``size`` x ``size`` arrays per group.
     """
     prior = prior or HistoryPrior()
     u = np.linspace(*_BOX_U, _COARSE)
@@ -201,15 +204,15 @@ def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64) -> list
     out: list[GridPosterior] = []
     for start in range(0, len(terms), chunk):
         block = terms[start:start + chunk]
-        keys = sorted({(float(x), float(n)) for xs, ns, _ in block
-                       for x, n in zip(xs, ns, strict=True)})
-        where = {k: i for i, k in enumerate(keys)}
-        table = np.stack([term_loglik(a_c, b_c, [x], [n], [1.0]) for x, n in keys]) if keys \
-            else np.zeros((0, *uu.shape))
+        table = {} if coarse is None else coarse
+        for xs, ns, _ in block:
+            for key in zip(map(float, xs), map(float, ns), strict=True):
+                if key not in table:
+                    table[key] = term_loglik(a_c, b_c, [key[0]], [key[1]], [1.0])
         for xs, ns, ws in block:
             lp = lp_prior.copy()
             for x, n, w in zip(xs, ns, ws, strict=True):
-                lp = lp + w * table[where[(float(x), float(n))]]
+                lp = lp + w * table[(float(x), float(n))]
             (u0, u1), (v0, v1) = _fine_box(lp, u, v)
             uf, vf = np.meshgrid(np.linspace(u0, u1, size), np.linspace(v0, v1, size),
                                  indexing="ij")

@@ -71,10 +71,19 @@ def _path_rows(a, b, total: int, t0: int, t1: int) -> np.ndarray:
     out[0] = first
     if t1 > t0:
         t = np.arange(t0, t1, dtype=float)[:, None]
-        np.cumsum(np.log((a[None, :] + t) / (b[None, :] + (total - t - 1.0))), axis=0,
-                  out=out[1:])
+        _running(np.log((a[None, :] + t) / (b[None, :] + (total - t - 1.0))), out[1:],
+                 np.add)
         out[1:] += first
     return out
+
+
+def _running(rows, out, op) -> None:
+    """The running sum or product of ``rows`` (op np.add or np.multiply) into ``out``, row
+    by row: the same operations in the same order as np.cumsum / np.cumprod along axis 0,
+    each a whole row of nodes at once (numpy accumulates along axis 0 node by node)."""
+    out[0] = rows[0]
+    for j in range(1, rows.shape[0]):
+        op(out[j - 1], rows[j], out=out[j])
 
 
 def _ratio_products(a, b, total: int, t0: int, t1: int, ref: int):
@@ -85,11 +94,12 @@ def _ratio_products(a, b, total: int, t0: int, t1: int, ref: int):
     first = special.betaln(a + t0, b + (total - t0))
     prod = np.ones((max(t1 - t0, 0) + 1, a.size))
     if t1 > t0:
-        t = np.arange(t0, t1, dtype=float)[:, None]
-        ratio = (a[None, :] + t) / (b[None, :] + (total - t - 1.0))
-        ratio /= ratio[:, ref:ref + 1]
+        t = np.arange(t0, t1, dtype=float)
+        ratio = a[None, :] + t[:, None]
+        np.divide(ratio, b[None, :] + (total - t[:, None] - 1.0), out=ratio)
+        ratio /= ((a[ref] + t) / (b[ref] + (total - t - 1.0)))[:, None]  # its own column
         with np.errstate(over="ignore"):  # an overflow is seen by the caller (not finite)
-            np.cumprod(ratio, axis=0, out=prod[1:])
+            _running(ratio, prod[1:], np.multiply)
     return first, prod
 
 

@@ -49,9 +49,17 @@ def test_many_groups_at_once_equal_one_at_a_time_whatever_the_chunk():
     kept = [g for t in (terms[2:], terms[:2]) for g in grid.posterior_grids(t, coarse=coarse)]
     kept = kept[2:] + kept[:2]
     assert len(coarse) == len({k for xs, ns, _ in terms for k in zip(xs, ns, strict=True)})
-    for g1, g2, g3, (xs, ns, ws) in zip(one, many, kept, terms, strict=True):
+    full = grid.COARSE_KEPT  # a full keep: the other rows evaluated per chunk, the same grids
+    grid.COARSE_KEPT, small = 2, {}
+    try:
+        capped = grid.posterior_grids(terms, coarse=small)
+    finally:
+        grid.COARSE_KEPT = full
+    assert len(small) == 2
+    for g1, g2, g3, g4, (xs, ns, ws) in zip(one, many, kept, capped, terms, strict=True):
         assert np.array_equal(g1.weight, g2.weight) and np.array_equal(g1.mu, g2.mu)
         assert np.array_equal(g1.weight, g3.weight) and np.array_equal(g1.mu, g3.mu)
+        assert np.array_equal(g1.weight, g4.weight) and np.array_equal(g1.mu, g4.mu)
         # the same posterior as the one-group grid written with log-beta functions
         ref = grid.posterior_grid(xs, ns, ws)
         assert np.allclose(grid.prob_within(g1, xs, ns, 0.01),

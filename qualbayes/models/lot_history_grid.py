@@ -183,6 +183,11 @@ def group_terms(x, n, w=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return _terms(x, n, w)
 
 
+#: coarse rows kept across calls at most (8,100 floats each: about 33 MB); further distinct
+#: (x, n) are evaluated per chunk as without a keep
+COARSE_KEPT = 512
+
+
 def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64,
                     coarse: dict | None = None) -> list[GridPosterior]:
     r"""The posterior grids of many groups at once; ``terms``: one (x, n, count) triple of
@@ -191,9 +196,10 @@ def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64,
     same arithmetic, in the same order, whatever the chunk: a group's answer does not
     depend on the others). ``coarse``: a dict kept by the caller across calls (and
     threads) holding each (x, n)'s coarse row, so that batches of groups evaluate each
-    distinct (x, n) once in all (the rows do not depend on the prior). The fine pass
-    evaluates each group's terms with :func:`term_loglik`. Memory: 8,100 floats per
-    distinct (x, n) for the coarse pass, and a few ``size`` x ``size`` arrays per group.
+    distinct (x, n) once in all (the rows do not depend on the prior; at most
+    ``COARSE_KEPT`` rows are kept). The fine pass evaluates each group's terms with
+    :func:`term_loglik`. Memory: 8,100 floats per distinct (x, n) of a chunk and per kept
+    row for the coarse pass, and a few ``size`` x ``size`` arrays per group.
     """
     prior = prior or HistoryPrior()
     u = np.linspace(*_BOX_U, _COARSE)
@@ -204,11 +210,18 @@ def posterior_grids(terms, prior=None, size: int = 160, chunk: int = 64,
     out: list[GridPosterior] = []
     for start in range(0, len(terms), chunk):
         block = terms[start:start + chunk]
-        table = {} if coarse is None else coarse
+        kept = {} if coarse is None else coarse
+        table = {}  # this chunk's rows: the kept ones, and the others while the keep is full
         for xs, ns, _ in block:
             for key in zip(map(float, xs), map(float, ns), strict=True):
-                if key not in table:
-                    table[key] = term_loglik(a_c, b_c, [key[0]], [key[1]], [1.0])
+                if key in table:
+                    continue
+                row = kept.get(key)
+                if row is None:
+                    row = term_loglik(a_c, b_c, [key[0]], [key[1]], [1.0])
+                    if coarse is not None and len(coarse) < COARSE_KEPT:
+                        coarse[key] = row
+                table[key] = row
         for xs, ns, ws in block:
             lp = lp_prior.copy()
             for x, n, w in zip(xs, ns, ws, strict=True):

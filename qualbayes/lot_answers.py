@@ -103,6 +103,7 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
         keep = np.linspace(0, np.size(a0) - 1, SUMMARY_DRAWS).round().astype(int)
         a0, b0 = np.asarray(a0)[keep], np.asarray(b0)[keep]
     rate: dict[tuple, tuple] = {}  # (x, n) -> the rate's summaries (equal for any lot size)
+    ess: dict[tuple, dict] = {}  # (x, n) -> the clean-unit weights' ESS by count
     for j, (x, n, rem, size, basis) in enumerate(combos):
         cols["decision_basis"][j] = basis
         if not full:
@@ -119,7 +120,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
             cols["extra_clean_units_to_accept"][j] = 0
         elif d in (UNDECIDED, REJECT) and not cols["too_close"][j]:
             cols["extra_clean_units_to_accept"][j] = extra_clean_units(
-                a0, b0, x, n, rem, size, spec, confidence, basis)
+                a0, b0, x, n, rem, size, spec, confidence, basis,
+                ess_cache=ess.setdefault((x, n), {}))
         if rem is not None:
             cols["remaining_units"][j] = rem
             (med, med_exact), (up, up_exact) = mixtures.betabinom_quantiles(

@@ -230,7 +230,7 @@ def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
 
     def h(t: float) -> float:
         limit = min(1.0, (k_star + 0.5) / max(remaining - t, 1e-300))
-        return float(special.betainc(a, b + t, limit)) - confidence
+        return _gap(float(special.betainc(a, b + t, limit)), confidence)
 
     if not np.isfinite(h(0.0)) or h(0.0) >= 0:
         start = 0
@@ -240,7 +240,10 @@ def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
         from scipy import optimize  # noqa: PLC0415
 
         start = math.ceil(optimize.brentq(h, 0.0, float(top), xtol=0.5))
-    guess = smallest_near(one, start, remaining, true_at=enough)
+    step = max(1, start // 50)
+    guess = smallest_near(one, start, remaining, true_at=enough,
+                          slope=(h(start + step) - h(start)) / step if start + step <= top
+                          else None)
     if guess is None:
         return top, enough, None
     step = max(1, guess // 50)

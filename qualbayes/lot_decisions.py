@@ -118,13 +118,15 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
     the units not inspected, and m clean units leave R - m uninspected.
 
     The search starts from the moment-matched Beta's answer (:func:`_first_guess`) and
-    steps by secant (:func:`qualbayes.search_near.smallest_near`), so a few sums over the
-    draws find m; the answer is that of the doubling-and-bisection search
-    (:func:`qualbayes.search.smallest_int` from 0), including its rule that a weight ESS
-    below MIN_WEIGHT_ESS at any count that search tests gives None (those counts are
-    checked: :func:`qualbayes.search_near.doubling_path`). ``ess_cache``: the weights' ESS
-    by m, shared between calls of the same (x, n) (the weights do not depend on the lot
-    size).
+    steps by secant on the logit scale (:func:`qualbayes.search_near.smallest_near`), so
+    4 or 5 sums over the draws find m where the doubling-and-bisection search from 0
+    (:func:`qualbayes.search.smallest_int`, used before) took about 20. Both assume P
+    increases with m, and under that assumption the answer is the same, including that
+    search's rule that a weight ESS below MIN_WEIGHT_ESS at any count it tests gives None:
+    those counts are known from the answer (:func:`qualbayes.search_near.doubling_path`)
+    and checked (tests/test_lot_answers.py compares both on many cases). ``ess_cache``: the
+    weights' ESS by m, shared between calls of the same (x, n) (the weights do not depend
+    on the lot size).
     """
     alpha, beta = a0 + x, b0 + (n - x)
     lot = basis == LOT and remaining is not None
@@ -162,8 +164,8 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
         start, true_at, slope = _first_guess(alpha, beta, x, remaining if lot else None,
                                              lot_size, spec, confidence, cap)
         found = smallest_near(value, start, cap, true_at=true_at, slope=slope)
-        if not single and any(weight_ess(m) < MIN_WEIGHT_ESS
-                              for m in doubling_path(found, cap)):
+        if found is not None and not single and any(
+                weight_ess(m) < MIN_WEIGHT_ESS for m in doubling_path(found, cap)):
             return None
     except _Degenerate:
         return None

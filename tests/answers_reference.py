@@ -47,3 +47,53 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
         return smallest_int(ok, 0, remaining if lot else MAX_EXTRA_UNITS)
     except _Degenerate:
         return None
+
+
+def mixture_ppf(q: float, alpha: np.ndarray, beta: np.ndarray) -> float:
+    """The earlier ``mixtures.ppf`` (Newton from the moment-matched Beta's quantile, every
+    step's CDF evaluated), verbatim."""
+    from qualbayes.models.mixtures import _bracket_ppf  # noqa: PLC0415
+
+    alpha = np.asarray(alpha, float)
+    beta = np.asarray(beta, float)
+    if alpha.size == 1:
+        return float(special.betaincinv(alpha, beta, q).ravel()[0])
+    m = alpha / (alpha + beta)
+    mean = float(m.mean())
+    var = float(np.mean(m * (1 - m) / (alpha + beta + 1)) + m.var())
+    t = None
+    if 0 < mean < 1 and 0 < var < mean * (1 - mean):
+        common = mean * (1 - mean) / var - 1
+        start = float(special.betaincinv(mean * common, (1 - mean) * common, q))
+        if 1e-300 < start < 1 - 1e-16:
+            t = _newton(q, alpha, beta, float(special.logit(start)))
+    return t if t is not None else _bracket_ppf(q, alpha, beta)
+
+
+def _newton(q, alpha, beta, t, steps: int = 40):
+    from qualbayes.models.mixtures import cdf  # noqa: PLC0415
+
+    lo, hi = -np.inf, np.inf
+    log_norm = special.betaln(alpha, beta)
+    for _ in range(steps):
+        p = float(special.expit(t))
+        f = cdf(p, alpha, beta) - q
+        if abs(f) <= 1e-11:
+            return p
+        if f > 0:
+            hi = t
+        else:
+            lo = t
+        log_pdf = alpha * np.log(p) + beta * np.log1p(-p) - log_norm
+        slope = float(np.mean(np.exp(log_pdf)))
+        step = f / slope if slope > 0 else np.inf
+        nxt = t - step
+        if not (lo < nxt < hi) or not np.isfinite(nxt):
+            if not (np.isfinite(lo) and np.isfinite(hi)):
+                nxt = t - np.sign(f) * 2.0
+            else:
+                nxt = 0.5 * (lo + hi)
+        if abs(nxt - t) < 1e-13 * max(1.0, abs(t)):
+            return float(special.expit(nxt))
+        t = nxt
+    return None

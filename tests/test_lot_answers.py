@@ -210,3 +210,68 @@ def test_answer_lots_equal_with_the_old_clean_unit_search(monkeypatch):
     assert counts.notna().sum() > 20  # the comparison covers real counts
     for column, values in old.items():
         assert pd.Series(list(values)).equals(pd.Series(list(new[column]))), column
+
+
+# ------------------------------------------------------------------ mixture quantiles
+
+def _mixtures(rng, count):
+    """(alpha, beta) draws of lot-rate mixtures: narrow and wide, tiny and large rates,
+    a million clean units."""
+    out = []
+    for i in range(count):
+        d = int(rng.choice([2, 50, 1000]))
+        mu = rng.beta(*([2, 200] if i % 3 else [5, 5]), size=d)
+        kappa = np.exp(rng.normal(np.log(rng.choice([30, 300, 3000])), rng.uniform(0.1, 1.5), d))
+        x = int(rng.integers(0, 12))
+        n = float(rng.choice([50, 315, 10**6])) + x
+        out.append((mu * kappa + x, (1 - mu) * kappa + n - x))
+    return out
+
+
+def test_mixture_quantiles_equal_the_earlier_newton_bit_for_bit(monkeypatch):
+    from answers_reference import mixture_ppf
+
+    from qualbayes.models import mixtures
+
+    real, skipped = mixtures._newton_lands, []
+
+    def counted(*args):
+        landed = real(*args)
+        skipped.append(landed)
+        return landed
+
+    monkeypatch.setattr(mixtures, "_newton_lands", counted)
+    rng = np.random.default_rng(12)
+    for alpha, beta in _mixtures(rng, 60):
+        for q in (0.025, 0.5, 0.9, 0.95, 0.975, 0.999):
+            assert mixtures.ppf(q, alpha, beta) == mixture_ppf(q, alpha, beta), q
+    assert sum(skipped) > 50  # the skipped evaluation occurred, and changed no quantile
+
+
+def test_skipped_newton_check_lands_within_the_stopping_tolerance():
+    # the bound of _newton_lands against the mixture CDF itself at every Newton step it
+    # certifies; reference: the mixture CDF and density as means of scipy.stats.beta's
+    from qualbayes.models import mixtures
+
+    rng = np.random.default_rng(13)
+    certified = refused = 0
+    for alpha, beta in _mixtures(rng, 40):
+        comp = stats.beta(alpha, beta)
+        for q in (0.025, 0.5, 0.95, 0.975):
+            p0 = mixtures.ppf(q, alpha, beta)
+            if not 1e-300 < p0 < 1 - 1e-12:
+                continue
+            t = float(np.log(p0) - np.log1p(-p0)) + float(rng.uniform(-1e-2, 1e-2))
+            for _ in range(4):
+                p = float(1 / (1 + np.exp(-t)))
+                f = float(np.mean(comp.cdf(p))) - q
+                terms = comp.pdf(p) * p * (1 - p)  # each draw's term of dF/dt
+                nxt = t - f / float(np.mean(terms))
+                p_next = float(1 / (1 + np.exp(-nxt)))
+                if mixtures._newton_lands(f, nxt - t, p, p_next, alpha, beta, terms):
+                    certified += 1
+                    assert abs(float(np.mean(comp.cdf(p_next))) - q) <= 1e-11
+                else:
+                    refused += 1
+                t = nxt
+    assert certified > 20 and refused > 20, (certified, refused)

@@ -97,3 +97,16 @@ def _newton(q, alpha, beta, t, steps: int = 40):
             return float(special.expit(nxt))
         t = nxt
     return None
+
+
+def log_pmf_block(k0: int, k1: int, remaining: int, a: np.ndarray, b: np.ndarray,
+                  log_first: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The earlier ``mixtures._log_pmf_block``, verbatim."""
+    k = np.arange(k0, k1, dtype=float)[None, :]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        steps = (np.log((remaining - k) / (k + 1.0))
+                 + np.log((a[:, None] + k) / (b[:, None] + remaining - k - 1.0)))
+    steps = np.where(k < remaining, steps, -np.inf)
+    cum = log_first[:, None] + np.cumsum(steps, axis=1)
+    logs = np.concatenate([log_first[:, None], cum[:, :-1]], axis=1)
+    return logs, cum[:, -1]

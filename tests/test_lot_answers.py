@@ -275,3 +275,27 @@ def test_skipped_newton_check_lands_within_the_stopping_tolerance():
                     refused += 1
                 t = nxt
     assert certified > 20 and refused > 20, (certified, refused)
+
+
+def test_pmf_blocks_equal_the_earlier_sum_in_logs_bit_for_bit():
+    from answers_reference import log_pmf_block
+    from scipy import special
+
+    from qualbayes.models import mixtures
+
+    rng = np.random.default_rng(14)
+    for alpha, beta in _mixtures(rng, 30):
+        for remaining in (1, 9, 675, 4875):
+            first = special.betaln(alpha, beta + remaining) - special.betaln(alpha, beta)
+            for k0, k1 in ((0, 1), (0, 40), (5, 300), (remaining - 3, remaining + 4)):
+                if k0 < 0 or k1 <= k0:
+                    continue
+                new = mixtures._log_pmf_block(k0, k1, remaining, alpha, beta, first)
+                old = log_pmf_block(k0, k1, remaining, alpha, beta, first)
+                assert np.array_equal(new[0], old[0]) and np.array_equal(new[1], old[1])
+    # the whole quantile against scipy.stats.betabinom (reference library)
+    a, b = rng.uniform(1, 5, 300), rng.uniform(100, 900, 300)
+    for q in (0.5, 0.95):
+        k, exact = mixtures.betabinom_quantile(q, 1875, a, b)
+        cdf = np.mean(stats.betabinom.cdf([k, k - 1], 1875, a[:, None], b[:, None]), axis=0)
+        assert exact and cdf[0] >= q - 1e-12 > cdf[1]

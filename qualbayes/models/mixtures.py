@@ -185,7 +185,7 @@ def betabinom_quantiles(qs, remaining: int, alpha: np.ndarray,
     while k0 <= min(remaining, k_limit):
         k1 = min(k0 + block, remaining + 1)
         logs, log_pmf = _log_pmf_block(k0, k1, remaining, a, b, log_pmf)
-        cum = total + np.cumsum(np.exp(logs).mean(axis=0))
+        cum = total + np.cumsum(np.exp(logs, out=logs).mean(axis=0))
         for i, q in enumerate(qs):
             if i not in out:
                 hit = np.flatnonzero(cum >= q - 1e-12)
@@ -211,15 +211,27 @@ def _log_pmf_block(k0: int, k1: int, remaining: int, a: np.ndarray, b: np.ndarra
                    log_first: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """log pmf at k = k0..k1-1 per draw, shape (draws, k1 - k0), from log pmf(k0) by
     pmf(k + 1) / pmf(k) = (R - k)(alpha + k) / ((k + 1)(beta + R - k - 1)); also log
-    pmf(k1) (the start of the next block; -inf past R)."""
+    pmf(k1) (the start of the next block; -inf past R). The operations of the sum in logs,
+    in order, in one (draws, k1 - k0) buffer (fewer temporaries: the same numbers bit for
+    bit, tested)."""
     k = np.arange(k0, k1, dtype=float)[None, :]
     with np.errstate(divide="ignore", invalid="ignore"):
-        steps = (np.log((remaining - k) / (k + 1.0))
-                 + np.log((a[:, None] + k) / (b[:, None] + remaining - k - 1.0)))
-    steps = np.where(k < remaining, steps, -np.inf)
-    cum = log_first[:, None] + np.cumsum(steps, axis=1)
-    logs = np.concatenate([log_first[:, None], cum[:, :-1]], axis=1)
-    return logs, cum[:, -1]
+        row = np.log((remaining - k) / (k + 1.0))
+        steps = a[:, None] + k
+        below = b[:, None] + remaining - k
+        below -= 1.0
+        np.divide(steps, below, out=steps)
+        np.log(steps, out=steps)
+        steps += row
+    past = k[0] >= remaining
+    if past.any():
+        steps[:, past] = -np.inf
+    np.cumsum(steps, axis=1, out=steps)
+    last = log_first + steps[:, -1]
+    steps[:, 1:] = steps[:, :-1]  # shifted one place: the log pmf before each step
+    steps[:, 0] = 0.0
+    steps += log_first[:, None]
+    return steps, last
 
 
 def betabinom_ppf(q: float, remaining: int, alpha: np.ndarray, beta: np.ndarray) -> int:

@@ -10,8 +10,9 @@ quadrature posterior (``lot_history_grid.posterior_grid``) by weighted resamplin
 sampler runs and jax is not imported. Timed in this process, after one unmeasured warm-up
 call: the pass that decides (``answer_lots(..., full=False)``: P, its MCSE, the decision)
 and the full pass that reuses it (``known=``: bounds, quantiles, clean-unit counts,
-defectives not inspected), as the command runs them. ``--profile`` prints a pyinstrument
-profile of the full pass of each case.
+defectives not inspected), as the command runs them: wall and CPU seconds of this
+process (compare CPU when other work loads the machine). ``--profile`` prints a
+pyinstrument profile of the full pass of each case.
 """
 
 from __future__ import annotations
@@ -55,13 +56,14 @@ def case_frames(case: str, tmp: Path) -> list[tuple[pd.DataFrame, np.ndarray, np
 
 
 def run(frames, spec=0.01, confidence=0.95):
-    t0 = time.perf_counter()
+    """(wall, CPU) of the deciding pass, (wall, CPU) of the full pass, the full answers."""
+    t0, c0 = time.perf_counter(), time.process_time()
     known = [answer_lots(f, a, b, CHAINS, spec, confidence, full=False) for f, a, b in frames]
-    t1 = time.perf_counter()
+    t1, c1 = time.perf_counter(), time.process_time()
     full = [answer_lots(f, a, b, CHAINS, spec, confidence, known=k)
             for (f, a, b), k in zip(frames, known, strict=True)]
-    t2 = time.perf_counter()
-    return t1 - t0, t2 - t1, full
+    t2, c2 = time.perf_counter(), time.process_time()
+    return (t1 - t0, c1 - c0), (t2 - t1, c2 - c1), full
 
 
 def main(argv: list[str]) -> None:
@@ -71,7 +73,8 @@ def main(argv: list[str]) -> None:
     profile = "--profile" in argv
     cases = [a for a in argv if not a.startswith("--")] or ["lots:20", "lots:1000", "parts:10"]
     print(f"load before: {os.getloadavg()[0]:.2f}")
-    print("| case | distinct (x, n, N) | decide pass (s) | full pass (s) | load (1 min) |")
+    print("| case | distinct (x, n, N) | decide pass wall / CPU (s) | full pass wall / CPU (s) "
+          "| load (1 min) |")
     print("| --- | --- | --- | --- | --- |")
     with tempfile.TemporaryDirectory() as tmp:
         for case in cases:
@@ -90,9 +93,9 @@ def main(argv: list[str]) -> None:
                 prof.stop()
                 print(prof.output_text(unicode=False, color=False))
                 continue
-            t_decide, t_full, _ = run(frames)
-            print(f"| {case} | {combos} | {t_decide:.3f} | {t_full:.3f} | "
-                  f"{os.getloadavg()[0]:.2f} |")
+            (w_decide, c_decide), (w_full, c_full), _ = run(frames)
+            print(f"| {case} | {combos} | {w_decide:.3f} / {c_decide:.3f} | "
+                  f"{w_full:.3f} / {c_full:.3f} | {os.getloadavg()[0]:.2f} |")
 
 
 if __name__ == "__main__":

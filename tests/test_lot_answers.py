@@ -191,7 +191,7 @@ def test_one_draw_lot_basis_matches_scipy_betabinom_scanned_over_every_count(a, 
 
 # ------------------------------------------------------------------ the whole pass
 
-def test_answer_lots_equal_with_the_old_clean_unit_search(monkeypatch):
+def test_answer_lots_equal_the_earlier_answering_pass(monkeypatch):
     rng = np.random.default_rng(8)
     k = 120
     n = rng.choice([50, 80, 125, 200, 315], size=k)
@@ -203,8 +203,15 @@ def test_answer_lots_equal_with_the_old_clean_unit_search(monkeypatch):
     a0, b0 = _history_draws(*HISTORIES["typical"], draws=4000, seed=9)
     known = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False)
     new = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known)
+    # the earlier clean-unit search, mixture quantile and beta-binomial blocks
+    from answers_reference import log_pmf_block, mixture_ppf
+
+    from qualbayes.models import mixtures
+
     monkeypatch.setattr(lot_answers, "extra_clean_units",
                         lambda *args, ess_cache=None: reference_extra(*args))
+    monkeypatch.setattr(mixtures, "ppf", mixture_ppf)
+    monkeypatch.setattr(mixtures, "_log_pmf_block", log_pmf_block)
     old = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known)
     counts = pd.Series(list(new["extra_clean_units_to_accept"]))
     assert counts.notna().sum() > 20  # the comparison covers real counts

@@ -37,6 +37,7 @@ LOT, PROCESS = "lot", "process"
 MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
 MAX_PMF_TERMS = 2**24  # draws x counts summed exactly for one lot's P; beyond: continuous limit
 MAX_EXTRA_UNITS = 10**9  # as qualbayes.models.lot_posterior
+SURROGATE_TERMS = 2**14  # the clean-unit search's first guess sums one draw up to this count
 TOO_CLOSE = "too close to call at this Monte Carlo precision"
 
 
@@ -243,9 +244,10 @@ def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
 
         start = math.ceil(optimize.brentq(h, 0.0, float(top), xtol=0.5))
     step = max(1, start // 50)
-    guess = smallest_near(one, start, remaining, true_at=enough,
-                          slope=(h(start + step) - h(start)) / step if start + step <= top
-                          else None)
+    slope = (h(start + step) - h(start)) / step if start + step <= top else None
+    if k_star >= SURROGATE_TERMS:  # the one-draw sum would be long: the limit's root will do
+        return start, enough, slope
+    guess = smallest_near(one, start, remaining, true_at=enough, slope=slope)
     if guess is None:
         return top, enough, None
     step = max(1, guess // 50)

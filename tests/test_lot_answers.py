@@ -150,6 +150,18 @@ def _counting_extra(a0, b0, x, n, rem, size, spec, c, basis, seen):
         ld.smallest_near = real
 
 
+@pytest.mark.parametrize("draws,size", [(1000, 10**7), (1000, 10**8), (1, 10**6)])
+def test_extra_clean_units_of_huge_lots_equal_the_doubling_search(draws, size):
+    # the continuous limit of the lot's sum (many draws) and long one-draw sums
+    if draws > 1:
+        a0, b0 = _history_draws(*HISTORIES["typical"], draws=draws, seed=5)
+    else:
+        a0, b0 = np.ones(1), np.ones(1)
+    for x, n in ((0, 125), (2, 315), (0, 3000)):
+        old = reference_extra(a0, b0, x, n, size - n, size, 0.01, 0.95, ld.LOT)
+        assert ld.extra_clean_units(a0, b0, x, n, size - n, size, 0.01, 0.95, ld.LOT) == old
+
+
 def test_too_few_draws_for_the_weights_give_no_count_as_before():
     a0, b0 = _history_draws(*HISTORIES["typical"], draws=150, seed=4)  # below MIN_WEIGHT_ESS
     for rem, size, basis in ((None, None, ld.PROCESS), (675, 800, ld.LOT)):

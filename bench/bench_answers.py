@@ -1,6 +1,6 @@
 """Benchmark: the per-lot answering pass after a history fit (issue 18, item 1).
 
-Run: ``python bench/bench_answers.py [case ...] [--profile]`` with cases ``lots:20``,
+Run: ``python bench/bench_answers.py [case ...] [--profile] [--workers=K]`` with cases ``lots:20``,
 ``lots:1000`` (lots of one part) or ``parts:10`` (10 parts x 20 lots, answered part by
 part); no case: ``lots:20 lots:1000 parts:10``.
 
@@ -12,7 +12,8 @@ call: the pass that decides (``answer_lots(..., full=False)``: P, its MCSE, the 
 and the full pass that reuses it (``known=``: bounds, quantiles, clean-unit counts,
 defectives not inspected), as the command runs them: wall and CPU seconds of this
 process (compare CPU when other work loads the machine). ``--profile`` prints a
-pyinstrument profile of the full pass of each case.
+pyinstrument profile of the full pass of each case; ``--workers=K``: threads of the full
+pass (default: the CPUs available).
 """
 
 from __future__ import annotations
@@ -55,12 +56,12 @@ def case_frames(case: str, tmp: Path) -> list[tuple[pd.DataFrame, np.ndarray, np
     return out
 
 
-def run(frames, spec=0.01, confidence=0.95):
+def run(frames, spec=0.01, confidence=0.95, workers=None):
     """(wall, CPU) of the deciding pass, (wall, CPU) of the full pass, the full answers."""
     t0, c0 = time.perf_counter(), time.process_time()
     known = [answer_lots(f, a, b, CHAINS, spec, confidence, full=False) for f, a, b in frames]
     t1, c1 = time.perf_counter(), time.process_time()
-    full = [answer_lots(f, a, b, CHAINS, spec, confidence, known=k)
+    full = [answer_lots(f, a, b, CHAINS, spec, confidence, known=k, workers=workers)
             for (f, a, b), k in zip(frames, known, strict=True)]
     t2, c2 = time.perf_counter(), time.process_time()
     return (t1 - t0, c1 - c0), (t2 - t1, c2 - c1), full
@@ -71,6 +72,7 @@ def main(argv: list[str]) -> None:
     import tempfile
 
     profile = "--profile" in argv
+    workers = next((int(a.split("=")[1]) for a in argv if a.startswith("--workers=")), None)
     cases = [a for a in argv if not a.startswith("--")] or ["lots:20", "lots:1000", "parts:10"]
     print(f"load before: {os.getloadavg()[0]:.2f}")
     print("| case | distinct (x, n, N) | decide pass wall / CPU (s) | full pass wall / CPU (s) "
@@ -93,7 +95,7 @@ def main(argv: list[str]) -> None:
                 prof.stop()
                 print(prof.output_text(unicode=False, color=False))
                 continue
-            (w_decide, c_decide), (w_full, c_full), _ = run(frames)
+            (w_decide, c_decide), (w_full, c_full), _ = run(frames, workers=workers)
             print(f"| {case} | {combos} | {w_decide:.3f} / {c_decide:.3f} | "
                   f"{w_full:.3f} / {c_full:.3f} | {os.getloadavg()[0]:.2f} |")
 

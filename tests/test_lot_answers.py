@@ -214,7 +214,10 @@ def test_answer_lots_equal_the_earlier_answering_pass(monkeypatch):
     frame["decision_basis"] = np.where(frame["lot_size"].notna(), "lot", "process")
     a0, b0 = _history_draws(*HISTORIES["typical"], draws=4000, seed=9)
     known = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False)
-    new = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known)
+    new = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known, workers=3)
+    alone = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known, workers=1)
+    for column, values in alone.items():  # the threads change no number
+        assert pd.Series(list(values)).equals(pd.Series(list(new[column]))), column
     # the earlier clean-unit search, mixture quantile and beta-binomial blocks
     from answers_reference import log_pmf_block, mixture_ppf
 

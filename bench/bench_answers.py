@@ -13,7 +13,7 @@ and the full pass that reuses it (``known=``: bounds, quantiles, clean-unit coun
 defectives not inspected), as the command runs them: wall and CPU seconds of this
 process (compare CPU when other work loads the machine). ``--profile`` prints a
 pyinstrument profile of the full pass of each case; ``--workers=K``: threads of the full
-pass (default: the CPUs available).
+pass (default: answer_lots's default; 0: the CPUs available).
 """
 
 from __future__ import annotations
@@ -72,7 +72,8 @@ def main(argv: list[str]) -> None:
     import tempfile
 
     profile = "--profile" in argv
-    workers = next((int(a.split("=")[1]) for a in argv if a.startswith("--workers=")), None)
+    workers = next((int(a.split("=")[1]) for a in argv if a.startswith("--workers=")), 1)
+    workers = workers if workers > 0 else None
     cases = [a for a in argv if not a.startswith("--")] or ["lots:20", "lots:1000", "parts:10"]
     print(f"load before: {os.getloadavg()[0]:.2f}")
     print("| case | distinct (x, n, N) | decide pass wall / CPU (s) | full pass wall / CPU (s) "

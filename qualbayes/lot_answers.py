@@ -70,13 +70,14 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 confidence: float, full: bool = True,
-                known: dict | None = None, workers: int | None = None) -> dict[str, object]:
+                known: dict | None = None, workers: int | None = 1) -> dict[str, object]:
     """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
     only P, its MCSE and the decision (enough to see whether more draws are needed).
     ``known``: the ``full=False`` answers of the same lots from the same draws, reused
     instead of summing P over every draw again. The full answers of each distinct (x, n)
-    run on ``workers`` threads (default: the CPUs this process may use; numpy and scipy
-    release the interpreter lock in their array loops); the numbers do not depend on it."""
+    can run on ``workers`` threads (None: the CPUs this process may use; numpy and scipy
+    release the interpreter lock in their array loops); the numbers do not depend on it.
+    The default is 1: on the shared 2-core machine threads were not measured faster."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}

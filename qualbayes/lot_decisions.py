@@ -187,9 +187,14 @@ def _gap(p: float, c: float) -> float:
 
 
 def _doubling_point(m: int, cap: int) -> int:
-    """The smallest count 2^j - 1 >= m (or the cap): the doubling search from 0 tests it
-    whenever m is below its answer."""
-    return min(cap, (1 << int(m + 1).bit_length()) - 1 if m > 0 else 0)
+    """The smallest count 2^j - 1 above m (or the cap): the doubling search from 0 tests
+    every count 0, 1, 3, 7, ... up to the first at or above its answer, so it tests this
+    one whenever m is below the answer.
+
+    >>> [_doubling_point(m, 100) for m in (0, 1, 2, 3, 6, 7, 64, 99)]
+    [1, 3, 3, 7, 7, 15, 100, 100]
+    """
+    return min(cap, (1 << int(m + 1).bit_length()) - 1)
 
 
 def _moment_beta(alpha, beta) -> tuple[float, float]:

@@ -81,6 +81,16 @@ def test_doubling_path_is_the_points_the_doubling_search_tests():
         assert doubling_path(answer, cap) == tested
 
 
+def test_the_early_ess_check_is_a_count_the_doubling_search_tests():
+    # a count m below the answer: the doubling search tests _doubling_point(m) too, so a
+    # degenerate weight there means that search gave None
+    for cap in (0, 1, 2, 5, 37, 100, 1000):
+        for answer in [*range(cap + 1), None]:
+            path = set(doubling_path(answer, cap))
+            for m in range(cap + 1 if answer is None else answer):
+                assert ld._doubling_point(m, cap) in path, (cap, answer, m)
+
+
 def test_gap_has_the_sign_of_the_comparison_itself():
     rng = np.random.default_rng(1)
     for c in (0.5, 0.9, 0.95, 0.975, 0.999):

@@ -118,7 +118,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
         keys = list(by_rate)
         for done in _map(work, keys, workers):
             for j, values in done.items():
-                approx[j] = approx[j] or values.pop("_approximate")
+                approximate = values.pop("_approximate")
+                approx[j] = approx[j] or approximate
                 for c, v in values.items():
                     cols[c][j] = v
     out: dict[str, object] = {}

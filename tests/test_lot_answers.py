@@ -331,3 +331,17 @@ def test_pmf_blocks_equal_the_earlier_sum_in_logs_bit_for_bit():
         k, exact = mixtures.betabinom_quantile(q, 1875, a, b)
         cdf = np.mean(stats.betabinom.cdf([k, k - 1], 1875, a[:, None], b[:, None]), axis=0)
         assert exact and cdf[0] >= q - 1e-12 > cdf[1]
+
+
+def test_full_pass_keeps_the_approximate_flag_of_the_deciding_pass():
+    # a lot of 10^8 units: P by the continuous limit (approximate) in the deciding pass;
+    # the full pass reusing it keeps the flag and adds its own columns
+    frame = pd.DataFrame({"defectives": [1.0, 0.0], "inspected": [125.0, 125.0],
+                          "lot_size": pd.array([10**8, 800], dtype="Int64"),
+                          "decision_basis": ["lot", "lot"]})
+    a0, b0 = _history_draws(*HISTORIES["typical"], draws=4000, seed=6)
+    known = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False)
+    assert list(known["_approximate"]) == [True, False]
+    full = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known)
+    assert list(full["_approximate"]) == [True, False]
+    assert not pd.isna(full["remaining_defectives_upper"][0])

@@ -70,16 +70,18 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 confidence: float, full: bool = True,
-                known: dict | None = None) -> dict[str, object]:
+                known: dict | None = None, workers: int | None = 1) -> dict[str, object]:
     """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
     only P, its MCSE and the decision (enough to see whether more draws are needed).
     ``known``: the ``full=False`` answers of the same lots from the same draws, reused
-    instead of summing P over every draw again."""
+    instead of summing P over every draw again. The full answers of each distinct (x, n)
+    can run on ``workers`` threads (None: the CPUs this process may use; numpy and scipy
+    release the interpreter lock in their array loops); the numbers do not depend on it.
+    The default is 1: on the shared 2-core machine threads were not measured faster."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}
     approx: list[bool] = [False] * k
-    tail = (1.0 - confidence) / 2.0
     if known is not None:
         first = np.unique(index, return_index=True)[1]  # one lot of each combination
         for c in ("prob_within_spec", "prob_within_spec_mcse", "decision", "too_close"):
@@ -102,31 +104,24 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     if full and np.size(a0) > SUMMARY_DRAWS:
         keep = np.linspace(0, np.size(a0) - 1, SUMMARY_DRAWS).round().astype(int)
         a0, b0 = np.asarray(a0)[keep], np.asarray(b0)[keep]
-    rate: dict[tuple, tuple] = {}  # (x, n) -> the rate's summaries (equal for any lot size)
-    for j, (x, n, rem, size, basis) in enumerate(combos):
-        cols["decision_basis"][j] = basis
-        if not full:
-            continue
-        alpha, beta = a0 + x, b0 + (n - x)
-        if (x, n) not in rate:
-            rate[(x, n)] = (mixtures.mean(alpha, beta), mixtures.ppf(tail, alpha, beta),
-                            mixtures.ppf(1.0 - tail, alpha, beta),
-                            mixtures.ppf(confidence, alpha, beta))
-        (cols["posterior_mean"][j], cols["interval_low"][j], cols["interval_high"][j],
-         cols["upper_bound"][j]) = rate[(x, n)]
-        d = cols["decision"][j]
-        if d == ACCEPT:
-            cols["extra_clean_units_to_accept"][j] = 0
-        elif d in (UNDECIDED, REJECT) and not cols["too_close"][j]:
-            cols["extra_clean_units_to_accept"][j] = extra_clean_units(
-                a0, b0, x, n, rem, size, spec, confidence, basis)
-        if rem is not None:
-            cols["remaining_units"][j] = rem
-            (med, med_exact), (up, up_exact) = mixtures.betabinom_quantiles(
-                (0.5, confidence), rem, alpha, beta)
-            cols["remaining_defectives_median"][j] = med
-            cols["remaining_defectives_upper"][j] = up
-            approx[j] = approx[j] or not (med_exact and up_exact)
+    for j, c in enumerate(combos):
+        cols["decision_basis"][j] = c[4]
+    if full:
+        by_rate: dict[tuple, list[int]] = {}  # (x, n) -> its combinations (any lot size)
+        for j, c in enumerate(combos):
+            by_rate.setdefault((c[0], c[1]), []).append(j)
+
+        def work(key: tuple) -> dict[int, dict]:
+            return _rate_answers(key, by_rate[key], combos, cols["decision"],
+                                 cols["too_close"], a0, b0, spec, confidence)
+
+        keys = list(by_rate)
+        for done in _map(work, keys, workers):
+            for j, values in done.items():
+                approximate = values.pop("_approximate")
+                approx[j] = approx[j] or approximate
+                for c, v in values.items():
+                    cols[c][j] = v
     out: dict[str, object] = {}
     for c, values in cols.items():
         if c in ("outlier", "outlier_p", "own_data_prob", "own_data_decision"):
@@ -140,6 +135,62 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
             out[c] = pd.to_numeric(pd.Series(list(arr), dtype=object)).to_numpy()
     out["_approximate"] = np.asarray(approx)[index]
     return out
+
+
+def _rate_answers(key: tuple, members: list[int], combos: list[tuple], decisions: list,
+                  too_close: list, a0, b0, spec: float, confidence: float) -> dict[int, dict]:
+    """The full answers of the combinations ``members`` sharing (x, n) = ``key``: the
+    rate's mean and bounds (equal for any lot size), clean units to accept, defectives not
+    inspected; combination index -> column -> value (and ``_approximate``)."""
+    x, n = key
+    tail = (1.0 - confidence) / 2.0
+    alpha, beta = a0 + x, b0 + (n - x)
+    rate = (mixtures.mean(alpha, beta), mixtures.ppf(tail, alpha, beta),
+            mixtures.ppf(1.0 - tail, alpha, beta), mixtures.ppf(confidence, alpha, beta))
+    ess: dict[int, float] = {}  # the clean-unit weights' ESS by count (any lot size)
+    out: dict[int, dict] = {}
+    for j in members:
+        _, _, rem, size, basis = combos[j]
+        v: dict = dict(zip(("posterior_mean", "interval_low", "interval_high", "upper_bound"),
+                           rate, strict=True))
+        v["_approximate"] = False
+        d = decisions[j]
+        if d == ACCEPT:
+            v["extra_clean_units_to_accept"] = 0
+        elif d in (UNDECIDED, REJECT) and not too_close[j]:
+            v["extra_clean_units_to_accept"] = extra_clean_units(
+                a0, b0, x, n, rem, size, spec, confidence, basis, ess_cache=ess)
+        if rem is not None:
+            v["remaining_units"] = rem
+            (med, med_exact), (up, up_exact) = mixtures.betabinom_quantiles(
+                (0.5, confidence), rem, alpha, beta)
+            v["remaining_defectives_median"] = med
+            v["remaining_defectives_upper"] = up
+            v["_approximate"] = not (med_exact and up_exact)
+        out[j] = v
+    return out
+
+
+def threads() -> int:
+    """The CPUs this process may use."""
+    import os  # noqa: PLC0415
+
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _map(fn, items: list, workers: int | None) -> list:
+    """``[fn(i) for i in items]``, on up to ``workers`` threads (default :func:`threads`),
+    in order."""
+    workers = min(len(items), threads() if workers is None else int(workers))
+    if workers <= 1:
+        return [fn(i) for i in items]
+    from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
+
+    with ThreadPoolExecutor(workers) as pool:
+        return list(pool.map(fn, items))
 
 
 def beta_answers(frame: pd.DataFrame, a: float, b: float, spec: float,

@@ -24,17 +24,20 @@ clean-unit count), else ``undecided``; a side of C within 3 MCSE is "too close t
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from scipy import special
 
 from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
-from qualbayes.search import smallest_int
+from qualbayes.search_near import doubling_path, smallest_near
 
 LOT, PROCESS = "lot", "process"
 MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
 MAX_PMF_TERMS = 2**24  # draws x counts summed exactly for one lot's P; beyond: continuous limit
 MAX_EXTRA_UNITS = 10**9  # as qualbayes.models.lot_posterior
+SURROGATE_TERMS = 2**14  # the clean-unit search's first guess sums one draw up to this count
 TOO_CLOSE = "too close to call at this Monte Carlo precision"
 
 
@@ -105,7 +108,8 @@ def decide(prob, mcse, x, confidence: float):
     return out, too_close
 
 
-def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis):
+def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis,
+                      ess_cache: dict | None = None):
     r"""Smallest number m of further defect-free units after which P >= C, or None.
 
     The m units reweight the draws by the change of the lot's marginal likelihood,
@@ -113,6 +117,17 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
     None when the weights' effective sample size falls below MIN_WEIGHT_ESS), and move the
     lot's conditional posterior to Beta(alpha_d, beta_d + m). On the lot basis m is at most
     the units not inspected, and m clean units leave R - m uninspected.
+
+    The search starts from the moment-matched Beta's answer (:func:`_first_guess`) and
+    steps by secant on the logit scale (:func:`qualbayes.search_near.smallest_near`), so
+    4 or 5 sums over the draws find m where the doubling-and-bisection search from 0
+    (:func:`qualbayes.search.smallest_int`, used before) took about 20. Both assume P
+    increases with m, and under that assumption the answer is the same, including that
+    search's rule that a weight ESS below MIN_WEIGHT_ESS at any count it tests gives None:
+    those counts are known from the answer (:func:`qualbayes.search_near.doubling_path`)
+    and checked (tests/test_lot_answers.py compares both on many cases). ``ess_cache``: the
+    weights' ESS by m, shared between calls of the same (x, n) (the weights do not depend
+    on the lot size).
     """
     alpha, beta = a0 + x, b0 + (n - x)
     lot = basis == LOT and remaining is not None
@@ -120,29 +135,130 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
         return None  # the lot already holds more defectives than the limit allows
     base = special.betaln(alpha, beta)
     single = alpha.size == 1
+    ess = {} if ess_cache is None else ess_cache
+    cap = remaining if lot else MAX_EXTRA_UNITS
 
-    def ok(m: int) -> bool:
+    def weight_ess(m: int) -> float:
+        if m not in ess:
+            logw = special.betaln(alpha, beta + m) - base
+            w = np.exp(logw - logw.max())
+            ess[m] = float(w.sum() ** 2 / (w**2).sum())
+        return ess[m]
+
+    def value(m: int) -> float:  # P after m clean units against C, on the logit scale
         if single:
             w = np.ones(1)
         else:
             logw = special.betaln(alpha, beta + m) - base
             w = np.exp(logw - logw.max())
-            if w.sum() ** 2 / (w**2).sum() < MIN_WEIGHT_ESS:
-                raise _Degenerate
+            ess.setdefault(m, float(w.sum() ** 2 / (w**2).sum()))
         if lot:
             g, _ = draws_g(a0, b0 + m, x, n, remaining - m, spec, LOT, lot_size)
         else:
             g = special.betainc(alpha, beta + m, spec)
-        return bool(np.average(g, weights=w) >= confidence)
+        v = _gap(float(np.average(g, weights=w)), confidence)
+        if v < 0 and not single and weight_ess(_doubling_point(m, cap)) < MIN_WEIGHT_ESS:
+            raise _Degenerate  # the doubling search tests that count (m is below the answer)
+        return v
 
     try:
-        return smallest_int(ok, 0, remaining if lot else MAX_EXTRA_UNITS)
+        start, true_at, slope = _first_guess(alpha, beta, x, remaining if lot else None,
+                                             lot_size, spec, confidence, cap)
+        found = smallest_near(value, start, cap, true_at=true_at, slope=slope)
+        if found is not None and not single and any(
+                weight_ess(m) < MIN_WEIGHT_ESS for m in doubling_path(found, cap)):
+            return None
     except _Degenerate:
         return None
+    return found
 
 
 class _Degenerate(Exception):
     pass
+
+
+def _gap(p: float, c: float) -> float:
+    """logit(p) - logit(c), with the sign of the comparison p >= c itself (never 0 when
+    p < c): the search's value, nearly linear in the count of clean units where p - c
+    saturates."""
+    lp = special.logit(min(max(p, 1e-300), 1 - 1e-16)) if p == p else -np.inf
+    v = float(lp - special.logit(c))
+    return max(v, 0.0) if p >= c else min(v, -1e-300)
+
+
+def _doubling_point(m: int, cap: int) -> int:
+    """The smallest count 2^j - 1 above m (or the cap): the doubling search from 0 tests
+    every count 0, 1, 3, 7, ... up to the first at or above its answer, so it tests this
+    one whenever m is below the answer.
+
+    >>> [_doubling_point(m, 100) for m in (0, 1, 2, 3, 6, 7, 64, 99)]
+    [1, 3, 3, 7, 7, 15, 100, 100]
+    """
+    return min(cap, (1 << int(m + 1).bit_length()) - 1)
+
+
+def _moment_beta(alpha, beta) -> tuple[float, float]:
+    """The Beta(A, B) with the mean and variance of the mixture of Beta(alpha_d, beta_d)."""
+    m = alpha / (alpha + beta)
+    mean = float(m.mean())
+    var = float(np.mean(m * (1 - m) / (alpha + beta + 1)) + m.var())
+    if 0 < mean < 1 and 0 < var < mean * (1 - mean):
+        common = mean * (1 - mean) / var - 1
+        return mean * common, (1 - mean) * common
+    return float(np.mean(alpha)), float(np.mean(beta))
+
+
+def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
+                 cap) -> tuple[int, int | None, float | None]:
+    """(first guess of m, a count known to be enough or None, the value's slope there) from
+    the Beta(A, B) with the draws' mean and variance of the rate (:func:`_moment_beta`), for
+    which the answer is cheap: on the process basis B + m puts the C-quantile at s
+    (``special.btdtrib``); on the lot basis a search over the one-draw sum, started from the
+    continuous limit P(p <= (k* + 1/2) / (R - m)) = C. R - k* is always enough (no more
+    than k* units left: the lot cannot exceed the limit)."""
+    a, b = _moment_beta(alpha, beta)
+    if remaining is None:
+        with np.errstate(all="ignore"):
+            need = float(special.btdtrib(a, confidence, spec)) - b
+        guess = min(max(math.ceil(need) if math.isfinite(need) else 0, 0), cap)
+        step = max(1, guess // 50)
+        slope = (_gap(float(special.betainc(a, b + guess + step, spec)), confidence)
+                 - _gap(float(special.betainc(a, b + guess, spec)), confidence)) / step
+        return guess, None, slope if math.isfinite(slope) else None
+    k_star = int(np.floor(spec * lot_size - x + 1e-9))
+    enough = remaining - k_star if 0 <= k_star < remaining else None
+    top = (enough if enough is not None else remaining) - 1
+    if top <= 0:
+        return 0, enough, None
+    one_a, one_b = np.array([a]), np.array([b])
+
+    def one(m: int) -> float:
+        g, _ = draws_g(one_a, one_b + m, x, 0.0, remaining - m, spec, LOT, lot_size)
+        return _gap(float(g[0]), confidence)
+
+    def h(t: float) -> float:
+        limit = min(1.0, (k_star + 0.5) / max(remaining - t, 1e-300))
+        return _gap(float(special.betainc(a, b + t, limit)), confidence)
+
+    if not np.isfinite(h(0.0)) or h(0.0) >= 0:
+        start = 0
+    elif not h(float(top)) >= 0:
+        start = top
+    else:
+        from scipy import optimize  # noqa: PLC0415
+
+        start = math.ceil(optimize.brentq(h, 0.0, float(top), xtol=0.5))
+    step = max(1, start // 50)
+    slope = (h(start + step) - h(start)) / step if start + step <= top else None
+    if k_star >= SURROGATE_TERMS:  # the one-draw sum would be long: the limit's root will do
+        return start, enough, slope
+    guess = smallest_near(one, start, remaining, true_at=enough, slope=slope)
+    if guess is None:
+        return top, enough, None
+    step = max(1, guess // 50)
+    low = max(guess - step, 0)
+    slope = (one(guess) - one(low)) / (guess - low) if guess > low else None
+    return guess, enough, slope
 
 
 def tail_pvalue(x, n, a, b) -> np.ndarray:

@@ -1,6 +1,7 @@
 """Benchmark and accuracy study of the lot-history outlier check (issue 18, item 1).
 
-Run: ``python bench/bench_outliers.py [histories]`` (default 150). For simulated histories
+Run: ``python bench/bench_outliers.py [histories] [lots]`` (default 150 histories of 2 to
+40 lots; ``lots``: every history that many lots, e.g. 20 as in bench_speed's parts). For simulated histories
 of one part (homogeneous, heterogeneous, with one planted outlying lot of several
 severities, two and three lots, 5 to 40 lots) it computes each distinct lot's
 leave-one-out p-value three ways:
@@ -12,7 +13,7 @@ leave-one-out p-value three ways:
 * **per term 300**: the same on 300 x 300 grids (the finest, as the truth).
 
 and prints the largest differences, the flags (p below ``OUTLIER_LEVEL``) that differ, and
-the time per history of each way (one process, one core; give the load beside it).
+the CPU time per history of each way (one process; the load is printed beside it).
 """
 
 from __future__ import annotations
@@ -24,7 +25,8 @@ import time
 import numpy as np
 
 
-def histories(count: int, seed: int = 11) -> list[tuple[str, np.ndarray, np.ndarray]]:
+def histories(count: int, seed: int = 11, lots_each: int | None = None
+              ) -> list[tuple[str, np.ndarray, np.ndarray]]:
     rng = np.random.default_rng(seed)
     sizes = np.array([50, 80, 125, 200, 315])
     out = []
@@ -32,6 +34,7 @@ def histories(count: int, seed: int = 11) -> list[tuple[str, np.ndarray, np.ndar
     for i in range(count):
         kind = kinds[i % len(kinds)]
         lots = int(rng.integers(5, 41)) if kind != "few" else int(rng.integers(2, 4))
+        lots = lots_each or lots
         n = rng.choice(sizes, lots)
         base = rng.choice([0.001, 0.003, 0.01, 0.03])
         if kind == "heterogeneous":
@@ -47,18 +50,18 @@ def histories(count: int, seed: int = 11) -> list[tuple[str, np.ndarray, np.ndar
     return out
 
 
-def main(count: int) -> None:
+def main(count: int, lots_each: int | None = None) -> None:
     from qualbayes.models import lot_history_grid as grid
 
     rows = {"shared": [], "ref100": [], "ref300": []}
     times = {"shared": 0.0, "ref100": 0.0}
     terms = 0
-    for _, x, n in histories(count):
-        t0 = time.perf_counter()
+    for _, x, n in histories(count, lots_each=lots_each):
+        t0 = time.process_time()
         rows["shared"].append(grid.loo_pvalues(x, n)[2])
-        t1 = time.perf_counter()
+        t1 = time.process_time()
         rows["ref100"].append(grid.loo_pvalues_per_term(x, n)[2])
-        t2 = time.perf_counter()
+        t2 = time.process_time()
         rows["ref300"].append(grid.loo_pvalues_per_term(x, n, size=300)[2])
         times["shared"] += t1 - t0
         times["ref100"] += t2 - t1
@@ -75,10 +78,11 @@ def main(count: int) -> None:
         rel = (d[big] / p[b][big]).max()
         flips = int(((p[a] < level) != (p[b] < level)).sum())
         print(f"| {a} vs {b} | {d.max():.2e} | {rel:.2e} | {flips} |")
-    print(f"\ntime per history: shared {1e3 * times['shared'] / count:.1f} ms, per term 100 "
+    print(f"\nCPU time per history: shared {1e3 * times['shared'] / count:.1f} ms, per term 100 "
           f"{1e3 * times['ref100'] / count:.1f} ms; load average {os.getloadavg()[0]:.1f}, "
           f"{os.cpu_count()} cores")
 
 
 if __name__ == "__main__":
-    main(int(sys.argv[1]) if len(sys.argv) > 1 else 150)
+    main(int(sys.argv[1]) if len(sys.argv) > 1 else 150,
+         int(sys.argv[2]) if len(sys.argv) > 2 else None)

@@ -1,9 +1,9 @@
 """Benchmark and accuracy study of the lot-history outlier check (issue 18, item 1).
 
 Run: ``python bench/bench_outliers.py [histories] [lots]`` (default 150 histories of 2 to
-40 lots; ``lots``: every history that many lots, e.g. 20 as in bench_speed's parts). For simulated histories
-of one part (homogeneous, heterogeneous, with one planted outlying lot of several
-severities, two and three lots, 5 to 40 lots) it computes each distinct lot's
+40 lots; ``lots``: every history that many lots, e.g. 20 as in bench_speed's parts). For
+simulated histories of one part (homogeneous, heterogeneous, with one planted outlying
+lot of several severities, two and three lots, 5 to 40 lots) it computes each distinct lot's
 leave-one-out p-value three ways:
 
 * **shared**: :func:`qualbayes.models.lot_history_grid.loo_pvalues` (one grid for every

@@ -19,6 +19,15 @@ first):
 
 When both are measured, the 1,000-lot command's wall is also given as a multiple of the
 20-lot command's (target: at most 1.5x; and the command at most 2x its fit).
+
+Options: ``--cache=DIR`` keeps the compilation cache in DIR (shared between invocations,
+e.g. a before and an after version; default: a new temporary folder); ``--warmup=small``
+warms the cache with a command on the case's parts with the most distinct (x, n) (as many
+as one compiled call holds, ``lot_history_parts.CHUNK``; the same compiled sampler, a
+fraction of the time; a retry's program, if a part needs one, is then compiled in the
+measured run), ``--warmup=none`` not at all (default ``full``: the case's own command);
+``--no-fit`` measures the command only. Each row ends with the load average before and
+after it.
 """
 
 from __future__ import annotations
@@ -70,22 +79,30 @@ def fit_only(path: str) -> dict:
     frame = pd.read_csv(path)
     groups = [(g["Nonconforming"].to_numpy(float), g["Qty Inspected"].to_numpy(float))
               for _, g in frame.groupby("Part Number", sort=False)]
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     fit = fit_histories(groups, SamplerSettings(target_accept=TARGET_ACCEPT),
                         names=[str(j) for j in range(len(groups))])
-    return {"fit": time.perf_counter() - t0, "ess": fit.gate.min_ess_bulk,
-            "passed": fit.gate.passed}
+    return {"fit": time.perf_counter() - t0, "fit_cpu": time.process_time() - c0,
+            "ess": fit.gate.min_ess_bulk, "passed": fit.gate.passed}
+
+
+def _children_cpu() -> float:
+    import resource
+
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
 
 
 def command(path: str, cache: str) -> dict:
     env = dict(os.environ, QUALBAYES_JAX_CACHE=cache, CI="true", PYTHONPATH=str(ROOT))
     t0 = time.perf_counter()
+    c0 = _children_cpu()
     done = subprocess.run([sys.executable, "-c", _WRAP, "lots", path, "--spec", "1%",
                            "--prior", "history"], env=env, capture_output=True, text=True,
                           check=False)
     wall = time.perf_counter() - t0
     rss = [ln for ln in done.stderr.splitlines() if ln.startswith("MAXRSS")]
-    return {"wall": wall, "rc": done.returncode,
+    return {"wall": wall, "cpu": _children_cpu() - c0, "rc": done.returncode,
             "peak_mb": int(rss[-1].split()[1]) / 1024 if rss else float("nan")}
 
 
@@ -96,30 +113,64 @@ def fit_in_process(path: str, cache: str) -> dict:
     return json.loads(out.strip().splitlines()[-1])
 
 
-def measure(case: str, cache: str, tmp: Path) -> dict:
+def write_small(path: Path, out: Path, keep: int) -> None:
+    """The ``keep`` parts of the case with the most distinct (x, n) (the same padded shape,
+    hence the same compiled sampler, as the whole case)."""
+    import pandas as pd
+
+    frame = pd.read_csv(path)
+    terms = frame.groupby("Part Number", sort=False).apply(
+        lambda g: len(set(zip(g["Nonconforming"], g["Qty Inspected"], strict=True))))
+    chosen = terms.sort_values(ascending=False, kind="stable").index[:keep]
+    frame[frame["Part Number"].isin(chosen)].to_csv(out, index=False)
+
+
+def _chunk() -> int:
+    sys.path.insert(0, str(ROOT))
+    from qualbayes.models.lot_history_parts import CHUNK
+
+    return 1 << (max(CHUNK, 1) - 1).bit_length()
+
+
+def measure(case: str, cache: str, tmp: Path, warmup: str = "full",
+            with_fit: bool = True) -> dict:
     kind, count = case.split(":")
     lots, parts = (int(count), 1) if kind == "lots" else (20, int(count))
     path = tmp / f"{kind}-{count}.csv"
     write_case(path, lots, parts)
-    command(str(path), cache)  # warm-up: this shape's compiled code in the cache
-    fit = fit_in_process(str(path), cache)
+    load0 = os.getloadavg()[0]
+    if warmup == "full" or (warmup == "small" and parts == 1):
+        command(str(path), cache)  # warm-up: this shape's compiled code in the cache
+    elif warmup == "small":
+        small = tmp / f"{kind}-{count}-warm.csv"
+        write_small(path, small, max(2, min(parts, _chunk())))
+        command(str(small), cache)
+    fit = (fit_in_process(str(path), cache) if with_fit
+           else {"fit": float("nan"), "fit_cpu": float("nan"), "ess": float("nan"),
+                 "passed": True})
     cmd = command(str(path), cache)
-    return {"case": f"{lots:,} lots x {parts:,} part(s)", **fit, **cmd}
+    return {"case": f"{lots:,} lots x {parts:,} part(s)", **fit, **cmd,
+            "load": f"{load0:.1f} to {os.getloadavg()[0]:.1f}"}
 
 
 def main(cases: list[str]) -> None:
     tmp = Path(tempfile.mkdtemp(prefix="qualbayes-speed-"))
-    cache = tempfile.mkdtemp(prefix="qualbayes-speed-cache-")
-    print("| case | fit (warm) | whole command | command / fit | peak memory | min bulk ESS"
-          " | gate | exit |")
-    print("| --- | --- | --- | --- | --- | --- | --- | --- |")
+    opts = dict(a[2:].split("=", 1) for a in sys.argv[1:] if a.startswith("--") and "=" in a)
+    cache = opts.get("cache") or tempfile.mkdtemp(prefix="qualbayes-speed-cache-")
+    warmup, with_fit = opts.get("warmup", "full"), "--no-fit" not in sys.argv
+    print(f"code: {ROOT}; cache: {cache}; warm-up: {warmup}")
+    print("| case | fit (warm) | fit CPU | whole command | command CPU | command / fit "
+          "| peak memory | min bulk ESS | gate | exit | load |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
     walls = {}
     for case in cases:  # each row as soon as it is measured
-        r = measure(case, cache, tmp)
+        r = measure(case, cache, tmp, warmup, with_fit)
         walls[case] = r["wall"]
-        print(f"| {r['case']} | {r['fit']:.1f} s | {r['wall']:.1f} s | "
-              f"{r['wall'] / r['fit']:.1f}x | {r['peak_mb']:.0f} MB | {r['ess']:.0f} | "
-              f"{'passed' if r['passed'] else 'FAILED'} | {r['rc']} |", flush=True)
+        print(f"| {r['case']} | {r['fit']:.1f} s | {r['fit_cpu']:.1f} s | {r['wall']:.1f} s "
+              f"| {r['cpu']:.1f} s | {r['wall'] / r['fit']:.1f}x | {r['peak_mb']:.0f} MB "
+              f"| {r['ess']:.0f} | "
+              f"{'passed' if r['passed'] else 'FAILED'} | {r['rc']} | {r['load']} |",
+              flush=True)
     if "lots:20" in walls and "lots:1000" in walls:
         print(f"\n1,000 lots / 20 lots, whole command: "
               f"{walls['lots:1000'] / walls['lots:20']:.2f}x")

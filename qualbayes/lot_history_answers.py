@@ -27,7 +27,7 @@ TARGET_ACCEPT = 0.99
 def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, decision_basis):
     from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.lot_question import MAX_EXTRA_RUNS, MODEL_HISTORY, LotAssessment, _columns  # noqa: PLC0415
-    from qualbayes.models.lot_history import fit_histories  # noqa: PLC0415
+    from qualbayes.models.lot_history import fit_histories, more_draws  # noqa: PLC0415
 
     settings = settings or SamplerSettings(seed=seed, target_accept=TARGET_ACCEPT)
     groups = group_rows(frame, group_by)
@@ -36,31 +36,34 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     data = [(x_all[idx], n_all[idx]) for idx in groups.values()]
     names = list(groups)
     fit = fit_histories(data, settings, names=names, prior=hyper)
-    where = {label: (fit, j) for j, label in enumerate(names)}  # the fit holding its draws
+    per_chain = fit.settings.num_samples
+    index = {label: j for j, label in enumerate(names)}  # each group's part in the fit
     outliers = _outliers(frame, groups, hyper)
-    parts = _answer_groups(frame, groups, where, spec, confidence, outliers, full=False)
+    parts = _answer_groups(frame, groups, fit, index, spec, confidence, outliers, full=False)
     runs = 0
     while runs < MAX_EXTRA_RUNS:
-        close = [label for label, (ans, ok) in parts.items()
-                 if ok and bool(np.any(ans.get("too_close", [])))]
-        if not close:
+        if not any(ok and bool(np.any(ans.get("too_close", [])))
+                   for ans, ok in parts.values()):
             break
         runs += 1
-        changed = _continue_close(where, close)
-        parts |= _answer_groups(frame, groups, where, spec, confidence, outliers,
-                                full=False, labels=changed)
-    checks = _cross_checks(where, dict(zip(names, data, strict=True)), spec, hyper)
+        # the whole fit continues, every part from its own adapted state, so every group
+        # keeps the same number of draws (``LotResult.idata`` stays one InferenceData)
+        fit = more_draws(fit)
+        parts = _answer_groups(frame, groups, fit, index, spec, confidence, outliers,
+                               full=False)
+    checks = cross_check.lot_groups(fit, data, names, spec, hyper)
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
-             _answer_groups(frame, groups, where, spec, confidence, outliers,
+             _answer_groups(frame, groups, fit, index, spec, confidence, outliers,
                             known=parts).items()}
     out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
     out["decision_basis"] = list(frame["decision_basis"])  # kept for lots without a verdict
     diagnostics, next_lot, draws = {}, {}, {}
     for label, idx in groups.items():
         ans, ok = parts[label]
-        f, j = where[label]
-        diagnostics[label] = cross_check.attach(f.gate.select(label).to_dict(), checks[label])
-        draws[label] = {"mu": f.draws["mu"][:, :, j], "kappa": f.draws["kappa"][:, :, j]}
+        j = index[label]
+        diagnostics[label] = cross_check.attach(fit.gate.select(label).to_dict(),
+                                                checks[label])
+        draws[label] = {"mu": fit.draws["mu"][:, :, j], "kappa": fit.draws["kappa"][:, :, j]}
         if not ok:
             next_lot[label] = {"decision": NOT_CONVERGED}
             for i in idx:
@@ -68,7 +71,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
             continue
         mu, kappa = draws[label]["mu"].reshape(-1), draws[label]["kappa"].reshape(-1)
         next_lot[label] = next_lot_summary(mu * kappa, (1 - mu) * kappa, spec, confidence,
-                                           f.draws["mu"].shape[0])
+                                           fit.draws["mu"].shape[0])
         for c, values in ans.items():
             vals = list(values)
             for k, i in enumerate(idx):
@@ -93,11 +96,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
                      "'not-converged' and no decision")
     notes.append(cross_check.summary_line(checks))
     if runs:
-        per_chain = fit.settings.num_samples
-        whose, times = "", f"{runs} time(s)"
-        if len(_fits(where)) > 1:
-            whose, times = " of the fits holding a close call", f"up to {runs} time(s)"
-        notes.append(f"close calls: the adapted chains{whose} were continued {times} by "
+        notes.append(f"close calls: the adapted chains were continued {runs} time(s) by "
                      f"{per_chain:,} draws per chain, without a new warmup (cap "
                      f"{MAX_EXTRA_RUNS}), to settle P within its Monte Carlo error; the gate "
                      "and every P use all the draws")
@@ -107,64 +106,8 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
               "implied_lot_rate": hyper.implied_lot_rate(50_000)}
     return LotAssessment(frame[_columns(frame)], spec, confidence, hyper.describe(), model,
                          settings.seed, diagnostics, next_lot, notes, draws=draws,
-                         sampler=_sampler_settings(fit, where), group_by=tuple(group_by),
+                         sampler=fit.gate.settings, group_by=tuple(group_by),
                          decision_basis=decision_basis, lot_spread=spread)
-
-
-def _fits(where: dict) -> list[tuple]:
-    """[(fit, [labels it holds])] in order of first label."""
-    out: dict[int, tuple] = {}
-    for label, (f, _) in where.items():
-        out.setdefault(id(f), (f, []))[1].append(label)
-    return list(out.values())
-
-
-def _continue_close(where: dict, close: list[str]) -> list[str]:
-    """Continue the chains behind the groups ``close`` (``where`` updated in place); returns
-    the labels whose draws changed. A fit holding a close group is continued for every group
-    it holds (parts sampled as their own problems each from their own state, through
-    :func:`qualbayes.models.lot_history.more_draws` with ``parts``), so every group keeps
-    the same number of draws."""
-    from qualbayes.models import lot_history  # noqa: PLC0415 - jax path
-
-    changed = []
-    wanted = set(close)
-    for f, labels in _fits(where):
-        if wanted.isdisjoint(labels):
-            continue
-        # the whole fit continues (parts sampled apart each from its own state): every group
-        # keeps the same number of draws, so ``LotResult.idata`` stays one InferenceData
-        new = lot_history.more_draws(f)
-        where.update({label: (new, where[label][1]) for label in labels})
-        changed += labels
-    return changed
-
-
-def _cross_checks(where: dict, data: dict, spec, hyper) -> dict:
-    """label -> quadrature cross-check of its final draws (:func:`cross_check.lot_groups`
-    once per fit, on the groups whose draws it holds)."""
-    from dataclasses import replace  # noqa: PLC0415
-
-    checks: dict = {}
-    for f, labels in _fits(where):
-        cols = [where[label][1] for label in labels]
-        view = replace(f, draws={k: f.draws[k][:, :, cols] for k in ("mu", "kappa")})
-        checks |= cross_check.lot_groups(view, [data[label] for label in labels], labels,
-                                         spec, hyper)
-    return {label: checks[label] for label in where}
-
-
-def _sampler_settings(fit, where: dict) -> dict:
-    """The sampler settings of the record: the fit's, and when only some groups were
-    continued, how many and by how many draws per chain at most."""
-    finals = _fits(where)
-    if len(finals) == 1:
-        return finals[0][0].gate.settings
-    out = dict(fit.gate.settings)
-    more = [f.gate.settings.get("continued_draws_per_chain", 0) for f, _ in finals]
-    out["groups_continued"] = sum(len(labels) for f, labels in finals if f is not fit)
-    out["continued_draws_per_chain_at_most"] = int(max(more))
-    return out
 
 
 def _spread_words(hyper) -> str:
@@ -188,22 +131,20 @@ def _outliers(frame, groups, hyper) -> dict[str, np.ndarray]:
     return out
 
 
-def _answer_groups(frame, groups, where, spec, confidence, outliers, full=True,
-                   known=None, labels=None) -> dict:
-    """label -> (answers of the group's lots, converged), for ``labels`` (default: every
-    group); ``where[label]``: the fit holding the group's draws and its index there;
-    ``known``: the same call's ``full=False`` answers from the same draws (P is not summed
-    again)."""
+def _answer_groups(frame, groups, fit, index, spec, confidence, outliers, full=True,
+                   known=None) -> dict:
+    """label -> (answers of the group's lots, converged) for every group; ``index[label]``:
+    the group's part in ``fit``; ``known``: the same call's ``full=False`` answers from the
+    same draws (P is not summed again)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
     out = {}
-    for label in (groups if labels is None else labels):
-        idx = groups[label]
-        fit, j = where[label]
-        chains = fit.draws["mu"].shape[0]
+    chains = fit.draws["mu"].shape[0]
+    for label, idx in groups.items():
         if not fit.gate.select(label).passed:
             out[label] = ({}, False)
             continue
+        j = index[label]
         mu = fit.draws["mu"][:, :, j].reshape(-1)
         kappa = fit.draws["kappa"][:, :, j].reshape(-1)
         ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, chains, spec,

@@ -21,7 +21,8 @@ PERIODS = ("quarter", "month")
 NOT_CONVERGED = "not-converged"
 TOO_CLOSE = "too close to call"
 TARGET_ACCEPT = 0.95
-#: further NUTS runs of the same size drawn while a call is within 3 MCSE of C (as for lots)
+#: rounds of further draws (the adapted chains continued by as many draws again) while a call
+#: is within 3 MCSE of C (as for lots)
 MAX_EXTRA_RUNS = 3
 
 MODEL = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot (marginalised); "
@@ -50,7 +51,8 @@ class SupplierScorecard:
     diagnostics: dict
     notes: list[str] = field(default_factory=list)
     hyper: dict = field(default_factory=dict)  # posterior medians of m, sigma_b, sigma_w, phi
-    #: further runs drawn to settle close calls (0 to MAX_EXTRA_RUNS)
+    #: rounds of further draws taken to settle close calls (0 to MAX_EXTRA_RUNS): each
+    #: continued the adapted chains by as many draws again
     extra_runs: int = 0
 
     @property
@@ -123,9 +125,8 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
         close = fit.gate.passed and _has_close_call(frame)
         if not close or runs >= MAX_EXTRA_RUNS:
             break
-        runs += 1  # a close call: one more run of the same size, as further chains
-        fit = more_draws(fit, [(c[2], c[3]) for c in cells], cell_supplier, suppliers, names,
-                         period is not None, runs)
+        runs += 1  # a close call: the chains continued by as many draws again
+        fit = more_draws(fit)
     ok = fit.gate.passed
     hyper = {k: float(np.median(fit.draws[k])) for k in ("m", "sigma_b", "phi")} if ok else {}
     return SupplierScorecard(frame, periods, spec, confidence, period,
@@ -196,13 +197,13 @@ def _notes(frame: pd.DataFrame, ok: bool, runs: int = 0) -> list[str]:
         return ["the convergence gate failed: no rates, probabilities or calls are given"]
     out = []
     if runs:
-        out.append(f"close calls: {runs} further NUTS run(s) of the same size were drawn "
-                   f"(cap {MAX_EXTRA_RUNS}) to settle the probabilities within their Monte "
-                   "Carlo error")
+        out.append(f"close calls: the adapted chains were continued {runs} time(s) by as "
+                   f"many draws again (cap {MAX_EXTRA_RUNS}) to settle the probabilities "
+                   "within their Monte Carlo error")
     close = frame.loc[(frame["limit_call"] == TOO_CLOSE) | (frame["latest_call"] == TOO_CLOSE),
                       "supplier"].tolist()
     if close:
         out.append(f"too close to call at this Monte Carlo precision: {', '.join(close)} (the "
                    "probability lies within 3 Monte Carlo standard errors of the confidence "
-                   f"level after {runs} further run(s), the cap)")
+                   f"level after {runs} round(s) of further draws, the cap)")
     return out

@@ -1,7 +1,7 @@
 """Close calls of the supplier scorecard are re-sampled before they are labelled.
 
-A call whose probability lies within 3 MCSE of the confidence level C gets further NUTS runs
-of the same size (as further chains, the gate judged again on all of them), up to
+A call whose probability lies within 3 MCSE of the confidence level C gets further draws (the
+adapted chains continued by as many draws again, the gate judged again on all of them), up to
 ``scorecard.MAX_EXTRA_RUNS``; a call still that close is "too close to call at this Monte
 Carlo precision", never a verdict that could change with the seed (docs/suppliers.md).
 
@@ -39,8 +39,10 @@ def test_close_call_draws_more_then_says_too_close():
     close = scorecard.assess_suppliers(table, float(row["rate_upper"]), settings=SETTINGS)
     assert close.converged, close.diagnostics["reasons"]
     assert close.extra_runs == scorecard.MAX_EXTRA_RUNS
-    assert close.diagnostics["settings"]["chains"] == SETTINGS.num_chains * (
-        1 + scorecard.MAX_EXTRA_RUNS)
+    # the adapted chains continued by as many draws again each round (no new chains)
+    assert close.diagnostics["settings"]["chains"] == SETTINGS.num_chains
+    assert close.diagnostics["settings"]["continued_draws_per_chain"] == (
+        SETTINGS.num_samples * scorecard.MAX_EXTRA_RUNS)
     s01 = close.suppliers.set_index("supplier").loc["S01"]
     assert s01["limit_call"] == scorecard.TOO_CLOSE
     assert is_close_call(1.0 - s01["prob_above"], s01["prob_above_mcse"], 0.95)
@@ -50,7 +52,7 @@ def test_close_call_draws_more_then_says_too_close():
         "S01", "prob_above_mcse"]
     assert any("too close to call at this Monte Carlo precision" in n and "S01" in n
                for n in close.notes)
-    assert any(f"{scorecard.MAX_EXTRA_RUNS} further NUTS run" in n for n in close.notes)
+    assert any(f"continued {scorecard.MAX_EXTRA_RUNS} time(s)" in n for n in close.notes)
     # every other call follows its (combined) probability and MCSE
     for _, r in close.suppliers.iterrows():
         near = is_close_call(1.0 - r["prob_above"], r["prob_above_mcse"], 0.95)

@@ -64,7 +64,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.inference.run import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference.run import Fit, SamplerSettings, continue_nuts, run_nuts, setup_jax
 from qualbayes.models.lot_history import PHI_MIN, bucket, collapse
 
 #: Hyperprior constants (docs/suppliers.md; operating characteristics in docs/calibration.md)
@@ -200,14 +200,11 @@ def fit_suppliers(cells: list[tuple[np.ndarray, np.ndarray]], cell_supplier: np.
         return gate_quantities(draws | {"theta": theta_of(draws)}, suppliers, cell_names,
                                periods)
 
-    fit = run_nuts(model, args, settings, gate_on=gate_on)
-    keep = {k: fit.draws[k] for k in ("m", "sigma_b", "phi", "a")}
-    if periods:
-        keep["sigma_w"] = fit.draws["sigma_w"]
-        keep["delta"] = fit.draws["delta"]
-    keep["theta"] = theta_of(fit.draws)
-    fit.draws = keep
-    return fit
+    def kept(draws: dict) -> dict:
+        names = ("m", "sigma_b", "phi", "a") + (("sigma_w", "delta") if periods else ())
+        return {k: draws[k] for k in names} | {"theta": theta_of(draws)}
+
+    return run_nuts(model, args, settings, gate_on=gate_on, transform=kept)
 
 
 def gate_quantities(draws: dict, suppliers: list[str], cell_names: list[str],
@@ -226,24 +223,13 @@ def gate_quantities(draws: dict, suppliers: list[str], cell_names: list[str],
     return out
 
 
-def more_draws(fit: Fit, cells, cell_supplier, suppliers: list[str], cell_names: list[str],
-               periods: bool, round_no: int) -> Fit:
-    """The fit with one more NUTS run of the same size (seed shifted by ``round_no``) added as
-    further chains; the gate is judged again on all chains together (the retry is off: a
-    failed extra run fails the whole answer)."""
-    from dataclasses import replace  # noqa: PLC0415
+def more_draws(fit: Fit) -> Fit:
+    """The fit with as many draws again per chain, continued from its adapted chains (no new
+    warmup, the same compiled sampler); the gate is judged again on all draws, divergences of
+    the continuation included (no retry: a failed continuation fails the whole answer).
 
-    from qualbayes.inference.gate import diagnose  # noqa: PLC0415
-
-    settings = replace(fit.settings, seed=fit.settings.seed + 7919 * round_no, retry=False)
-    extra = fit_suppliers(cells, cell_supplier, suppliers, cell_names, periods, settings)
-    draws = {k: np.concatenate([fit.draws[k], extra.draws[k]], axis=0) for k in fit.draws}
-    info = dict(fit.gate.settings) | {"chains": draws["theta"].shape[0],
-                                      "extra_runs": round_no}
-    checked = gate_quantities(draws, suppliers, cell_names, periods)
-    gate = diagnose(checked, fit.gate.divergences + extra.gate.divergences, fit.gate.attempts,
-                    info)
-    diverging = None
-    if fit.diverging is not None and extra.diverging is not None:
-        diverging = np.concatenate([fit.diverging, extra.diverging], axis=0)
-    return Fit(draws, gate, fit.settings, diverging)
+    Before, each round was a new NUTS run (a new warmup, seed shifted) added as further
+    chains: four times the sampling cost of a continuation, and each new warmup could adapt
+    a step size that diverged once, failing the gate of an otherwise converged fit (the drift
+    study's two failed histories, docs/calibration.md)."""
+    return continue_nuts(fit)

@@ -36,8 +36,13 @@ the earlier periods are pooled as before. Operating characteristics: docs/calibr
 
 The lot rates are integrated out: :math:`x_{sti} \sim \mathrm{BetaBinomial}(n_{sti},
 \mu_{st}\kappa, (1-\mu_{st})\kappa)`, and lots of a cell that share (x, n) are collapsed into
-one weighted term (exact), so NUTS samples :math:`3 + 3S + C` dimensions (C the number of
+one weighted term (exact), so NUTS samples :math:`3 + 2S + C` dimensions (C the number of
 supplier-periods with lots; :math:`3 + S` without periods), all in one vectorised model.
+:math:`\delta_s` and :math:`e_{s,T_s}` enter only through their sum, which given
+:math:`\sigma_{w,s}` is :math:`N(0, \sigma_{w,s}^2 + 1)`: the latest cell's effect is
+sampled as that one term (:func:`cell_scale`), exactly the same posterior for every rate
+without the ridge along which the two trade off (a drifting supplier's chains diverged there
+now and then, docs/calibration.md).
 
 Speed (the same model, a cheaper computation; bench/bench_suppliers.py, docs/suppliers.md):
 
@@ -123,11 +128,19 @@ def supplier_period_model(terms, cell_supplier, centred, latest):
     """Suppliers and periods: ``terms`` (cells, ...), ``cell_supplier`` (cells,), ``latest``
     (cells,) 1.0 for the latest cell of a supplier with two periods or more, else 0.0."""
     a, sigma_w = _level(centred, periods=True)
-    with numpyro.plate("suppliers_change", centred.shape[0]):
-        delta = numpyro.sample("delta", dist.Normal(0.0, CHANGE_SD))
     with numpyro.plate("cells", cell_supplier.shape[0]):
         e = numpyro.sample("e", dist.Normal(0.0, 1.0))
-    _lots(a[cell_supplier] + sigma_w[cell_supplier] * e + delta[cell_supplier] * latest, terms)
+    _lots(a[cell_supplier] + cell_scale(sigma_w[cell_supplier], latest) * e, terms)
+
+
+def cell_scale(sigma_w, latest):
+    """The scale of each cell's standard-normal effect e_st: sigma_w,s for the earlier
+    periods and sqrt(sigma_w,s^2 + CHANGE_SD^2) for the latest (``latest`` 1.0). delta_s and
+    e_{s,T} enter the model only through their sum sigma_w,s e_{s,T} + delta_s, which given
+    sigma_w,s is N(0, sigma_w,s^2 + CHANGE_SD^2): sampling the sum as one term integrates
+    the direction the data cannot see exactly (the posterior of every rate, level and spread
+    is unchanged; delta_s itself is not drawn). Works on jax and numpy arrays alike."""
+    return (sigma_w**2 + latest * CHANGE_SD**2) ** 0.5
 
 
 def latest_cells(cell_supplier: np.ndarray) -> np.ndarray:
@@ -193,15 +206,14 @@ def fit_suppliers(cells: list[tuple[np.ndarray, np.ndarray]], cell_supplier: np.
         a = draws["a"][..., cell_supplier]
         if not periods:
             return a
-        return (a + draws["sigma_w"][..., cell_supplier] * draws["e"]
-                + draws["delta"][..., cell_supplier] * latest)
+        return a + cell_scale(draws["sigma_w"][..., cell_supplier], latest) * draws["e"]
 
     def gate_on(draws: dict) -> dict:
         return gate_quantities(draws | {"theta": theta_of(draws)}, suppliers, cell_names,
                                periods)
 
     def kept(draws: dict) -> dict:
-        names = ("m", "sigma_b", "phi", "a") + (("sigma_w", "delta") if periods else ())
+        names = ("m", "sigma_b", "phi", "a") + (("sigma_w",) if periods else ())
         return {k: draws[k] for k in names} | {"theta": theta_of(draws)}
 
     return run_nuts(model, args, settings, gate_on=gate_on, transform=kept)

@@ -21,7 +21,8 @@ PERIODS = ("quarter", "month")
 NOT_CONVERGED = "not-converged"
 TOO_CLOSE = "too close to call"
 TARGET_ACCEPT = 0.95
-#: further NUTS runs of the same size drawn while a call is within 3 MCSE of C (as for lots)
+#: rounds of further draws (the adapted chains continued by as many draws again) while a call
+#: is within 3 MCSE of C (as for lots)
 MAX_EXTRA_RUNS = 3
 
 MODEL = ("x ~ Binomial(n, p) per lot; p ~ Beta(mu*kappa, (1-mu)*kappa) per lot (marginalised); "
@@ -50,7 +51,8 @@ class SupplierScorecard:
     diagnostics: dict
     notes: list[str] = field(default_factory=list)
     hyper: dict = field(default_factory=dict)  # posterior medians of m, sigma_b, sigma_w, phi
-    #: further runs drawn to settle close calls (0 to MAX_EXTRA_RUNS)
+    #: rounds of further draws taken to settle close calls (0 to MAX_EXTRA_RUNS): each
+    #: continued the adapted chains by as many draws again
     extra_runs: int = 0
 
     @property
@@ -101,7 +103,10 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
                      period: str | None = None, seed: int = 20261202,
                      settings=None) -> SupplierScorecard:
     """Fit the hierarchical model and summarise it per supplier and per period."""
-    from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
+    from qualbayes.inference.run import (  # noqa: PLC0415 - jax path
+        SamplerSettings,
+        counted_as_retry,
+    )
     from qualbayes.models.supplier_rates import fit_suppliers, more_draws  # noqa: PLC0415
 
     if not 0.0 < spec < 1.0:
@@ -116,21 +121,29 @@ def assess_suppliers(table: LotTable, spec: float, confidence: float = 0.95, *,
     names = [f"{suppliers[c[0]]} {c[1]}" for c in cells]
     fit = fit_suppliers([(c[2], c[3]) for c in cells], cell_supplier, suppliers, names,
                         period is not None, settings)
-    runs = 0
+    runs, retried = 0, False
     while True:
         frame, periods = _tables(fit, suppliers, cells, cell_supplier, spec, confidence,
                                  period)
         close = fit.gate.passed and _has_close_call(frame)
         if not close or runs >= MAX_EXTRA_RUNS:
             break
-        runs += 1  # a close call: one more run of the same size, as further chains
-        fit = more_draws(fit, [(c[2], c[3]) for c in cells], cell_supplier, suppliers, names,
-                         period is not None, runs)
+        runs += 1  # a close call: the chains continued by as many draws again
+        more = more_draws(fit)
+        if not more.gate.passed and fit.gate.attempts == 1:
+            # the continuation of a converged first attempt failed the gate (a divergence
+            # far in a tail, seen in the drift study): the same policy as run_nuts's retry,
+            # one new fit with smaller steps and twice the draws (SamplerSettings.harder)
+            retried = True
+            more = counted_as_retry(fit_suppliers(
+                [(c[2], c[3]) for c in cells], cell_supplier, suppliers, names,
+                period is not None, fit.settings.harder()))
+        fit = more
     ok = fit.gate.passed
     hyper = {k: float(np.median(fit.draws[k])) for k in ("m", "sigma_b", "phi")} if ok else {}
     return SupplierScorecard(frame, periods, spec, confidence, period,
                              MODEL if period else MODEL_NO_PERIOD, fit.settings.seed,
-                             fit.gate.to_dict(), _notes(frame, ok, runs), hyper, runs)
+                             fit.gate.to_dict(), _notes(frame, ok, runs, retried), hyper, runs)
 
 
 def _tables(fit, suppliers, cells, cell_supplier, spec, confidence, period):
@@ -191,18 +204,22 @@ def _latest_call(row: dict, confidence: float, period: str | None) -> str | None
             "too-close": TOO_CLOSE}[word]
 
 
-def _notes(frame: pd.DataFrame, ok: bool, runs: int = 0) -> list[str]:
+def _notes(frame: pd.DataFrame, ok: bool, runs: int = 0, retried: bool = False) -> list[str]:
     if not ok:
         return ["the convergence gate failed: no rates, probabilities or calls are given"]
     out = []
+    if retried:
+        out.append("a continuation for close calls failed the convergence gate: the fit was "
+                   "drawn again with smaller steps and twice the draws (the sampler settings "
+                   "in the diagnostics), and every figure comes from that fit")
     if runs:
-        out.append(f"close calls: {runs} further NUTS run(s) of the same size were drawn "
-                   f"(cap {MAX_EXTRA_RUNS}) to settle the probabilities within their Monte "
-                   "Carlo error")
+        out.append(f"close calls: the adapted chains were continued {runs} time(s) by as "
+                   f"many draws again (cap {MAX_EXTRA_RUNS}) to settle the probabilities "
+                   "within their Monte Carlo error")
     close = frame.loc[(frame["limit_call"] == TOO_CLOSE) | (frame["latest_call"] == TOO_CLOSE),
                       "supplier"].tolist()
     if close:
         out.append(f"too close to call at this Monte Carlo precision: {', '.join(close)} (the "
                    "probability lies within 3 Monte Carlo standard errors of the confidence "
-                   f"level after {runs} further run(s), the cap)")
+                   f"level after {runs} round(s) of further draws, the cap)")
     return out

@@ -279,6 +279,15 @@ def continue_nuts(fit: Fit, num_samples: int | None = None) -> Fit:
     return record(out)
 
 
+def counted_as_retry(fit: Fit) -> Fit:
+    """``fit``, drawn by a caller as the retry of an earlier fit that failed the gate: its
+    gate (and that of any continuation of it) says 2 attempts. Changes ``fit`` in place."""
+    fit.gate.attempts = 2
+    if isinstance(fit.sampler, _Chains):
+        fit.sampler.attempts = 2
+    return fit
+
+
 @dataclass
 class _Chains:
     """The sampler of one NUTS run and every draw it has given (raw sites, before

@@ -36,8 +36,13 @@ the earlier periods are pooled as before. Operating characteristics: docs/calibr
 
 The lot rates are integrated out: :math:`x_{sti} \sim \mathrm{BetaBinomial}(n_{sti},
 \mu_{st}\kappa, (1-\mu_{st})\kappa)`, and lots of a cell that share (x, n) are collapsed into
-one weighted term (exact), so NUTS samples :math:`3 + 3S + C` dimensions (C the number of
+one weighted term (exact), so NUTS samples :math:`3 + 2S + C` dimensions (C the number of
 supplier-periods with lots; :math:`3 + S` without periods), all in one vectorised model.
+:math:`\delta_s` and :math:`e_{s,T_s}` enter only through their sum, which given
+:math:`\sigma_{w,s}` is :math:`N(0, \sigma_{w,s}^2 + 1)`: the latest cell's effect is
+sampled as that one term (:func:`cell_scale`), exactly the same posterior for every rate
+without the ridge along which the two trade off (a drifting supplier's chains diverged there
+now and then, docs/calibration.md).
 
 Speed (the same model, a cheaper computation; bench/bench_suppliers.py, docs/suppliers.md):
 
@@ -64,7 +69,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from qualbayes.inference.run import Fit, SamplerSettings, run_nuts, setup_jax
+from qualbayes.inference.run import Fit, SamplerSettings, continue_nuts, run_nuts, setup_jax
 from qualbayes.models.lot_history import PHI_MIN, bucket, collapse
 
 #: Hyperprior constants (docs/suppliers.md; operating characteristics in docs/calibration.md)
@@ -123,11 +128,19 @@ def supplier_period_model(terms, cell_supplier, centred, latest):
     """Suppliers and periods: ``terms`` (cells, ...), ``cell_supplier`` (cells,), ``latest``
     (cells,) 1.0 for the latest cell of a supplier with two periods or more, else 0.0."""
     a, sigma_w = _level(centred, periods=True)
-    with numpyro.plate("suppliers_change", centred.shape[0]):
-        delta = numpyro.sample("delta", dist.Normal(0.0, CHANGE_SD))
     with numpyro.plate("cells", cell_supplier.shape[0]):
         e = numpyro.sample("e", dist.Normal(0.0, 1.0))
-    _lots(a[cell_supplier] + sigma_w[cell_supplier] * e + delta[cell_supplier] * latest, terms)
+    _lots(a[cell_supplier] + cell_scale(sigma_w[cell_supplier], latest) * e, terms)
+
+
+def cell_scale(sigma_w, latest):
+    """The scale of each cell's standard-normal effect e_st: sigma_w,s for the earlier
+    periods and sqrt(sigma_w,s^2 + CHANGE_SD^2) for the latest (``latest`` 1.0). delta_s and
+    e_{s,T} enter the model only through their sum sigma_w,s e_{s,T} + delta_s, which given
+    sigma_w,s is N(0, sigma_w,s^2 + CHANGE_SD^2): sampling the sum as one term integrates
+    the direction the data cannot see exactly (the posterior of every rate, level and spread
+    is unchanged; delta_s itself is not drawn). Works on jax and numpy arrays alike."""
+    return (sigma_w**2 + latest * CHANGE_SD**2) ** 0.5
 
 
 def latest_cells(cell_supplier: np.ndarray) -> np.ndarray:
@@ -193,21 +206,17 @@ def fit_suppliers(cells: list[tuple[np.ndarray, np.ndarray]], cell_supplier: np.
         a = draws["a"][..., cell_supplier]
         if not periods:
             return a
-        return (a + draws["sigma_w"][..., cell_supplier] * draws["e"]
-                + draws["delta"][..., cell_supplier] * latest)
+        return a + cell_scale(draws["sigma_w"][..., cell_supplier], latest) * draws["e"]
 
     def gate_on(draws: dict) -> dict:
         return gate_quantities(draws | {"theta": theta_of(draws)}, suppliers, cell_names,
                                periods)
 
-    fit = run_nuts(model, args, settings, gate_on=gate_on)
-    keep = {k: fit.draws[k] for k in ("m", "sigma_b", "phi", "a")}
-    if periods:
-        keep["sigma_w"] = fit.draws["sigma_w"]
-        keep["delta"] = fit.draws["delta"]
-    keep["theta"] = theta_of(fit.draws)
-    fit.draws = keep
-    return fit
+    def kept(draws: dict) -> dict:
+        names = ("m", "sigma_b", "phi", "a") + (("sigma_w",) if periods else ())
+        return {k: draws[k] for k in names} | {"theta": theta_of(draws)}
+
+    return run_nuts(model, args, settings, gate_on=gate_on, transform=kept)
 
 
 def gate_quantities(draws: dict, suppliers: list[str], cell_names: list[str],
@@ -226,24 +235,13 @@ def gate_quantities(draws: dict, suppliers: list[str], cell_names: list[str],
     return out
 
 
-def more_draws(fit: Fit, cells, cell_supplier, suppliers: list[str], cell_names: list[str],
-               periods: bool, round_no: int) -> Fit:
-    """The fit with one more NUTS run of the same size (seed shifted by ``round_no``) added as
-    further chains; the gate is judged again on all chains together (the retry is off: a
-    failed extra run fails the whole answer)."""
-    from dataclasses import replace  # noqa: PLC0415
+def more_draws(fit: Fit) -> Fit:
+    """The fit with as many draws again per chain, continued from its adapted chains (no new
+    warmup, the same compiled sampler); the gate is judged again on all draws, divergences of
+    the continuation included (no retry: a failed continuation fails the whole answer).
 
-    from qualbayes.inference.gate import diagnose  # noqa: PLC0415
-
-    settings = replace(fit.settings, seed=fit.settings.seed + 7919 * round_no, retry=False)
-    extra = fit_suppliers(cells, cell_supplier, suppliers, cell_names, periods, settings)
-    draws = {k: np.concatenate([fit.draws[k], extra.draws[k]], axis=0) for k in fit.draws}
-    info = dict(fit.gate.settings) | {"chains": draws["theta"].shape[0],
-                                      "extra_runs": round_no}
-    checked = gate_quantities(draws, suppliers, cell_names, periods)
-    gate = diagnose(checked, fit.gate.divergences + extra.gate.divergences, fit.gate.attempts,
-                    info)
-    diverging = None
-    if fit.diverging is not None and extra.diverging is not None:
-        diverging = np.concatenate([fit.diverging, extra.diverging], axis=0)
-    return Fit(draws, gate, fit.settings, diverging)
+    Before, each round was a new NUTS run (a new warmup, seed shifted) added as further
+    chains: four times the sampling cost of a continuation, and each new warmup could adapt
+    a step size that diverged once, failing the gate of an otherwise converged fit (the drift
+    study's two failed histories, docs/calibration.md)."""
+    return continue_nuts(fit)

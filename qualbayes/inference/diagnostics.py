@@ -32,7 +32,7 @@ failed number. Checked against ArviZ to 1e-8 in tests/test_gate.py.
 from __future__ import annotations
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
 
 TAIL_PROBS = (0.05, 0.95)
 
@@ -89,8 +89,29 @@ def _ess(y: np.ndarray) -> np.ndarray:
 def _z_scale(y: np.ndarray) -> np.ndarray:
     """Rank-normalise (K, ...) over all chains and draws of each parameter."""
     flat = y.reshape(y.shape[0], -1)
-    ranks = stats.rankdata(flat, method="average", axis=1)
+    ranks = average_ranks(flat)
     return special.ndtri((ranks - 0.375) / (flat.shape[1] + 0.25)).reshape(y.shape)
+
+
+def average_ranks(a: np.ndarray) -> np.ndarray:
+    """Ranks 1..n along the last axis of a 2-D array, ties given their average rank (as
+    ``scipy.stats.rankdata(a, method="average", axis=1)``, tested against it; numpy only, so
+    that the gate does not import scipy.stats, about 1 CPU s of every command's start).
+
+    >>> average_ranks(np.array([[3.0, 1.0, 3.0, 2.0]])).tolist()
+    [[3.5, 1.0, 3.5, 2.0]]
+    """
+    rows, n = a.shape
+    order = np.argsort(a, axis=1, kind="stable")
+    ordered = np.take_along_axis(a, order, axis=1)
+    new = np.ones((rows, n), dtype=bool)
+    new[:, 1:] = ordered[:, 1:] != ordered[:, :-1]
+    group = (np.cumsum(new, axis=1) - 1 + (np.arange(rows) * n)[:, None]).ravel()
+    position = np.tile(np.arange(1.0, n + 1.0), rows)
+    mean = np.bincount(group, position) / np.maximum(np.bincount(group), 1)
+    out = np.empty((rows, n))
+    np.put_along_axis(out, order, mean[group].reshape(rows, n), axis=1)
+    return out
 
 
 def _split_rhat(y: np.ndarray) -> np.ndarray:

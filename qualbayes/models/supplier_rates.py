@@ -40,7 +40,7 @@ one weighted term (exact), so NUTS samples :math:`3 + 2S + C` dimensions (C the 
 supplier-periods with lots; :math:`3 + S` without periods), all in one vectorised model.
 :math:`\delta_s` and :math:`e_{s,T_s}` enter only through their sum, which given
 :math:`\sigma_{w,s}` is :math:`N(0, \sigma_{w,s}^2 + 1)`: the latest cell's effect is
-sampled as that one term (:func:`cell_scale`), exactly the same posterior for every rate
+sampled as that one term, centred (:func:`cell_theta`), exactly the same posterior for every rate
 without the ridge along which the two trade off (a drifting supplier's chains diverged there
 now and then, docs/calibration.md).
 
@@ -128,19 +128,29 @@ def supplier_period_model(terms, cell_supplier, centred, latest):
     """Suppliers and periods: ``terms`` (cells, ...), ``cell_supplier`` (cells,), ``latest``
     (cells,) 1.0 for the latest cell of a supplier with two periods or more, else 0.0."""
     a, sigma_w = _level(centred, periods=True)
+    a_c, sigma_c = a[cell_supplier], sigma_w[cell_supplier]
     with numpyro.plate("cells", cell_supplier.shape[0]):
-        e = numpyro.sample("e", dist.Normal(0.0, 1.0))
-    _lots(a[cell_supplier] + cell_scale(sigma_w[cell_supplier], latest) * e, terms)
+        e = numpyro.sample("e", dist.Normal(jnp.where(latest > 0, a_c, 0.0),
+                                            jnp.where(latest > 0, latest_scale(sigma_c), 1.0)))
+    _lots(cell_theta(a_c, sigma_c, e, latest), terms)
 
 
-def cell_scale(sigma_w, latest):
-    """The scale of each cell's standard-normal effect e_st: sigma_w,s for the earlier
-    periods and sqrt(sigma_w,s^2 + CHANGE_SD^2) for the latest (``latest`` 1.0). delta_s and
-    e_{s,T} enter the model only through their sum sigma_w,s e_{s,T} + delta_s, which given
-    sigma_w,s is N(0, sigma_w,s^2 + CHANGE_SD^2): sampling the sum as one term integrates
-    the direction the data cannot see exactly (the posterior of every rate, level and spread
-    is unchanged; delta_s itself is not drawn). Works on jax and numpy arrays alike."""
-    return (sigma_w**2 + latest * CHANGE_SD**2) ** 0.5
+def latest_scale(sigma_w):
+    """sqrt(sigma_w,s^2 + CHANGE_SD^2): the spread of the latest period's logit rate about
+    the supplier's level. delta_s and e_{s,T} enter the model only through their sum
+    sigma_w,s e_{s,T} + delta_s, which given sigma_w,s is N(0, sigma_w,s^2 + CHANGE_SD^2):
+    drawing that sum as one term integrates the direction the data cannot see exactly (the
+    posterior of every rate, level and spread is unchanged; delta_s itself is not drawn)."""
+    return (sigma_w**2 + CHANGE_SD**2) ** 0.5
+
+
+def cell_theta(a_c, sigma_c, e, latest):
+    """Each cell's logit rate from its draw ``e``: a_s + sigma_w,s e_st for the earlier
+    periods (non-centred; a steady supplier's sigma_w,s goes toward 0) and e itself for the
+    latest (``latest`` 1.0), drawn centred as N(a_s, sigma_w,s^2 + CHANGE_SD^2): its spread
+    is at least CHANGE_SD, so the centred form has no funnel, and a drifting supplier's
+    latest period, pinned by its own data, is sampled where it is. numpy or jax arrays."""
+    return (1.0 - latest) * (a_c + sigma_c * e) + latest * e
 
 
 def latest_cells(cell_supplier: np.ndarray) -> np.ndarray:
@@ -206,7 +216,7 @@ def fit_suppliers(cells: list[tuple[np.ndarray, np.ndarray]], cell_supplier: np.
         a = draws["a"][..., cell_supplier]
         if not periods:
             return a
-        return a + cell_scale(draws["sigma_w"][..., cell_supplier], latest) * draws["e"]
+        return cell_theta(a, draws["sigma_w"][..., cell_supplier], draws["e"], latest)
 
     def gate_on(draws: dict) -> dict:
         return gate_quantities(draws | {"theta": theta_of(draws)}, suppliers, cell_names,

@@ -201,6 +201,11 @@ def test_command_line_quadrature_record_names_engine(tmp_path, capsys):
     assert code == 0
     assert out["engine"]["name"] == "quadrature" and out["engine"]["max_error"] < 0.01
     assert all("prob_within_spec_error" in lot for lot in out["lots"])
+    # the printed record (no draws: sealed once, not again for --json) carries its own
+    # digest: sealing what was printed gives the same one
+    from qualbayes.evidence.run_record import seal
+
+    assert out["digest"] == seal(out)["digest"]
     assert main(["lots", str(path), "--spec", "1%", "--engine", "quadrature"]) == 2
     assert main(["lots", str(path), "--spec", "1%", "--prior", "history", "--engine",
                  "quadrature", "--report", str(tmp_path / "rep")]) == 2

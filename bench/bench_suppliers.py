@@ -79,12 +79,13 @@ def main(argv: list[str]) -> None:
     s, q, lt = shape
     print(f"suppliers x quarters x lots = {s} x {q} x {lt} ({s * q * lt:,} lots)\n")
     print("| run | wall s | CPU s | gate | min bulk ESS | min tail ESS | max R-hat | divergences "
-          "| attempts | extra runs | gated parameters |")
-    print("| --- | ---: | ---: | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |",
+          "| attempts | extra runs | gated parameters | load 1-min (start-end) |")
+    print("| --- | ---: | ---: | --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: | --- |",
           flush=True)
     with tempfile.TemporaryDirectory() as cache:
         env = {**os.environ, "QUALBAYES_JAX_CACHE": cache, "PYTHONPATH": str(ROOT)}
         for label in ("cold", "warm"):  # each row printed as soon as its run ends
+            load = os.getloadavg()[0]
             out = subprocess.run([sys.executable, __file__, "--child", *map(str, shape)],
                                  env=env, check=True, capture_output=True, text=True)
             r = json.loads(out.stdout.strip().splitlines()[-1])
@@ -93,7 +94,7 @@ def main(argv: list[str]) -> None:
                   f"| {r['min_ess_bulk']:.0f} | {r['min_ess_tail']:.0f} | "
                   f"{r['max_rhat']:.4f} | {r['divergences']} | {r['attempts']} | "
                   f"{r['extra_runs']} | "
-                  f"{r['parameters']:,} |", flush=True)
+                  f"{r['parameters']:,} | {load:.1f}-{os.getloadavg()[0]:.1f} |", flush=True)
 
 
 if __name__ == "__main__":

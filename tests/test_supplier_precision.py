@@ -82,9 +82,9 @@ def test_failed_continuation_is_retried_once_with_smaller_steps(monkeypatch):
             out.gate.divergences += 1
         return out
 
-    # seed 8: a first attempt that passes the gate on this tiny history (most seeds of 1-15
-    # needed run_nuts's own retry, after which no second retry is taken)
-    settings = replace(SETTINGS, seed=8)
+    # seed 2: a first attempt that passes the gate on this tiny history (seed 1 needs
+    # run_nuts's own retry, after which no second retry is taken)
+    settings = replace(SETTINGS, seed=2)
     table = _table()
     first = scorecard.assess_suppliers(table, 0.01, settings=settings)
     assert first.diagnostics["attempts"] == 1, "choose a seed whose first attempt passes"

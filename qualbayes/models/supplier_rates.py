@@ -46,10 +46,12 @@ now and then, docs/calibration.md).
 
 Speed (the same model, a cheaper computation; bench/bench_suppliers.py, docs/suppliers.md):
 
-* the beta-binomial log-likelihood is summed as
-  :math:`\sum w[\ln\Gamma(x+\alpha_c) + \ln\Gamma(n-x+\beta_c)] - W_c[\ln\Gamma(\alpha_c)
-  + \ln\Gamma(\beta_c)] + \sum_n W_n[\ln\Gamma(\kappa) - \ln\Gamma(n+\kappa)]`, dropping the
-  constant binomial coefficients (two log-gammas per term instead of about nine);
+* the beta-binomial log-likelihood drops the constant binomial coefficients and writes the
+  rising factorials of the small defective counts out as sums of logarithms: one log-gamma
+  per distinct lot size of a cell instead of two per distinct (x, n) term, exact
+  (:mod:`qualbayes.models.cell_likelihood`, which falls back to the log-gamma form when the
+  counts are large); on 200 suppliers x 8 quarters x 30 lots one gradient went from 2.1 ms
+  to the figure in docs/suppliers.md;
 * the supplier level :math:`a_s` is sampled centred, :math:`a_s \sim N(m, \sigma_b^2)`, when
   the supplier has at least ``CENTRE_AT`` defectives (its data then pin :math:`a_s` better
   than the prior does) and there are at least ``CENTRE_MIN_SUPPLIERS`` suppliers (so that
@@ -70,7 +72,8 @@ from __future__ import annotations
 import numpy as np
 
 from qualbayes.inference.run import Fit, SamplerSettings, continue_nuts, run_nuts, setup_jax
-from qualbayes.models.lot_history import PHI_MIN, bucket, collapse
+from qualbayes.models.cell_likelihood import cell_terms, loglik
+from qualbayes.models.lot_history import PHI_MIN
 
 #: Hyperprior constants (docs/suppliers.md; operating characteristics in docs/calibration.md)
 M_MEAN, M_SD = -5.0, 2.0  # logit of a typical supplier's rate: 95% in about 0.013% to 25%
@@ -90,7 +93,6 @@ import jax  # noqa: E402
 import jax.numpy as jnp  # noqa: E402
 import numpyro  # noqa: E402
 import numpyro.distributions as dist  # noqa: E402
-from jax.scipy.special import gammaln  # noqa: E402
 
 
 def _level(centred, periods: bool):
@@ -106,16 +108,12 @@ def _level(centred, periods: bool):
 
 
 def _lots(theta, terms):
-    """Beta-binomial log-likelihood of the collapsed lots, up to a constant (see above)."""
-    x, n, w, cell_weight, n_values, n_weight = terms
+    """Beta-binomial log-likelihood of the lots, up to a constant
+    (:mod:`qualbayes.models.cell_likelihood`)."""
     phi = numpyro.sample("phi", dist.Uniform(PHI_MIN, 1.0))
     kappa = 1.0 / phi**2 - 1.0
     mu = jax.nn.sigmoid(theta)
-    alpha, beta = mu * kappa, (1.0 - mu) * kappa
-    per_cell = jnp.sum(w * (gammaln(x + alpha[:, None]) + gammaln(n - x + beta[:, None])),
-                       axis=1) - cell_weight * (gammaln(alpha) + gammaln(beta))
-    shared = jnp.sum(n_weight * (gammaln(kappa) - gammaln(n_values + kappa)))
-    numpyro.factor("x", jnp.sum(per_cell) + shared)
+    numpyro.factor("x", loglik(jnp, mu * kappa, (1.0 - mu) * kappa, kappa, terms))
 
 
 def supplier_model(terms, cell_supplier, centred):
@@ -166,22 +164,10 @@ def latest_cells(cell_supplier: np.ndarray) -> np.ndarray:
 
 
 def likelihood_terms(cells: list[tuple[np.ndarray, np.ndarray]]):
-    """(x, n, w) padded per cell, each cell's total weight W_c, and the distinct lot sizes
-    n with their total weights W_n (the kappa-only part of the likelihood)."""
-    xs, ns, ws = cell_terms(cells)
-    n_values = np.unique(ns[ws > 0])
-    n_weight = np.array([ws[(ns == v) & (ws > 0)].sum() for v in n_values])
-    return tuple(jnp.asarray(v) for v in (xs, ns, ws, ws.sum(axis=1), n_values, n_weight))
-
-
-def cell_terms(cells: list[tuple[np.ndarray, np.ndarray]]):
-    """Each cell's lots as collapsed (x, n, w) terms, stacked and padded with w = 0."""
-    terms = [collapse(np.asarray(x), np.asarray(n)) for x, n in cells]
-    cols = bucket(max(len(t[0]) for t in terms), least=4)
-    xs, ns, ws = (np.zeros((len(cells), cols)) for _ in range(3))
-    for j, (x, n, w) in enumerate(terms):
-        xs[j, : len(x)], ns[j, : len(n)], ws[j, : len(w)] = x, n, w
-    return xs, ns, ws
+    """The lots of ``cells[c] = (x, n)`` in the cheaper exact form of
+    :func:`qualbayes.models.cell_likelihood.cell_terms`, as jax arrays."""
+    terms = cell_terms(cells)
+    return type(terms)(*(jnp.asarray(v) for v in terms))
 
 
 def centring(cells, cell_supplier, n_suppliers: int) -> np.ndarray:

@@ -22,7 +22,8 @@ True
 from __future__ import annotations
 
 
-def _gammaln(xp):
+def gammaln_for(xp):
+    """The log-gamma of the array module ``xp`` (jax's for jax.numpy, else scipy's)."""
     if xp.__name__.startswith("jax"):
         from jax.scipy.special import gammaln  # noqa: PLC0415
     else:
@@ -34,6 +35,6 @@ def log_pmf(x, n, a, b, *, xp=None):
     """log BB(x | n, a, b), elementwise (x, n as floats; a, b > 0)."""
     if xp is None:
         import jax.numpy as xp  # noqa: PLC0415
-    lg = _gammaln(xp)
+    lg = gammaln_for(xp)
     return (lg(n + 1.0) - lg(x + 1.0) - lg(n - x + 1.0)
             + lg(x + a) - lg(a) + lg(n - x + b) - lg(b) - lg(n + a + b) + lg(a + b))

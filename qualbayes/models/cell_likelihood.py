@@ -44,6 +44,7 @@ from typing import NamedTuple
 
 import numpy as np
 
+from qualbayes.models.beta_binomial import gammaln_for
 from qualbayes.models.lot_history import bucket, collapse
 
 #: cost of a log-gamma and its gradient in logarithms and theirs (measured on this machine,
@@ -136,7 +137,7 @@ def loglik(xp, alpha, beta, kappa, terms: GammaTerms | RisingTerms):
     """Sum over cells of :math:`\\ell_c` (module text); ``alpha``, ``beta`` (cells,),
     ``kappa`` scalar; ``xp`` the array module (``jax.numpy`` in the model, numpy in
     tests) and its log-gamma taken from the matching special-function module."""
-    gammaln = _gammaln(xp)
+    gammaln = gammaln_for(xp)
     shared = xp.sum(terms.n_weight * (gammaln(kappa) - gammaln(terms.n_values + kappa)))
     if isinstance(terms, GammaTerms):
         per = xp.sum(terms.w * (gammaln(terms.x + alpha[:, None])
@@ -149,12 +150,3 @@ def loglik(xp, alpha, beta, kappa, terms: GammaTerms | RisingTerms):
            - terms.cell_weight * gammaln(beta))
     return xp.sum(per) + shared
 
-
-def _gammaln(xp):
-    if xp is np:
-        from scipy.special import gammaln  # noqa: PLC0415
-
-        return gammaln
-    from jax.scipy.special import gammaln  # noqa: PLC0415
-
-    return gammaln

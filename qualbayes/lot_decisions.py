@@ -31,6 +31,7 @@ from scipy import special
 
 from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
+from qualbayes.search import smallest_int
 from qualbayes.search_near import doubling_path, smallest_near
 
 LOT, PROCESS = "lot", "process"
@@ -244,10 +245,8 @@ def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
         start = 0
     elif not h(float(top)) >= 0:
         start = top
-    else:
-        from scipy import optimize  # noqa: PLC0415
-
-        start = math.ceil(optimize.brentq(h, 0.0, float(top), xtol=0.5))
+    else:  # the smallest whole count where the limit reaches C (h rises with t)
+        start = smallest_int(lambda t: h(float(t)) >= 0, 0, top)
     step = max(1, start // 50)
     slope = (h(start + step) - h(start)) / step if start + step <= top else None
     if k_star >= SURROGATE_TERMS:  # the one-draw sum would be long: the limit's root will do

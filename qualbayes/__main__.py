@@ -1,3 +1,4 @@
 from qualbayes.cli import main
 
-raise SystemExit(main())
+if __name__ == "__main__":  # not when a process started by the batch imports this module
+    raise SystemExit(main())

@@ -8,6 +8,12 @@ import importlib
 import os
 import sys
 
+# One BLAS thread per interpreter thread, unless the user chose otherwise (before numpy is
+# imported): the quadrature batch answers groups on one thread per CPU, and OpenBLAS's own
+# threads on its small products then only compete for the same cores (50 parts x 200 lots
+# on 2 cores: 6.8 CPU s and 3.5 s wall with them, 3.9 CPU s and 2.9 s without; docs/speed.md)
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
 from qualbayes.errors import (
     EXIT_INPUT,
     EXIT_INTERNAL,

@@ -22,6 +22,11 @@ from qualbayes.models.lot_history_grid import OUTLIER_LEVEL
 
 #: lots per chunk sent to one worker (whole groups; a group larger than this is one chunk)
 CHUNK_LOTS = 20_000
+#: groups from which a batch in one call runs on a pool of local processes (one per CPU)
+#: instead of threads: numpy's many small operations per group hold the interpreter lock
+#: often enough that two threads on 2 cores gained 1.2x on 200 parts x 200 lots, where two
+#: processes ran at full speed each (docs/speed.md); a process costs about a second to start
+PROCESSES_FROM = 100
 ENGINE_NUTS, ENGINE_QUADRATURE = "nuts", "quadrature"
 ENGINES = (ENGINE_NUTS, ENGINE_QUADRATURE)
 _INT = ("extra_clean_units_to_accept", "remaining_units", "remaining_defectives_median",
@@ -51,16 +56,38 @@ def _chunk_job(frame: pd.DataFrame, labels: list[str], positions: list[np.ndarra
 
 def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
                confidence: float, prior, size: int = GRID_SIZE, *, processes: int | None = None,
-               scheduler: str | None = None, chunk_lots: int | None = None
-               ) -> dict[str, dict]:
+               scheduler: str | None = None, chunk_lots: int | None = None,
+               local_pool: bool = False) -> dict[str, dict]:
     """label -> answers of every group: here, or through Dask when ``processes`` (a
-    LocalCluster of that many processes) or ``scheduler`` (an address) is given."""
-    cols = ["defectives", "inspected", "lot_size", "decision_basis"]
+    LocalCluster of that many processes) or ``scheduler`` (an address) is given; without
+    them and with ``local_pool``, on new local processes when the batch is large
+    (:func:`local_processes`). The answers are the same in every case (tested)."""
     chunk_lots = CHUNK_LOTS if chunk_lots is None else chunk_lots
+    if processes is None and scheduler is None:
+        cpus = local_processes(len(groups)) if local_pool else None
+        if cpus is None:  # one process: its threads share the groups
+            return answer_groups(frame, groups, spec, confidence, prior, size)
+        # four chunks per process, so that an uneven chunk does not leave a CPU idle
+        parts = _parts(frame, groups, min(chunk_lots, max(1, -(-len(frame) // (4 * cpus)))))
+        return _run_pool(parts, spec, confidence, prior, size, cpus)
     if processes:  # at least two chunks per process, so that every process has work
         chunk_lots = min(chunk_lots, max(1, -(-len(frame) // (2 * processes))))
-    if processes is None and scheduler is None:  # one process: its threads share the groups
-        return answer_groups(frame, groups, spec, confidence, prior, size)
+    parts = _parts(frame, groups, chunk_lots)
+    return _run_dask(parts, spec, confidence, prior, size, processes, scheduler)
+
+
+def local_processes(groups: int) -> int | None:
+    """How many local processes answer a batch of ``groups`` groups when neither processes
+    nor a scheduler is given: one per CPU from PROCESSES_FROM groups, else None (threads)."""
+    from qualbayes.lot_grid_answers import threads  # noqa: PLC0415
+
+    cpus = threads()
+    return cpus if cpus >= 2 and groups >= PROCESSES_FROM else None
+
+
+def _parts(frame: pd.DataFrame, groups: dict[str, np.ndarray], chunk_lots: int) -> list:
+    """(sub-frame, labels, each group's rows in it) of every chunk (:func:`chunks`)."""
+    cols = ["defectives", "inspected", "lot_size", "decision_basis"]
     parts = []
     for labels in chunks(groups, chunk_lots):
         rows = np.concatenate([groups[k] for k in labels])
@@ -68,7 +95,28 @@ def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
         ends = np.cumsum([len(groups[k]) for k in labels])
         pos = [np.arange(e - len(groups[k]), e) for k, e in zip(labels, ends, strict=True)]
         parts.append((sub, labels, pos))
-    return _run_dask(parts, spec, confidence, prior, size, processes, scheduler)
+    return parts
+
+
+def _run_pool(parts, spec, confidence, prior, size, workers: int) -> dict[str, dict]:
+    """The chunks on ``workers`` new local processes (started fresh, not forked: whatever
+    this process holds, such as jax's threads, is not copied), in the chunks' order."""
+    import multiprocessing  # noqa: PLC0415
+    from concurrent.futures import ProcessPoolExecutor, as_completed  # noqa: PLC0415
+
+    from qualbayes.progress import task  # noqa: PLC0415
+
+    out: dict[str, dict] = {}
+    with ProcessPoolExecutor(min(workers, len(parts)),
+                             mp_context=multiprocessing.get_context("spawn")) as pool:
+        futures = [pool.submit(_chunk_job, sub, labels, pos, spec, confidence, prior, size)
+                   for sub, labels, pos in parts]
+        with task("quadrature chunks", total=len(futures)) as t:
+            for fut in as_completed(futures):
+                out.update(fut.result())
+                t.advance()
+    order = [k for _, labels, _ in parts for k in labels]
+    return {k: out[k] for k in order}
 
 
 def _run_dask(parts, spec, confidence, prior, size, processes, scheduler) -> dict[str, dict]:
@@ -105,14 +153,16 @@ def _run_dask(parts, spec, confidence, prior, size, processes, scheduler) -> dic
 
 def assess_quadrature(frame: pd.DataFrame, spec: float, confidence: float, hyper,
                       group_by, decision_basis, *, size: int = GRID_SIZE,
-                      processes: int | None = None, scheduler: str | None = None):
+                      processes: int | None = None, scheduler: str | None = None,
+                      local_pool: bool = False):
     """The lots question under the history prior, every answer from the grid posterior
     (see :mod:`qualbayes.lot_grid_answers`); returns a LotAssessment."""
     from qualbayes.lot_question import MODEL_HISTORY, LotAssessment, lot_columns  # noqa: PLC0415
 
     groups = group_rows(frame, group_by)
     answers = run_chunks(frame, groups, spec, confidence, hyper, size, processes=processes,
-                         scheduler=scheduler)
+                         scheduler=scheduler, local_pool=local_pool)
+    pool = local_processes(len(groups)) if local_pool and not (processes or scheduler) else None
     labels = list(groups)
     order = np.concatenate([groups[g] for g in labels]) if labels else np.zeros(0, int)
     group = np.empty(len(frame), dtype=object)
@@ -156,7 +206,8 @@ def assess_quadrature(frame: pd.DataFrame, spec: float, confidence: float, hyper
     engine = {"name": ENGINE_QUADRATURE, "method": METHOD.format(size=size), "grid_size": size,
               "max_error": float(max(errors)) if errors else 0.0,
               "processes": "dask scheduler " + scheduler if scheduler else
-              (f"dask LocalCluster of {processes} processes" if processes else "one process"),
+              (f"dask LocalCluster of {processes} processes" if processes else
+               f"{pool} local processes" if pool else "one process"),
               "groups": {k: a["accuracy"] for k, a in answers.items()}}
     notes.append(f"answered by quadrature (no sampling, no seed): the largest stated error of "
                  f"any P is {engine['max_error']:.2g}; a decision within its error of the "

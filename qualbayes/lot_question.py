@@ -64,7 +64,8 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
                 settings=None, *, group_by: tuple[str, ...] = ("part",),
                 decision_basis: str = LOT, lot_spread: float | None = None,
                 check_prior_conflict: bool = False, engine: str = "nuts",
-                processes: int | None = None, scheduler: str | None = None) -> LotAssessment:
+                processes: int | None = None, scheduler: str | None = None,
+                local_pool: bool = False) -> LotAssessment:
     """Answer "is the lot within spec at confidence C?" for every lot.
 
     ``decision_basis``: ``lot`` (default) decides about the lot's own fraction defective
@@ -76,6 +77,10 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
     ``engine`` (history prior): ``nuts`` (default, sampled and gated) or ``quadrature`` (the
     exact grid posterior of each group, deterministic; :mod:`qualbayes.lot_batch`), whose
     groups run in ``processes`` local processes or on the Dask ``scheduler`` when given.
+    ``local_pool``: without either, a large batch may run on a pool of new local processes
+    (:func:`qualbayes.lot_batch.local_processes`): only for a caller that owns the process
+    and guards its main module, as the command line does (a started process imports the
+    main module again).
     """
     if decision_basis not in (LOT, PROCESS):
         from qualbayes.errors import ParameterError  # noqa: PLC0415
@@ -95,7 +100,8 @@ def assess_lots(table: LotTable, spec: float, confidence: float = 0.95,
         from qualbayes.lot_batch import assess_quadrature  # noqa: PLC0415
 
         return assess_quadrature(frame, spec, confidence, hyper, group_by, decision_basis,
-                                 processes=processes, scheduler=scheduler)
+                                 processes=processes, scheduler=scheduler,
+                                 local_pool=local_pool)
     if hyper is not None:
         from qualbayes.lot_history_answers import assess_history  # noqa: PLC0415
 

@@ -13,7 +13,7 @@ import pytest
 from qualbayes.data import lot_table
 from qualbayes.errors import InputError
 from qualbayes.evidence import lot_record, run_record
-from qualbayes.evidence.jsonout import plain
+from qualbayes.evidence.jsonout import PlainRows, plain
 
 HEAD = "Lot No.,Part Number,Supplier,Lot Qty,Qty Inspected,Nonconforming\n"
 
@@ -128,8 +128,27 @@ def test_record_rows_column_wise_equal_row_by_row():
     got = lot_record._lot_rows(frame)
     want = _row_by_row(frame)
     assert got == want
+    # plain() keeps the rows as they are, so every value must be plain already
+    assert isinstance(got, PlainRows) and plain({"lots": got})["lots"] is got
+
+    def leaves(v):
+        if isinstance(v, dict):
+            return [u for w in v.values() for u in leaves(w)]
+        return [u for w in v for u in leaves(w)] if isinstance(v, list) else [v]
+    kinds = {type(v) for row in got for v in leaves(row)}
+    assert kinds <= {str, int, float, bool, type(None)}, kinds
     assert [list(r) for r in got] == [list(r) for r in want]  # the same key order
     assert run_record.canonical(got) == run_record.canonical(want)
+
+
+def test_rows_marked_plain_that_are_not_cannot_be_sealed():
+    """PlainRows skips plain(); the seal's canonical JSON still refuses what is not plain."""
+    with pytest.raises(TypeError):
+        run_record.seal({"kind": "lots", "lots": PlainRows([{"p": np.float32(0.5)}])})
+    with pytest.raises(ValueError):
+        run_record.seal({"kind": "lots", "lots": PlainRows([{"p": float("nan")}])})
+    with pytest.raises(TypeError):
+        run_record.seal({"kind": "lots", "lots": PlainRows([{"n": pd.NA}])})
 
 
 def test_digest_from_parts_equals_the_digest_of_the_whole():

@@ -147,6 +147,30 @@ def test_quadrature_is_deterministic_and_the_same_over_two_processes():
     assert split.engine["processes"] == "dask LocalCluster of 2 processes"
 
 
+def test_local_process_pool_gives_the_answers_of_one_process(monkeypatch):
+    """The command line's pool of new local processes (spawned, four chunks per process)
+    against threads in one process: identical frames and next-lot answers."""
+    from qualbayes import lot_batch
+
+    table = lots_table(_frame(parts=4, lots=6, seed=3))
+    one = assess_lots(table, 0.01, 0.9, "history", engine="quadrature")
+    monkeypatch.setattr(lot_batch, "PROCESSES_FROM", 2)
+    monkeypatch.setattr("qualbayes.lot_grid_answers.threads", lambda: 2)
+    real, chunks = lot_batch._run_pool, []
+
+    def spy(parts, *args):
+        chunks.append(len(parts))
+        return real(parts, *args)
+    monkeypatch.setattr(lot_batch, "_run_pool", spy)
+    pooled = assess_lots(table, 0.01, 0.9, "history", engine="quadrature", local_pool=True)
+    assert chunks == [4]  # one part a chunk here (24 lots over 4 x 2 chunks of 3 lots)
+    library = assess_lots(table, 0.01, 0.9, "history", engine="quadrature")
+    pd.testing.assert_frame_equal(one.lots, pooled.lots)
+    assert one.next_lot == pooled.next_lot
+    assert pooled.engine["processes"] == "2 local processes"
+    assert library.engine["processes"] == "one process"  # only a caller that asks
+
+
 def test_decision_within_the_quadrature_error_is_too_close_to_call():
     dec, close = qa.decide([0.9502, 0.96, 0.03, 0.5], [0.001, 0.001, 0.001, 0.001],
                            [1, 1, 1, 0], 0.95)

@@ -116,8 +116,11 @@ def _lot_options(args, prior) -> dict:
         raise OptionError("--report with --engine quadrature is not available yet (the "
                           "report's figures are drawn from sampled draws): use --out DIR for "
                           "the workbook and run record, or --engine nuts for the report")
+    # the command owns its process and guards its main module: a large quadrature batch
+    # may run on local processes (qualbayes.lot_batch.local_processes)
+    pool = {"local_pool": True} if engine["engine"] == "quadrature" else {}
     return {"group_by": cols, "decision_basis": args.decide_about, "lot_spread": spread,
-            **{k: v for k, v in engine.items() if v is not None}}
+            **{k: v for k, v in engine.items() if v is not None}, **pool}
 
 
 def _evidence(record: dict, args) -> dict:

@@ -171,6 +171,13 @@ def _blank_text(v) -> bool:
     return v is None or (type(v) is str and v.strip() == "")
 
 
+def _every(check, cells: list) -> bool:
+    """``all(map(check, cells))`` over the distinct cells, for checks that give equal cells
+    the same answer: a text cell equals only itself, and the checks here are False for every
+    number, boolean and date (which may compare equal to each other: 1 == 1.0 == True)."""
+    return all(map(check, set(cells)))
+
+
 def _plain_lots(table: RawTable, loc) -> pd.DataFrame | None:
     """The lots frame read column by column when every cell is plain (lot ids and labels
     plain ASCII text, counts written as digits only, no blank lot or result, no date, no
@@ -189,10 +196,11 @@ def _plain_lots(table: RawTable, loc) -> pd.DataFrame | None:
 
     lots, n, x, size = column("lot"), column("inspected"), column("defectives"), column(
         "lot_size")
-    if not (all(map(_plain_text, lots)) and all(map(_digits, n)) and all(map(_digits, x))):
+    # counts, sizes and labels repeat: their checks look at the distinct cells (_every)
+    if not (all(map(_plain_text, lots)) and _every(_digits, n) and _every(_digits, x)):
         return None
     dates = column("date")
-    if dates is not None and not all(map(_blank_text, dates)):
+    if dates is not None and not _every(_blank_text, dates):
         return None
     labels = {}
     for key in ("part", "supplier"):
@@ -200,16 +208,16 @@ def _plain_lots(table: RawTable, loc) -> pd.DataFrame | None:
         if values is None:
             labels[key] = [None] * len(rows)
             continue
-        if not all(_blank_text(v) or _plain_text(v) for v in values):
+        if not _every(lambda v: _blank_text(v) or _plain_text(v), values):
             return None
         labels[key] = [None if _blank_text(v) else v for v in values]
     n_arr = np.array(n, dtype=np.int64)
     x_arr = np.array(x, dtype=np.int64)
     if size is None:
         size_arr = pd.array([None] * len(rows), dtype="Int64")
-    elif all(map(_digits, size)):
+    elif _every(_digits, size):
         size_arr = pd.array(np.array(size, dtype=np.int64), dtype="Int64")
-    elif all(_digits(v) or _blank_text(v) for v in size):
+    elif _every(lambda v: _digits(v) or _blank_text(v), size):
         miss = np.array([_blank_text(v) for v in size])
         vals = np.array([0 if m else int(v) for v, m in zip(size, miss, strict=True)],
                         dtype=np.int64)

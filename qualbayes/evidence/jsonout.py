@@ -11,10 +11,20 @@ import numpy as np
 _AS_IS = frozenset({str, int, bool, type(None)})
 
 
+class PlainRows(list):
+    """A list whose items were built JSON-plain (str, int, finite float, bool, None, and
+    lists and str-keyed dicts of those), e.g. a record's 200,000 lot rows built column by
+    column: :func:`plain` keeps it as it is instead of walking every value again. A value
+    that is not plain after all still cannot pass unseen: the canonical JSON of the seal
+    (``allow_nan=False``, no default encoder) refuses NaN and numpy or pandas scalars."""
+
+    __slots__ = ()
+
+
 def plain(value):
     """Recursively convert numpy/pandas values to JSON-ready Python values."""
     kind = type(value)  # the commonest exact types first (a record of 200,000 lots)
-    if kind in _AS_IS:
+    if kind in _AS_IS or kind is PlainRows:
         return value
     if kind is float:
         return value if math.isfinite(value) else None

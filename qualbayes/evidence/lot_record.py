@@ -14,7 +14,7 @@ from qualbayes import cross_check
 from qualbayes.caution import CAUTION, STANDARDS
 from qualbayes.data.lot_table import LotTable
 from qualbayes.evidence.explain import HISTORY_NOTE, NEXT_STEP, gate_line, lots_columns
-from qualbayes.evidence.jsonout import plain, without_draws  # noqa: F401 - re-export
+from qualbayes.evidence.jsonout import PlainRows, plain, without_draws  # noqa: F401 - re-export
 from qualbayes.evidence.numbers import count, plural, probability, rate
 from qualbayes.evidence.prior_record import prior_lines, prior_sheets, sensitivity_lines
 from qualbayes.evidence.terminal import table as text_table
@@ -42,10 +42,6 @@ def engine_line(engine: dict) -> str:
             f"{engine['max_error']:.2g}; run in {engine['processes']}")
 
 
-def _none(v):
-    return None if v is None or (not isinstance(v, str) and pd.isna(v)) else v
-
-
 def _plain_column(series: pd.Series) -> list:
     """A column as plain Python values (None for a missing or non-finite number): what
     :func:`qualbayes.evidence.jsonout.plain` makes of each cell, a column at a time."""
@@ -53,16 +49,18 @@ def _plain_column(series: pd.Series) -> list:
         return [v if math.isfinite(v) else None for v in series.tolist()]
     if pd.api.types.is_integer_dtype(series.dtype) or pd.api.types.is_bool_dtype(series.dtype):
         return series.to_numpy(dtype=object, na_value=None).tolist()
-    return [plain(_none(v)) for v in series.tolist()]
+    missing = series.isna().tolist()  # None, NaN, NA, NaT; never a string
+    return [None if m else plain(v) for v, m in zip(series.tolist(), missing, strict=True)]
 
 
 def _flag(values: list) -> list:
     return [None if v is None else bool(v) for v in values]
 
 
-def _lot_rows(frame: pd.DataFrame) -> list[dict]:
+def _lot_rows(frame: pd.DataFrame) -> PlainRows:
     """The record's ``lots``: one dict per lot, built column by column (the same values as
-    building each row with :func:`_none`)."""
+    building each row cell by cell with :func:`plain`, tests/test_lot_batch_io.py), as
+    :class:`PlainRows` so that sealing the record does not walk them again."""
     col = {c: _plain_column(frame[c]) for c in frame.columns}
     col["too_close"] = _flag(col["too_close"])
     col["outlier"] = _flag(col["outlier"])
@@ -73,18 +71,15 @@ def _lot_rows(frame: pd.DataFrame) -> list[dict]:
     rest = ("decision_basis", "decision", "too_close", "group", "outlier", "outlier_p",
             "own_data_prob", "own_data_decision", "extra_clean_units_to_accept",
             "remaining_units")
-    lots = []
-    for i in range(len(frame)):
-        row = {k: col[k][i] for k in keys}
-        row["interval"] = [col["interval_low"][i], col["interval_high"][i]]
-        row.update({k: col[k][i] for k in tail})
-        if error is not None:
-            row["prob_within_spec_error"] = error[i]
-        row.update({k: col[k][i] for k in rest})
-        row["remaining_defectives"] = {"median": col["remaining_defectives_median"][i],
-                                       "upper_bound": col["remaining_defectives_upper"][i]}
-        lots.append(row)
-    return lots
+    col["interval"] = [[lo, hi] for lo, hi in zip(col["interval_low"], col["interval_high"],
+                                                  strict=True)]
+    col["remaining_defectives"] = [
+        {"median": m, "upper_bound": u} for m, u in zip(
+            col["remaining_defectives_median"], col["remaining_defectives_upper"], strict=True)]
+    order = (*keys, "interval", *tail, *(("prob_within_spec_error",) if error is not None
+                                          else ()), *rest, "remaining_defectives")
+    return PlainRows(dict(zip(order, values, strict=True))
+                     for values in zip(*(col[k] for k in order), strict=True))
 
 
 def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str,
@@ -119,7 +114,7 @@ def lots_record(result: LotAssessment, data: LotTable, sha256: str, command: str
         "decision_counts": result.lots["decision"].value_counts().to_dict(),
         "caution": CAUTION, "standards": list(STANDARDS),
         "command": command, "versions": versions,
-    }) | {"lots": lots}  # the lots are plain already (built column by column); same key order
+    }) | {"lots": lots}  # plain already (PlainRows, built column by column); same key order
 
 
 #: A terminal shows at most this many lot rows; the rest are counted and left to the files.

@@ -78,7 +78,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     can run on ``workers`` threads (None: the CPUs this process may use; numpy and scipy
     release the interpreter lock in their array loops); the numbers do not depend on it.
     The default is 1; the history path passes None: on the idle 2-core machine the full
-    answers of 1,000 lots took 1.03 s on two threads against 1.42 s on one (docs/speed.md)."""
+    answers of 1,000 lots took 0.86-1.05 s on two threads against 1.19-1.24 s on one
+    (docs/speed.md)."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}

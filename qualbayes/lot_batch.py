@@ -57,19 +57,18 @@ def _chunk_job(frame: pd.DataFrame, labels: list[str], positions: list[np.ndarra
 def run_chunks(frame: pd.DataFrame, groups: dict[str, np.ndarray], spec: float,
                confidence: float, prior, size: int = GRID_SIZE, *, processes: int | None = None,
                scheduler: str | None = None, chunk_lots: int | None = None,
-               local_pool: bool = False) -> dict[str, dict]:
+               pool: int | None = None) -> dict[str, dict]:
     """label -> answers of every group: here, or through Dask when ``processes`` (a
     LocalCluster of that many processes) or ``scheduler`` (an address) is given; without
-    them and with ``local_pool``, on new local processes when the batch is large
-    (:func:`local_processes`). The answers are the same in every case (tested)."""
+    them, on ``pool`` new local processes when given (:func:`local_processes`). The answers
+    are the same in every case (tested)."""
     chunk_lots = CHUNK_LOTS if chunk_lots is None else chunk_lots
     if processes is None and scheduler is None:
-        cpus = local_processes(len(groups)) if local_pool else None
-        if cpus is None:  # one process: its threads share the groups
+        if not pool:  # one process: its threads share the groups
             return answer_groups(frame, groups, spec, confidence, prior, size)
         # four chunks per process, so that an uneven chunk does not leave a CPU idle
-        parts = _parts(frame, groups, min(chunk_lots, max(1, -(-len(frame) // (4 * cpus)))))
-        return _run_pool(parts, spec, confidence, prior, size, cpus)
+        parts = _parts(frame, groups, min(chunk_lots, max(1, -(-len(frame) // (4 * pool)))))
+        return _run_pool(parts, spec, confidence, prior, size, pool)
     if processes:  # at least two chunks per process, so that every process has work
         chunk_lots = min(chunk_lots, max(1, -(-len(frame) // (2 * processes))))
     parts = _parts(frame, groups, chunk_lots)
@@ -160,9 +159,9 @@ def assess_quadrature(frame: pd.DataFrame, spec: float, confidence: float, hyper
     from qualbayes.lot_question import MODEL_HISTORY, LotAssessment, lot_columns  # noqa: PLC0415
 
     groups = group_rows(frame, group_by)
-    answers = run_chunks(frame, groups, spec, confidence, hyper, size, processes=processes,
-                         scheduler=scheduler, local_pool=local_pool)
     pool = local_processes(len(groups)) if local_pool and not (processes or scheduler) else None
+    answers = run_chunks(frame, groups, spec, confidence, hyper, size, processes=processes,
+                         scheduler=scheduler, pool=pool)
     labels = list(groups)
     order = np.concatenate([groups[g] for g in labels]) if labels else np.zeros(0, int)
     group = np.empty(len(frame), dtype=object)

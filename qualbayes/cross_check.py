@@ -73,20 +73,23 @@ def lot_group(mu, kappa, x, n, spec: float, prior, grids=None) -> dict:
                     "2-D quadrature of (logit mu, log(tau - tau_lo)), 160 x 160 grid")
 
 
-def lot_groups(fit, data, names, spec: float, prior) -> dict[str, dict | None]:
-    """label -> cross-check of each group whose gate passed (None otherwise). The grids of
-    all those groups are computed together (:func:`qualbayes.models.lot_history_grid.
-    posterior_grids`: one shared coarse pass per chunk of groups)."""
+def lot_groups(held: dict, data, names, spec: float, prior) -> dict[str, dict | None]:
+    """label -> cross-check of each group whose gate passed (None otherwise). ``held[label]``:
+    the fit holding the group's draws and the group's part in it (a close call may have
+    continued some groups' chains in a later fit). The grids of all those groups are
+    computed together (:func:`qualbayes.models.lot_history_grid.posterior_grids`: one shared
+    coarse pass per chunk of groups)."""
     from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
 
-    passed = [j for j, label in enumerate(names) if fit.gate.select(label).passed]
+    passed = [j for j, label in enumerate(names) if held[label][0].gate.select(label).passed]
     terms = [grid.group_terms(*data[j]) for j in passed]
     fine = grid.posterior_grids(terms, prior, size=160)
     half = grid.posterior_grids(terms, prior, size=100)
     out: dict[str, dict | None] = dict.fromkeys(names)
     for k, j in enumerate(passed):
         x, n = data[j]
-        out[names[j]] = lot_group(fit.draws["mu"][:, :, j], fit.draws["kappa"][:, :, j], x, n,
+        fit, i = held[names[j]]
+        out[names[j]] = lot_group(fit.draws["mu"][:, :, i], fit.draws["kappa"][:, :, i], x, n,
                                   spec, prior, grids=(fine[k], half[k]))
     return out
 

@@ -23,11 +23,20 @@ from qualbayes.questions import NOT_CONVERGED
 #: 1 of 5 seeds at 0.95, 4,000 draws) and 0.99 none, at about the same wall time
 TARGET_ACCEPT = 0.99
 
+#: from this many parts, a close call continues only the parts that have one (each from its
+#: own adapted state), and the parts can then hold different numbers of draws
+#: (``LotResult.idata`` raises ``DrawCountError``; ``idata_of(part)`` gives each). Below it,
+#: every part continues, so a result of a few parts keeps one rectangular InferenceData at a
+#: small cost. With 1,000 parts x 20 lots some lot is close in nearly every round, and
+#: continuing every part took about 43 of the command's 71 minutes (docs/speed.md).
+ALONE_FROM = 10
+
 
 def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, decision_basis):
     from qualbayes.inference.run import SamplerSettings  # noqa: PLC0415 - jax path
     from qualbayes.lot_question import MAX_EXTRA_RUNS, MODEL_HISTORY, LotAssessment, _columns  # noqa: PLC0415
     from qualbayes.models.lot_history import fit_histories, more_draws  # noqa: PLC0415
+    from qualbayes.models.lot_history_parts import is_part_fit  # noqa: PLC0415
 
     settings = settings or SamplerSettings(seed=seed, target_accept=TARGET_ACCEPT)
     groups = group_rows(frame, group_by)
@@ -37,33 +46,34 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     names = list(groups)
     fit = fit_histories(data, settings, names=names, prior=hyper)
     per_chain = fit.settings.num_samples
-    index = {label: j for j, label in enumerate(names)}  # each group's part in the fit
+    held = {label: (fit, j) for j, label in enumerate(names)}  # the fit of each group's draws
+    alone = is_part_fit(fit) and len(names) >= ALONE_FROM
     outliers = _outliers(frame, groups, hyper)
-    parts = _answer_groups(frame, groups, fit, index, spec, confidence, outliers, full=False)
-    runs = 0
+    parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False)
+    runs, continued = 0, set()
     while runs < MAX_EXTRA_RUNS:
-        if not any(ok and bool(np.any(ans.get("too_close", [])))
-                   for ans, ok in parts.values()):
+        close = [label for label, (ans, ok) in parts.items()
+                 if ok and bool(np.any(ans.get("too_close", [])))]
+        if not close:
             break
         runs += 1
-        # the whole fit continues, every part from its own adapted state, so every group
-        # keeps the same number of draws (``LotResult.idata`` stays one InferenceData)
-        fit = more_draws(fit)
-        parts = _answer_groups(frame, groups, fit, index, spec, confidence, outliers,
-                               full=False)
-    checks = cross_check.lot_groups(fit, data, names, spec, hyper)
+        changed = _continue(held, close if alone else names, more_draws)
+        continued.update(changed)
+        parts |= _answer_groups(frame, {label: groups[label] for label in changed}, held, spec,
+                                confidence, outliers, full=False)
+    checks = cross_check.lot_groups(held, data, names, spec, hyper)
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
-             _answer_groups(frame, groups, fit, index, spec, confidence, outliers,
+             _answer_groups(frame, groups, held, spec, confidence, outliers,
                             known=parts).items()}
     out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
     out["decision_basis"] = list(frame["decision_basis"])  # kept for lots without a verdict
     diagnostics, next_lot, draws = {}, {}, {}
     for label, idx in groups.items():
         ans, ok = parts[label]
-        j = index[label]
-        diagnostics[label] = cross_check.attach(fit.gate.select(label).to_dict(),
+        own, j = held[label]
+        diagnostics[label] = cross_check.attach(own.gate.select(label).to_dict(),
                                                 checks[label])
-        draws[label] = {"mu": fit.draws["mu"][:, :, j], "kappa": fit.draws["kappa"][:, :, j]}
+        draws[label] = {"mu": own.draws["mu"][:, :, j], "kappa": own.draws["kappa"][:, :, j]}
         if not ok:
             next_lot[label] = {"decision": NOT_CONVERGED}
             for i in idx:
@@ -71,7 +81,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
             continue
         mu, kappa = draws[label]["mu"].reshape(-1), draws[label]["kappa"].reshape(-1)
         next_lot[label] = next_lot_summary(mu * kappa, (1 - mu) * kappa, spec, confidence,
-                                           fit.draws["mu"].shape[0])
+                                           own.draws["mu"].shape[0])
         for c, values in ans.items():
             vals = list(values)
             for k, i in enumerate(idx):
@@ -96,10 +106,8 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
                      "'not-converged' and no decision")
     notes.append(cross_check.summary_line(checks))
     if runs:
-        notes.append(f"close calls: the adapted chains were continued {runs} time(s) by "
-                     f"{per_chain:,} draws per chain, without a new warmup (cap "
-                     f"{MAX_EXTRA_RUNS}), to settle P within its Monte Carlo error; the gate "
-                     "and every P use all the draws")
+        notes.append(_continued_note(runs, per_chain, len(continued), len(names), alone,
+                                     MAX_EXTRA_RUNS))
     notes += lot_notes(frame[~conv], conflict=None)
     model = MODEL_HISTORY.format(spread=_spread_words(hyper), groups=", ".join(group_by))
     spread = {"stated_scale": hyper.cv_scale, "words": hyper.describe(),
@@ -131,26 +139,65 @@ def _outliers(frame, groups, hyper) -> dict[str, np.ndarray]:
     return out
 
 
-def _answer_groups(frame, groups, fit, index, spec, confidence, outliers, full=True,
+def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
                    known=None) -> dict:
-    """label -> (answers of the group's lots, converged) for every group; ``index[label]``:
-    the group's part in ``fit``; ``known``: the same call's ``full=False`` answers from the
-    same draws (P is not summed again)."""
+    """label -> (answers of the group's lots, converged) for every group of ``groups``;
+    ``held[label]``: the fit holding the group's latest draws and the group's part in it;
+    ``known``: the same call's ``full=False`` answers from the same draws (P is not summed
+    again)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
     out = {}
-    chains = fit.draws["mu"].shape[0]
     for label, idx in groups.items():
+        fit, j = held[label]
         if not fit.gate.select(label).passed:
             out[label] = ({}, False)
             continue
-        j = index[label]
         mu = fit.draws["mu"][:, :, j].reshape(-1)
         kappa = fit.draws["kappa"][:, :, j].reshape(-1)
-        ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, chains, spec,
-                          confidence, full, known=None if known is None else known[label][0],
-                          workers=None)
+        ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, fit.draws["mu"].shape[0],
+                          spec, confidence, full,
+                          known=None if known is None else known[label][0], workers=None)
         ans["outlier_p"] = outliers[label]
         ans["outlier"] = list(outliers[label] < OUTLIER_LEVEL)
         out[label] = (ans, True)
     return out
+
+
+def _continue(held: dict, labels: list[str], more_draws) -> list[str]:
+    """Continue the chains of the groups ``labels`` (``held`` updated in place); returns the
+    labels whose draws changed. Parts sampled as their own problems continue each from its
+    own adapted state (``more_draws(fit, parts=...)``: the Fit returned holds only them); a
+    joint fit is continued whole, so every group it holds changes."""
+    from qualbayes.models.lot_history_parts import is_part_fit  # noqa: PLC0415
+
+    by_fit: dict[int, list[str]] = {}
+    for label in labels:
+        by_fit.setdefault(id(held[label][0]), []).append(label)
+    changed = []
+    for mine in by_fit.values():
+        fit = held[mine[0]][0]
+        if is_part_fit(fit):
+            new = more_draws(fit, parts=[held[label][1] for label in mine])
+            held.update({label: (new, k) for k, label in enumerate(mine)})
+            changed += mine
+        else:
+            new = more_draws(fit)
+            every = [label for label, (f, _) in held.items() if f is fit]
+            held.update({label: (new, held[label][1]) for label in every})
+            changed += every
+    return changed
+
+
+def _continued_note(runs: int, per_chain: int, continued: int, parts: int, alone: bool,
+                    cap: int) -> str:
+    """The note on the close-call rounds: how many rounds, and which chains continued."""
+    if not alone:
+        return (f"close calls: the adapted chains were continued {runs} time(s) by "
+                f"{per_chain:,} draws per chain, without a new warmup (cap {cap}), to settle "
+                "P within its Monte Carlo error; the gate and every P use all the draws")
+    return (f"close calls: the adapted chains of the parts with a close call ({continued:,} "
+            f"of {parts:,} parts) were continued, in up to {runs} round(s) of {per_chain:,} "
+            f"draws per chain, without a new warmup (cap {cap}), to settle P within its Monte "
+            "Carlo error; each part's gate and P use all its draws, and the other parts keep "
+            "their first draws")

@@ -147,14 +147,23 @@ class _Ticker:
         return time.monotonic() - self.start
 
 
-def fit_started(settings) -> tuple[int, _Ticker | None]:
-    """Show that one NUTS fit runs, with its time elapsed; returns what
+def fit_started(settings, what: str | None = None) -> tuple[int, _Ticker | None]:
+    """Show that one NUTS fit runs, with its time elapsed; ``what``: words put before the
+    chains (e.g. ``"more draws for close calls, 12 parts"``); returns what
     :func:`fit_finished` needs."""
     global _FITS
     _FITS += 1
     iterations = settings.num_warmup + settings.num_samples
-    text = f"sampling, fit {_FITS}: {settings.num_chains} chains x {iterations:,} iterations"
+    text = (f"sampling, fit {_FITS}: {what + ', ' if what else ''}{settings.num_chains} "
+            f"chains x {iterations:,} iterations")
     return _FITS, (_Ticker(text) if enabled() else None)
+
+
+def fit_step(started: tuple[int, _Ticker | None], done: int, total: int, unit: str) -> None:
+    """Add ``done of total unit`` to the running fit's line (e.g. the parts sampled)."""
+    ticker = started[1]
+    if ticker is not None:
+        ticker.text = f"{ticker.text.split(' [')[0]} [{done:,} of {total:,} {unit}]"
 
 
 def fit_finished(started: tuple[int, _Ticker | None]) -> None:

@@ -63,11 +63,18 @@ def _shape_text(shape: tuple) -> str:
 
 def _own_flags(name: str, dim: str, fits: tuple, shape: tuple):
     """The fit that produced ``name``'s draws (the last fit naming it in coordinate ``dim``
-    whose divergence flags have the draws' shape) and those flags, or (None, None)."""
+    whose divergence flags have the draws' shape) and those flags, or (None, None). A fit
+    whose parts were each their own sampler gives that part's own column of
+    ``diverging_parts``, not the any-part flags."""
     for f in reversed(fits):
         names = [str(c) for c in (getattr(f, "coords", None) or {}).get(dim, [])]
+        if str(name) not in names:
+            continue
+        per_part = getattr(f, "diverging_parts", None)
+        if per_part is not None and np.shape(per_part) == (*shape, len(names)):
+            return f, np.asarray(per_part)[..., names.index(str(name))]
         flags = getattr(f, "diverging", None)
-        if str(name) in names and flags is not None and np.shape(flags) == tuple(shape):
+        if flags is not None and np.shape(flags) == tuple(shape):
             return f, np.asarray(flags)
     return None, None
 
@@ -110,7 +117,10 @@ def _posterior_idata(draws: dict, dim: str, names: list[str], fits: tuple, obser
     if per_part is not None:  # parts sampled as independent problems, each its own flags
         diverging = per_part
         dims["diverging"] = [dim]
-    elif all(f is not None for f, _ in own) and len({id(f) for f, _ in own}) > 1:
+    elif all(f is not None for f, _ in own) and (
+            len({id(f) for f, _ in own}) > 1
+            or getattr(own[0][0], "diverging_parts", None) is not None):
+        # elements from several fits, or parts each their own sampler: each its own flags
         diverging = np.stack([flags for _, flags in own], axis=-1)
         dims["diverging"] = [dim]
     elif own and own[0][0] is not None and all(f is own[0][0] for f, _ in own):

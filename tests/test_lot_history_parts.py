@@ -213,3 +213,60 @@ def test_a_close_call_continues_every_part_of_the_fit():
     assert any(n.startswith("close calls: the adapted chains") for n in res.notes)
     q_lots = res.lots[res.lots.part == "Q"]
     assert set(q_lots["decision"]) == {"accept"} and not q_lots["too_close"].any()
+
+
+def _close_and_clean_parts(clean_parts: int):
+    """Part "P" (0, 1 and 2 defectives of 80, 125, 80) and ``clean_parts`` clean parts (8
+    lots of 0 of 200 each), and C: the exact (quadrature) P of P's lot "B" (1 of 125) at a
+    spec of 3%, so that lot is within a few MCSE of C and the call is close. Reference: the
+    2-D quadrature of models/lot_history_grid.py."""
+    import pandas as pd
+
+    from qualbayes.models import lot_history_grid as grid
+
+    rows = [("A", "P", 80, 0), ("B", "P", 125, 1), ("C", "P", 80, 2)]
+    rows += [(f"Q{k}-{i}", f"Q{k}", 200, 0) for k in range(clean_parts) for i in range(8)]
+    frame = pd.DataFrame(rows, columns=["lot", "part", "inspected", "defectives"])
+    c = float(grid.prob_within(grid.posterior_grid([0, 1, 2], [80, 125, 80], size=800),
+                               [1], [125], 0.03)[0])
+    return frame, c
+
+
+def test_with_many_parts_a_close_call_continues_only_its_own_part(monkeypatch):
+    """From ``ALONE_FROM`` parts, a close call continues only the parts that have one. The
+    continued part's draws are bit for bit those it gets when every part is continued (each
+    part continues from its own adapted state with its own keys), so its answers are the
+    same; the other parts keep their first draws. The parts then hold different numbers of
+    draws: ``idata`` raises ``DrawCountError`` and ``idata_of`` gives each part with its own
+    divergence flags."""
+    import qualbayes as qb
+    from qualbayes import lot_history_answers
+
+    frame, c = _close_and_clean_parts(lot_history_answers.ALONE_FROM)
+    s = SamplerSettings(num_warmup=500, num_samples=500, seed=2, target_accept=0.99)
+    alone = qb.assess_lots(frame, spec="3%", confidence=c, prior="history", settings=s)
+    assert alone.converged
+    p_mu = alone.assessment.draws["P"]["mu"]
+    assert p_mu.shape[1] > 500  # P was continued
+    for k in range(lot_history_answers.ALONE_FROM):
+        assert alone.assessment.draws[f"Q{k}"]["mu"].shape == (4, 500)  # the others were not
+    assert any(f"(1 of {lot_history_answers.ALONE_FROM + 1} parts)" in n for n in alone.notes)
+    assert alone.diagnostics["P"]["settings"]["continued_draws_per_chain"] > 0
+    assert "continued_draws_per_chain" not in alone.diagnostics["Q0"]["settings"]
+    with pytest.raises(qb.DrawCountError, match="idata_of"):
+        _ = alone.idata
+    one = alone.idata_of("P")
+    np.testing.assert_array_equal(one.posterior["mu"].values[..., 0], p_mu)
+    last = [f for f in alone.fits if getattr(f, "coords", {}).get("part") == ["P"]][-1]
+    np.testing.assert_array_equal(one.sample_stats["diverging"].values[..., 0],
+                                  last.diverging_parts[..., 0])
+
+    monkeypatch.setattr(lot_history_answers, "ALONE_FROM", 10**9)
+    every = qb.assess_lots(frame, spec="3%", confidence=c, prior="history", settings=s)
+    np.testing.assert_array_equal(every.assessment.draws["P"]["mu"], p_mu)
+    assert every.assessment.draws["Q0"]["mu"].shape == p_mu.shape  # every part continued
+    assert every.idata.posterior["mu"].shape == (4, p_mu.shape[1], len(alone.diagnostics))
+    cols = ["lot", "prob_within_spec", "prob_within_spec_mcse", "decision", "too_close"]
+    on_p = alone.lots["part"] == "P"
+    assert alone.lots.loc[on_p, cols].equals(every.lots.loc[on_p, cols])
+    assert alone.lots["decision"].tolist() == every.lots["decision"].tolist()

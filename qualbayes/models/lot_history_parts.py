@@ -84,11 +84,11 @@ def fit_parts(groups, settings: SamplerSettings, names: list[str], prior,
     state = _PartChains(model, xs, ns, ws, scale, settings, list(names), chunk or CHUNK)
     started = progress.fit_started(settings)
     try:
-        state.run(np.arange(len(groups)), settings)
+        state.run(np.arange(len(groups)), settings, started)
         fit = state.fit()
         failed = [j for j, name in enumerate(names) if not fit.gate.select(part=name).passed]
         if failed and settings.retry:
-            state.run(np.array(failed), harder_for_part(settings))
+            state.run(np.array(failed), harder_for_part(settings), started)
             state.retried = [names[j] for j in failed]
             fit = state.fit()
     finally:
@@ -111,11 +111,21 @@ def continue_parts(fit: Fit, num_samples: int | None = None, parts=None) -> Fit:
     part's gate is judged again on all its draws. ``parts`` (indices into the fit's parts,
     default all): only these are continued, and the Fit returned holds only them, in that
     order (the others keep their draws in ``fit``)."""
+    from qualbayes import progress  # noqa: PLC0415
+
     if not isinstance(fit.sampler, _PartChains):
         raise ValueError("this fit holds no per-part sampler state to continue")
     more = int(num_samples or fit.settings.num_samples)
     chains = fit.sampler if parts is None else fit.sampler.subset(parts)
-    return record(chains.extended(more).fit())
+    k = len(chains.names)
+    started = progress.fit_started(replace(fit.settings, num_warmup=0, num_samples=more),
+                                   what=f"more draws for close calls, {k:,} part{'s' * (k > 1)}")
+    try:
+        out = chains.extended(more, started).fit()
+    finally:
+        progress.fit_finished(started)
+    progress.fit_checked(started, out.gate.passed, False)
+    return record(out)
 
 
 def is_part_fit(fit: Fit) -> bool:
@@ -143,8 +153,11 @@ class _PartChains:
     retried: list | None = None
     continued: int = 0
 
-    def run(self, parts: np.ndarray, s: SamplerSettings) -> None:
-        """Sample ``parts`` (indices) with ``s`` in chunks; results replace those parts'."""
+    def run(self, parts: np.ndarray, s: SamplerSettings, started=None) -> None:
+        """Sample ``parts`` (indices) with ``s`` in chunks; results replace those parts'.
+        ``started``: the progress line of the fit (:func:`qualbayes.progress.fit_started`)."""
+        from qualbayes import progress  # noqa: PLC0415
+
         k = len(self.names)
         if self.mu is None:
             shape = (s.num_chains, s.num_samples, k)
@@ -163,6 +176,8 @@ class _PartChains:
             self.mu[:, :, idx], self.kappa[:, :, idx], self.div[:, :, idx] = mu, kappa, div
             for i, j in enumerate(idx):
                 self.states[j] = (s, take_part(st, i))
+            if started is not None:
+                progress.fit_step(started, start + len(idx), len(parts), "parts")
 
     def subset(self, parts) -> _PartChains:
         """The same chains for the parts ``parts`` (indices) only, in that order."""
@@ -174,10 +189,13 @@ class _PartChains:
                        div=self.div[:, :, idx], states=[self.states[j] for j in idx],
                        retried=retried)
 
-    def extended(self, more: int) -> _PartChains:
+    def extended(self, more: int, started=None) -> _PartChains:
         """Every part's chains continued by ``more`` draws (grouped by the settings their
-        warmup used, so each group runs through the code that adapted it)."""
-        k = len(self.names)
+        warmup used, so each group runs through the code that adapted it). ``started``: the
+        progress line of the continuation."""
+        from qualbayes import progress  # noqa: PLC0415
+
+        k, done = len(self.names), 0
         new = [np.empty((self.mu.shape[0], more, k)) for _ in range(2)]
         new_div = np.zeros((self.mu.shape[0], more, k), bool)
         states = list(self.states)
@@ -194,6 +212,9 @@ class _PartChains:
                 new[0][:, :, idx], new[1][:, :, idx], new_div[:, :, idx] = mu, kappa, div
                 for i, j in enumerate(idx):
                     states[j] = (self.states[j][0], take_part(st, i))
+                done += len(idx)
+                if started is not None:
+                    progress.fit_step(started, done, k, "parts")
         return replace(self, mu=np.concatenate([self.mu, new[0]], axis=1),
                        kappa=np.concatenate([self.kappa, new[1]], axis=1),
                        div=np.concatenate([self.div, new_div], axis=1), states=states,

@@ -5,10 +5,11 @@ vmapped) over chains and, for several parts per call, vmapped over parts.
 Two compiled programs per model, shape and settings (:func:`_compiled`): ``init`` (initial
 point, step-size search) and ``steps`` (up to :data:`STEPS` transitions, the warmup's
 adaptation inside by the iteration counter); warmup, draws and every continuation call the
-same ``steps``. A single part is called without a vmap (batching NUTS's while loops costs
-seconds of tracing). Part ``j``'s random keys come from ``fold_in(seed, j)``
-(:func:`part_keys`) and padding lanes repeat the call's last part, so a part's draws do not
-depend on the other parts of its call.
+same ``steps``. The first use of a shape compiles both at once, on two threads (a first-ever
+run waits for the longer of the two compilations, not their sum). A single part is called
+without a vmap (batching NUTS's while loops costs seconds of tracing). Part ``j``'s random
+keys come from ``fold_in(seed, j)`` (:func:`part_keys`) and padding lanes repeat the call's
+last part, so a part's draws do not depend on the other parts of its call.
 
 >>> width_for(3, 8), width_for(100, 1), width_for(5, 4)
 (4, 1, 4)
@@ -16,6 +17,7 @@ depend on the other parts of its call.
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
 from functools import lru_cache, partial
 
 import numpy as np
@@ -184,16 +186,35 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
 
     init = mapped(chain_init, (0, None, None, None))
     steps = mapped(chain_steps, (0, None, None, None, None))
+    ready: dict = {}  # input shapes -> (init, steps) compiled for them
+
+    def programs(keys, x, n, w):
+        """``init`` and ``steps`` compiled for these shapes. The first time, both are lowered
+        here and compiled at once on two threads (XLA releases the interpreter lock while it
+        compiles; the persistent cache serves either as usual). The executables are the
+        same programs as a plain call would compile, so the draws do not change."""
+        sig = (keys.shape[0], x.shape, n.shape, w.shape)  # (chains, data shapes)
+        if sig not in ready:
+            first = init.lower(keys, x, n, w)
+            states = jax.tree.map(lambda a: jax.ShapeDtypeStruct(a.shape, a.dtype),
+                                  first.out_info)
+            count = jax.ShapeDtypeStruct((), jnp.int32)
+            lowered = [first, steps.lower(states, x, n, w, count)]
+            with ThreadPoolExecutor(2) as pool:
+                ready[sig] = tuple(pool.map(lambda lo: lo.compile(), lowered))
+        return ready[sig]
 
     def advance(states, x, n, w, total, keep=True):
         """``total`` transitions in calls of at most STEPS: (mu, kappa, div) as (chain, part,
         draw) and the last states. States enter every call as numpy arrays (one input
         signature, so the first run and a continuation share one trace)."""
         kept, done = [], 0
+        sig = (jax.tree.leaves(states)[0].shape[0], x.shape, n.shape, w.shape)
+        step = ready[sig][1] if sig in ready else steps  # a state from elsewhere: plain call
         while done < total:
             c = min(STEPS, total - done)
             states = jax.tree.map(np.asarray, states)
-            *out, states = steps(states, x, n, w, jnp.asarray(c, jnp.int32))
+            *out, states = step(states, x, n, w, jnp.asarray(c, jnp.int32))
             if keep:
                 kept.append([np.asarray(a)[:, :, :c] for a in out])
             done += c
@@ -202,7 +223,8 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
         return (*(np.concatenate([k[i] for k in kept], axis=2) for i in range(3)), states)
 
     def run(keys, x, n, w):
-        *_, states = advance(init(keys, x, n, w), x, n, w, num_warmup, keep=False)
+        start, _ = programs(keys, x, n, w)
+        *_, states = advance(start(keys, x, n, w), x, n, w, num_warmup, keep=False)
         return advance(states, x, n, w, num_samples)
 
     def cont(more):

@@ -280,3 +280,25 @@ def test_history_edge_parts_give_finite_sensible_decisions(history):
     for part_name, gate in history.diagnostics.items():
         assert gate["passed"] and gate["divergences"] == 0, part_name
         assert np.isfinite(history.next_lot[part_name]["mean"])
+
+
+@pytest.mark.parametrize("q, alpha, beta", [
+    # found by a random search over mixtures: Newton's step lands where expit rounds p to
+    # exactly 0 or 1, whose log is -inf (the density there is 0 and the step bisects)
+    (0.999999, [0.5644409108191676, 0.0719892638287456, 0.057771986683554315,
+                75.14594476016886, 183.9750582624694],
+     [11.701557842884009, 35.356033222538535, 6.636766839814641, 224.89909030937227,
+      76.91354409636486]),
+    (0.95, [10.471950186800722, 1.0420615696737532], [1.6897338050998296, 150.2753334783132]),
+])
+def test_mixture_quantile_at_a_rounded_end_warns_nothing_and_is_right(q, alpha, beta):
+    """The quantile of a Beta mixture where the search passes p = 0 or 1 in floating point:
+    no RuntimeWarning reaches the user, and the answer's CDF is q by scipy.stats.beta (an
+    equal-weight mixture of scipy's Beta CDFs)."""
+    import warnings
+
+    a, b = np.array(alpha), np.array(beta)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        value = mixtures.ppf(q, a, b)
+    assert np.mean(stats.beta.cdf(value, a, b)) == pytest.approx(q, abs=1e-9)

@@ -51,8 +51,10 @@ def _newton_ppf(q, alpha, beta, steps: int = 40) -> float | None:
             hi = t
         else:
             lo = t
-        # d F / d t = mixture density at p times p (1 - p)
-        density = np.exp(alpha * np.log(p) + beta * np.log1p(-p) - log_norm)
+        # d F / d t = mixture density at p times p (1 - p); at p rounded to 0 or 1 the log
+        # is -inf and the density 0 (the step then bisects): no warning for the user
+        with np.errstate(divide="ignore"):
+            density = np.exp(alpha * np.log(p) + beta * np.log1p(-p) - log_norm)
         slope = float(np.mean(density))
         step = f / slope if slope > 0 else np.inf
         nxt = t - step

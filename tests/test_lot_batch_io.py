@@ -167,3 +167,24 @@ def test_digest_from_parts_equals_the_digest_of_the_whole():
             keys.update({f"{key}[{i}]": sha(item) for i, item in enumerate(value)})
     assert got["content"] == sha(body)
     assert got["keys"] == keys and list(got["keys"]) == list(keys)
+
+
+@pytest.mark.parametrize("array", [
+    np.array([[0.25, 1e-300], [3.0, -2.5]]), np.array([[1, 2], [3, 4]], dtype=np.int64),
+    np.array([True, False]), np.array([1.5, np.nan, np.inf]), np.zeros((2, 0)),
+    np.array([1.0, 2.0], dtype=np.float32), np.array(["a", "b"]),
+])
+def test_plain_arrays_take_the_short_way_and_equal_the_long_one(array):
+    """Arrays of bools, integers and finite floats (the posterior draws of a record) become
+    lists by ``tolist()`` alone; the result equals element-by-element conversion, with NaN
+    and infinity still written as None."""
+    import json
+
+    def long_way(v):
+        if isinstance(v, list):
+            return [long_way(x) for x in v]
+        return plain(v)
+
+    got = plain(array)
+    assert got == long_way(array.tolist())
+    assert json.loads(json.dumps(got, allow_nan=False)) == got  # JSON-plain

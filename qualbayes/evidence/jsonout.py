@@ -37,6 +37,8 @@ def plain(value):
     if isinstance(value, list | tuple):
         return [plain(v) for v in value]
     if isinstance(value, np.ndarray):
+        if value.dtype.kind in "biu" or (value.dtype.kind == "f" and np.isfinite(value).all()):
+            return value.tolist()  # Python bools, ints and finite floats already (the draws)
         return [plain(v) for v in value.tolist()]
     if isinstance(value, np.integer):
         return int(value)

@@ -114,8 +114,9 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
               "implied_lot_rate": hyper.implied_lot_rate(50_000)}
     return LotAssessment(frame[_columns(frame)], spec, confidence, hyper.describe(), model,
                          settings.seed, diagnostics, next_lot, notes, draws=draws,
-                         sampler=fit.gate.settings, group_by=tuple(group_by),
-                         decision_basis=decision_basis, lot_spread=spread)
+                         sampler=_sampler_settings(fit, held, names, len(continued), alone),
+                         group_by=tuple(group_by), decision_basis=decision_basis,
+                         lot_spread=spread)
 
 
 def _spread_words(hyper) -> str:
@@ -187,6 +188,16 @@ def _continue(held: dict, labels: list[str], more_draws) -> list[str]:
             held.update({label: (new, held[label][1]) for label in every})
             changed += every
     return changed
+
+
+def _sampler_settings(fit, held: dict, names: list[str], continued: int, alone: bool) -> dict:
+    """The record's sampler settings: those of the fit holding every group's latest draws
+    (with ``continued_draws_per_chain`` after close calls); when parts were continued alone,
+    the first fit's (``fit``) with how many parts were continued (each group's own count is
+    in its diagnostics)."""
+    if not alone:
+        return held[names[0]][0].gate.settings
+    return dict(fit.gate.settings) | ({"parts_continued": continued} if continued else {})
 
 
 def _continued_note(runs: int, per_chain: int, continued: int, parts: int, alone: bool,

@@ -253,6 +253,7 @@ def test_with_many_parts_a_close_call_continues_only_its_own_part(monkeypatch):
     assert any(f"(1 of {lot_history_answers.ALONE_FROM + 1} parts)" in n for n in alone.notes)
     assert alone.diagnostics["P"]["settings"]["continued_draws_per_chain"] > 0
     assert "continued_draws_per_chain" not in alone.diagnostics["Q0"]["settings"]
+    assert alone.assessment.sampler["parts_continued"] == 1
     with pytest.raises(qb.DrawCountError, match="idata_of"):
         _ = alone.idata
     one = alone.idata_of("P")

@@ -106,9 +106,27 @@ def counts(value, name: str, least: int = 0) -> int | list[int]:
     return count(value, name, least)
 
 
+#: seeds lie in [0, 2**32), as the command line's --seed: a larger one would either be read
+#: through a float (another number above 2**53) or end the fit with jax's OverflowError
+MAX_SEED = 2**32
+
+
 def seed(value, name: str = "seed") -> int:
-    """A random seed: a whole number >= 0."""
-    return count(value, name, 0)
+    """A random seed: a whole number from 0 to 2**32 - 1, taken exactly (never through a
+    float).
+
+    >>> seed(7), seed(2**32 - 1)
+    (7, 4294967295)
+    """
+    if isinstance(value, numbers.Integral) and not isinstance(value, bool):
+        value = int(value)
+    else:
+        value = count(value, name, 0)  # a whole float such as 5.0; anything else refused
+        if value >= 2**53:  # a float this large may stand for another whole number
+            raise ParameterError(name, value, f"give a whole number from 0 to {MAX_SEED - 1}")
+    if not 0 <= value < MAX_SEED:
+        raise ParameterError(name, value, f"give a whole number from 0 to {MAX_SEED - 1}")
+    return value
 
 
 def settings_with_seed(settings, seed_value):

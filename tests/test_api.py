@@ -253,3 +253,20 @@ def test_parts_fitted_apart_keep_their_own_divergence_flags_in_idata():
     assert one.observed_data["defectives"].values.tolist() == [2, 0, 1, 3]
     with pytest.raises(KeyError, match="no part"):
         result.idata_of("C")
+
+
+@pytest.mark.parametrize("bad", [-1, 2**32, 2**63 + 5, 1.5, 2.0**60, "7", True])
+def test_a_seed_outside_the_command_lines_range_is_refused_on_entry(bad):
+    """Seeds are whole numbers from 0 to 2**32 - 1, as ``--seed``: a larger one would end the
+    fit with jax's OverflowError (from 2**63) or be read through a float as another number
+    (above 2**53), and a string or a bool is no seed. Refused before any data is read."""
+    with pytest.raises(ParameterError) as err:
+        qb.assess_lots(LOTS, spec="2%", prior="history", seed=bad)
+    assert err.value.parameter == "seed"
+
+
+def test_a_seed_is_taken_exactly():
+    from qualbayes.parameters import seed
+
+    assert seed(2**32 - 1) == 4294967295 and seed(np.int64(12)) == 12 and seed(5.0) == 5
+    assert type(seed(np.uint32(3))) is int

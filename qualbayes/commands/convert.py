@@ -16,8 +16,8 @@ from __future__ import annotations
 import re
 
 from qualbayes.errors import OptionError
+from qualbayes.parameters import MAX_SEED
 
-MAX_SEED = 2**32
 #: --failures gives one table row per count: a bound keeps a typo from asking for millions.
 MAX_FAILURE_ROWS = 200
 MAX_FAILURES = 100_000

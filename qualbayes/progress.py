@@ -127,7 +127,8 @@ class _Ticker:
     def __init__(self, text: str):
         import threading  # noqa: PLC0415
 
-        self.text, self.start, self.seconds = text, time.monotonic(), 0.0
+        self.base = self.text = text
+        self.start, self.seconds = time.monotonic(), 0.0
         self.stop = threading.Event()
         self.thread = threading.Thread(target=self._run, daemon=True)
         self.thread.start()
@@ -163,7 +164,7 @@ def fit_step(started: tuple[int, _Ticker | None], done: int, total: int, unit: s
     """Add ``done of total unit`` to the running fit's line (e.g. the parts sampled)."""
     ticker = started[1]
     if ticker is not None:
-        ticker.text = f"{ticker.text.split(' [')[0]} [{done:,} of {total:,} {unit}]"
+        ticker.text = f"{ticker.base} [{done:,} of {total:,} {unit}]"
 
 
 def fit_finished(started: tuple[int, _Ticker | None]) -> None:

@@ -198,14 +198,17 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
 
     init = mapped(chain_init, (0, None, None, None))
     steps = mapped(chain_steps, (0, None, None, None, None))
-    ready: dict = {}  # input shapes -> (init, steps) compiled for them
+    ready: dict = {}  # shape_key -> (init, steps) compiled for them
+
+    def shape_key(chains: int, x, n, w) -> tuple:
+        return chains, x.shape, n.shape, w.shape
 
     def programs(keys, x, n, w):
         """``init`` and ``steps`` compiled for these shapes. The first time, both are lowered
         here and compiled at once on two threads (XLA releases the interpreter lock while it
         compiles; the persistent cache serves either as usual). The executables are the
         same programs as a plain call would compile, so the draws do not change."""
-        sig = (keys.shape[0], x.shape, n.shape, w.shape)  # (chains, data shapes)
+        sig = shape_key(keys.shape[0], x, n, w)
         if sig not in ready:
             first = init.lower(keys, x, n, w)
             states = jax.tree.map(lambda a: jax.ShapeDtypeStruct(a.shape, a.dtype),
@@ -221,7 +224,7 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
         draw) and the last states. States enter every call as numpy arrays (one input
         signature, so the first run and a continuation share one trace)."""
         kept, done = [], 0
-        sig = (jax.tree.leaves(states)[0].shape[0], x.shape, n.shape, w.shape)
+        sig = shape_key(jax.tree.leaves(states)[0].shape[0], x, n, w)
         step = ready[sig][1] if sig in ready else steps  # a state from elsewhere: plain call
         while done < total:
             c = min(STEPS, total - done)

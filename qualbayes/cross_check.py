@@ -50,47 +50,63 @@ def _compare(names, nuts, mcse, quad, quad_err, draws: int, method: str) -> dict
                       "quadrature": float(quad[worst]), "mcse": float(mcse[worst])}}
 
 
-def lot_group(mu, kappa, x, n, spec: float, prior, grids=None) -> dict:
-    """Cross-check of one group's lot-history draws (``mu``, ``kappa`` of shape (chain,
-    draw)) against :func:`qualbayes.models.lot_history_grid.posterior_grid`; ``grids``: the
-    group's (160 x 160, 100 x 100) grids when already computed (:func:`lot_groups`)."""
+def lot_quadrature(data, spec: float, prior, chunk: int = 64) -> list[tuple]:
+    """The quadrature side of each group's cross-check, which needs no draws (so it can be
+    computed while the sampler runs): per group of ``data`` ((x, n) arrays), (distinct x,
+    distinct n, quadrature answers q, their error), q being P(p <= spec | x of n) for every
+    distinct (x, n) then the next lot's P(p <= spec), on the 160 x 160 grid, the error its
+    difference from the 100 x 100 grid plus the border mass. Groups are taken ``chunk`` at
+    a time (:func:`qualbayes.models.lot_history_grid.posterior_grids`), and only these
+    numbers are kept: the grids of one chunk at most are in memory."""
     from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
 
-    xs, ns, ws = grid.group_terms(x, n)
+    terms = [grid.group_terms(*d) for d in data]
+    out = []
+    for start in range(0, len(terms), chunk):
+        block = terms[start:start + chunk]
+        fine = grid.posterior_grids(block, prior, size=160, chunk=chunk)
+        half = grid.posterior_grids(block, prior, size=100, chunk=chunk)
+        for (xs, ns, _), g, g2 in zip(block, fine, half, strict=True):
+            q = np.append(grid.prob_within(g, xs, ns, spec), grid.next_lot_prob(g, spec))
+            q2 = np.append(grid.prob_within(g2, xs, ns, spec), grid.next_lot_prob(g2, spec))
+            out.append((xs, ns, q, np.abs(q - q2) + g.edge_mass))
+    return out
+
+
+def lot_group(mu, kappa, x, n, spec: float, prior, quadrature=None) -> dict:
+    """Cross-check of one group's lot-history draws (``mu``, ``kappa`` of shape (chain,
+    draw)) against :func:`qualbayes.models.lot_history_grid.posterior_grid`;
+    ``quadrature``: the group's entry of :func:`lot_quadrature` when already computed."""
+    xs, ns, q, q_err = quadrature or lot_quadrature([(x, n)], spec, prior)[0]
     a = (mu * kappa)[..., None]
     b = ((1.0 - mu) * kappa)[..., None]
     per_draw = np.concatenate([special.betainc(a + xs, b + ns - xs, spec),
                                special.betainc(a, b, spec)], axis=-1)
-    if grids is None:
-        g, g2 = (grid.posterior_grids([(xs, ns, ws)], prior, size=k)[0] for k in (160, 100))
-    else:
-        g, g2 = grids
-    q = np.append(grid.prob_within(g, xs, ns, spec), grid.next_lot_prob(g, spec))
-    q2 = np.append(grid.prob_within(g2, xs, ns, spec), grid.next_lot_prob(g2, spec))
     names = [f"P(p <= spec | {x:g} of {n:g})" for x, n in zip(xs, ns, strict=True)]
     return _compare(names + ["P(next lot p <= spec)"], per_draw.mean((0, 1)),
-                    mcse_mean(per_draw), q, np.abs(q - q2) + g.edge_mass, mu.size,
+                    mcse_mean(per_draw), q, q_err, mu.size,
                     "2-D quadrature of (logit mu, log(tau - tau_lo)), 160 x 160 grid")
 
 
-def lot_groups(held: dict, data, names, spec: float, prior) -> dict[str, dict | None]:
+def lot_groups(held: dict, data, names, spec: float, prior,
+               quadrature: list | None = None) -> dict[str, dict | None]:
     """label -> cross-check of each group whose gate passed (None otherwise). ``held[label]``:
     the fit holding the group's draws and the group's part in it (a close call may have
-    continued some groups' chains in a later fit). The grids of all those groups are
-    computed together (:func:`qualbayes.models.lot_history_grid.posterior_grids`: one shared
-    coarse pass per chunk of groups)."""
-    from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
-
+    continued some groups' chains in a later fit). ``quadrature``: :func:`lot_quadrature`
+    of every group of ``data``, when computed beforehand (while the sampler ran); otherwise
+    the passed groups' are computed here."""
     passed = [j for j, label in enumerate(names) if held[label][0].gate.select(label).passed]
-    terms = [grid.group_terms(*data[j]) for j in passed]
-    fine = grid.posterior_grids(terms, prior, size=160)
-    half = grid.posterior_grids(terms, prior, size=100)
+    if quadrature is None:
+        quad = dict(zip(passed, lot_quadrature([data[j] for j in passed], spec, prior),
+                        strict=True))
+    else:
+        quad = dict(enumerate(quadrature))
     out: dict[str, dict | None] = dict.fromkeys(names)
-    for k, j in enumerate(passed):
+    for j in passed:
         x, n = data[j]
         fit, i = held[names[j]]
         out[names[j]] = lot_group(fit.draws["mu"][:, :, i], fit.draws["kappa"][:, :, i], x, n,
-                                  spec, prior, grids=(fine[k], half[k]))
+                                  spec, prior, quadrature=quad[j])
     return out
 
 

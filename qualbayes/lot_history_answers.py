@@ -4,6 +4,8 @@ answers from the draws, and the outlier check by exact quadrature."""
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
+
 import numpy as np
 import pandas as pd
 
@@ -44,11 +46,13 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     n_all = frame["inspected"].to_numpy(float)
     data = [(x_all[idx], n_all[idx]) for idx in groups.values()]
     names = list(groups)
-    fit = fit_histories(data, settings, names=names, prior=hyper)
+    with ThreadPoolExecutor(1) as pool:  # what needs no draws, while the sampler runs
+        side = pool.submit(_without_draws, data, names, spec, hyper)
+        fit = fit_histories(data, settings, names=names, prior=hyper)
+        outliers, quadrature = side.result()
     per_chain = fit.settings.num_samples
     held = {label: (fit, j) for j, label in enumerate(names)}  # the fit of each group's draws
     alone = is_part_fit(fit) and len(names) >= ALONE_FROM
-    outliers = _outliers(frame, groups, hyper)
     parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False)
     runs, continued = 0, set()
     while runs < MAX_EXTRA_RUNS:
@@ -61,7 +65,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         continued.update(changed)
         parts |= _answer_groups(frame, {label: groups[label] for label in changed}, held, spec,
                                 confidence, outliers, full=False)
-    checks = cross_check.lot_groups(held, data, names, spec, hyper)
+    checks = cross_check.lot_groups(held, data, names, spec, hyper, quadrature)
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
              _answer_groups(frame, groups, held, spec, confidence, outliers,
                             known=parts).items()}
@@ -126,18 +130,22 @@ def _spread_words(hyper) -> str:
             f"HalfNormal({hyper.cv_scale:g}), kappa <= 1e8")
 
 
-def _outliers(frame, groups, hyper) -> dict[str, np.ndarray]:
-    """label -> each lot's leave-one-out predictive p-value within its group (quadrature)."""
+def _without_draws(data, names, spec, hyper) -> tuple[dict, list]:
+    """The parts of the answer that do not depend on the draws, by quadrature: each lot's
+    leave-one-out predictive p-value within its group (label -> array, in the group's lot
+    order) and the quadrature side of every group's cross-check
+    (:func:`qualbayes.cross_check.lot_quadrature`). Run on a thread of its own while the
+    sampler runs (numpy and scipy release the interpreter lock in their array loops, and
+    XLA while it compiles and samples); it reads only its arguments (numpy arrays, no
+    shared frame), so the numbers are those of a call after the fit."""
     from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
 
-    out = {}
-    for label, idx in groups.items():
-        sub = frame.iloc[idx]
-        x, n = sub["defectives"].to_numpy(float), sub["inspected"].to_numpy(float)
+    outliers = {}
+    for label, (x, n) in zip(names, data, strict=True):
         xs, ns, pv = grid.loo_pvalues(x, n, prior=hyper)
         lookup = {(a, b): v for a, b, v in zip(xs, ns, pv, strict=True)}
-        out[label] = np.array([lookup[(a, b)] for a, b in zip(x, n, strict=True)])
-    return out
+        outliers[label] = np.array([lookup[(a, b)] for a, b in zip(x, n, strict=True)])
+    return outliers, cross_check.lot_quadrature(data, spec, hyper)
 
 
 def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,

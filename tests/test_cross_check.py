@@ -115,6 +115,19 @@ def test_lots_cross_check_agrees_and_a_shifted_fit_fails_the_gate(monkeypatch):
     res = assess_lots(_lot_table(), spec=0.01, confidence=0.9, prior="history", seed=3)
     c = res.diagnostics["P-7"]["cross_check"]
     assert c["agreed"] and c["quantities"] >= 2, c
+    # the outlier p-values, computed on a thread while the sampler ran, are each lot's own
+    # (lot order kept): those of the quadrature call on the group's lots
+    from qualbayes.models.lot_history_grid import loo_pvalues
+    from qualbayes.models.lot_spread import HistoryPrior
+
+    table = _lot_table().frame
+    xs, ns, pv = loo_pvalues(table["defectives"].to_numpy(float),
+                             table["inspected"].to_numpy(float), prior=HistoryPrior())
+    by_term = {(a, b): v for a, b, v in zip(xs, ns, pv, strict=True)}
+    expected = [by_term[(float(a), float(b))] for a, b in
+                zip(table["defectives"], table["inspected"], strict=True)]
+    got = res.lots.set_index("lot").loc[table["lot"], "outlier_p"].to_numpy(float)
+    np.testing.assert_array_equal(got, expected)
     assert any("cross-check" in n for n in res.notes)
     # the spread-sensitivity engine (quadrature, every lot on its own basis, half of them
     # finite lots) reproduces the NUTS answers at the stated spread within 4 MCSE + the
@@ -148,6 +161,30 @@ def test_lots_cross_check_agrees_and_a_shifted_fit_fails_the_gate(monkeypatch):
     assert not d["passed"] and not d["cross_check"]["agreed"]
     assert any("disagrees with quadrature" in r for r in d["reasons"])
     assert set(bad.lots["decision"]) == {"not-converged"}
+
+
+def test_lot_quadrature_is_the_same_whatever_the_chunk_and_serves_the_check():
+    """The quadrature side of the lots cross-check (computed before the draws exist) gives
+    the same numbers bit for bit whatever the number of groups per chunk, and a check
+    given it equals one that computes its own."""
+    from qualbayes.models.lot_spread import HistoryPrior
+
+    rng = np.random.default_rng(21)
+    data = []
+    for _ in range(5):
+        n = rng.choice([50.0, 125.0, 315.0], size=12)
+        data.append((rng.binomial(n.astype(int), 0.01).astype(float), n))
+    one = cross_check.lot_quadrature(data, 0.01, HistoryPrior(), chunk=2)
+    every = cross_check.lot_quadrature(data, 0.01, HistoryPrior())
+    for a, b in zip(one, every, strict=True):
+        for u, v in zip(a, b, strict=True):
+            np.testing.assert_array_equal(u, v)
+    mu = rng.beta(2, 150, size=(4, 200))
+    kappa = np.exp(rng.normal(np.log(300), 0.3, size=(4, 200)))
+    x, n = data[3]
+    given = cross_check.lot_group(mu, kappa, x, n, 0.01, HistoryPrior(), quadrature=every[3])
+    own = cross_check.lot_group(mu, kappa, x, n, 0.01, HistoryPrior())
+    assert given == own
 
 
 # ------------------------------------------------------------------ life, end to end

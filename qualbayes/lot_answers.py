@@ -94,7 +94,7 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
         if not sel or known is not None:
             continue
         sub = [(combos[j][0], combos[j][1], combos[j][2], combos[j][3]) for j in sel]
-        prob, err, exact = probabilities(a0, b0, chains, sub, spec, basis)
+        prob, err, exact = _probabilities(a0, b0, chains, sub, spec, basis, workers)
         x_sel = np.array([combos[j][0] for j in sel])
         dec, close = decide(prob, err, x_sel, confidence)
         for i, j in enumerate(sel):
@@ -171,6 +171,22 @@ def _rate_answers(key: tuple, members: list[int], combos: list[tuple], decisions
             v["_approximate"] = not (med_exact and up_exact)
         out[j] = v
     return out
+
+
+def _probabilities(a0, b0, chains: int, combos: list, spec: float, basis: str,
+                   workers: int | None):
+    """:func:`qualbayes.lot_decisions.probabilities` of ``combos``, in as many slices as
+    ``workers`` threads (each combination's numbers do not depend on the slice)."""
+    k = min(len(combos), threads() if workers is None else int(workers))
+    if k <= 1 or np.size(a0) == 1:
+        return probabilities(a0, b0, chains, combos, spec, basis)
+    slices = [np.arange(i, len(combos), k) for i in range(k)]  # interleaved: even loads
+    done = _map(lambda idx: probabilities(a0, b0, chains, [combos[i] for i in idx], spec,
+                                          basis), slices, workers)
+    prob, err, exact = np.empty(len(combos)), np.empty(len(combos)), np.empty(len(combos), bool)
+    for idx, (p, e, x) in zip(slices, done, strict=True):
+        prob[idx], err[idx], exact[idx] = p, e, x
+    return prob, err, exact
 
 
 def threads() -> int:

@@ -224,6 +224,9 @@ def test_answer_lots_equal_the_earlier_answering_pass(monkeypatch):
     frame["decision_basis"] = np.where(frame["lot_size"].notna(), "lot", "process")
     a0, b0 = _history_draws(*HISTORIES["typical"], draws=4000, seed=9)
     known = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False)
+    threads = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False, workers=3)
+    for column, values in known.items():  # P by slices on threads: the same numbers
+        assert pd.Series(list(values)).equals(pd.Series(list(threads[column]))), column
     new = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known, workers=3)
     alone = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known, workers=1)
     for column, values in alone.items():  # the threads change no number

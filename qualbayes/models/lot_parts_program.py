@@ -5,8 +5,9 @@ vmapped) over chains and, for several parts per call, vmapped over parts.
 Two compiled programs per model, shape and settings (:func:`_compiled`): ``init`` (initial
 point, step-size search) and ``steps`` (up to :data:`STEPS` transitions, the warmup's
 adaptation inside by the iteration counter); warmup, draws and every continuation call the
-same ``steps``. The first use of a shape compiles both at once, on two threads (a first-ever
-run waits for the longer of the two compilations, not their sum). A single part is called
+same ``steps``. The first use of a shape compiles both, and the parts' keys program, each on
+a thread of its own as soon as it is lowered (a first-ever run waits for the longest of the
+compilations, not their sum). A single part is called
 without a vmap (batching NUTS's while loops costs seconds of tracing). Part ``j``'s random
 keys come from ``fold_in(seed, j)`` (:func:`part_keys`) and padding lanes repeat the call's
 last part, so a part's draws do not depend on the other parts of its call.
@@ -60,11 +61,27 @@ def part_keys(seed: int, parts: np.ndarray, num_chains: int, width: int):
     sampled in nor on the other parts (padding lanes get the keys of further indices).
     Computed by one compiled program (:func:`_keys_program`: one compilation on a first run
     instead of one per random operation, and about 0.03 ms a call instead of 3 ms), with
-    the same bits as the operations run one by one (tested)."""
+    the same bits as the operations run one by one (tested). The sampler compiles the same
+    program ahead of time with its own two (:func:`_compiled`)."""
+    return _keys_program(int(num_chains))(np.int64(seed), _key_indices(parts, width))
+
+
+def _key_indices(parts, width: int) -> np.ndarray:
+    """The parts' indices, then the padding lanes' (the indices after the last part's)."""
     last = int(parts[-1]) if len(parts) else 0
     extra = np.arange(last + 1, last + 1 + width - len(parts))
-    idx = np.concatenate([np.asarray(parts, np.int64), extra.astype(np.int64)])
-    return _keys_program(int(num_chains))(np.int64(seed), idx)
+    return np.concatenate([np.asarray(parts, np.int64), extra.astype(np.int64)])
+
+
+def _keys_lowered(num_chains: int, width: int):
+    """:func:`_keys_program` lowered for ``width`` parts, to be compiled ahead of time
+    (call inside ``jax_scope``): called as ``(np.int64(seed), _key_indices(parts,
+    width))``, it gives :func:`part_keys`' bits (tested)."""
+    import jax  # noqa: PLC0415
+    import jax.numpy as jnp  # noqa: PLC0415
+
+    return _keys_program(int(num_chains)).lower(jax.ShapeDtypeStruct((), jnp.int64),
+                                                jax.ShapeDtypeStruct((width,), jnp.int64))
 
 
 @lru_cache(maxsize=8)
@@ -94,8 +111,8 @@ def run_chunk(model, xs, ns, ws, scale, s: SamplerSettings, parts=None, width=No
     xs, ns, ws = _padded([xs, ns, ws], width)
     with jax_scope():
         run, _ = _compiled(*sampler_key(model, scale, s))
-        keys = part_keys(s.seed, parts, s.num_chains, width)
-        mu, kappa, div, states = run(keys, jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws))
+        mu, kappa, div, states = run(s.seed, parts, jnp.asarray(xs), jnp.asarray(ns),
+                                     jnp.asarray(ws))
     out = [np.moveaxis(np.asarray(a), 1, 2)[:, :, :k] for a in (mu, kappa, div)]
     return out[0], out[1], out[2], jax.tree.map(lambda a: np.asarray(a)[:, :k], states)
 
@@ -136,7 +153,7 @@ STEPS = 500
 @lru_cache(maxsize=16)
 def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_depth,
               parallel, num_chains):
-    """One compiled sampler per model and settings: (keys (chain, part), x, n, w) -> mu, kappa,
+    """One compiled sampler per model and settings: (seed, part indices, x, n, w) -> mu, kappa,
     diverging, last states, pmapped (or vmapped) over chains, vmapped over parts; and ``more`` ->
     (states, x, n, w) -> the same, continuing from the states without warmup.
 
@@ -203,20 +220,24 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
     def shape_key(chains: int, x, n, w) -> tuple:
         return chains, x.shape, n.shape, w.shape
 
-    def programs(keys, x, n, w):
-        """``init`` and ``steps`` compiled for these shapes. The first time, both are lowered
-        here and compiled at once on two threads (XLA releases the interpreter lock while it
-        compiles; the persistent cache serves either as usual). The executables are the
-        same programs as a plain call would compile, so the draws do not change."""
-        sig = shape_key(keys.shape[0], x, n, w)
+    def programs(x, n, w):
+        """The keys' program, ``init`` and ``steps``, compiled for these shapes. The first
+        time, each is lowered here and compiled on a thread of its own as soon as it is
+        lowered (XLA releases the interpreter lock while it compiles, so ``init`` compiles
+        while ``steps`` is traced; the persistent cache serves any of them as usual). The
+        executables are the programs a plain call would compile, so the draws do not
+        change."""
+        sig = shape_key(num_chains, x, n, w)
         if sig not in ready:
-            first = init.lower(keys, x, n, w)
-            states = jax.tree.map(lambda a: jax.ShapeDtypeStruct(a.shape, a.dtype),
-                                  first.out_info)
-            count = jax.ShapeDtypeStruct((), jnp.int32)
-            lowered = [first, steps.lower(states, x, n, w, count)]
-            with ThreadPoolExecutor(2) as pool:
-                ready[sig] = tuple(pool.map(lambda lo: lo.compile(), lowered))
+            width = x.shape[0]
+            keys = jax.ShapeDtypeStruct((num_chains, width, 2), jnp.uint32)
+            with ThreadPoolExecutor(3) as pool:
+                states = jax.eval_shape(init, keys, x, n, w)
+                count = jax.ShapeDtypeStruct((), jnp.int32)
+                steps_job = pool.submit(steps.lower(states, x, n, w, count).compile)
+                init_job = pool.submit(init.lower(keys, x, n, w).compile)
+                keys_job = pool.submit(_keys_lowered(num_chains, width).compile)
+                ready[sig] = (keys_job.result(), init_job.result(), steps_job.result())
         return ready[sig]
 
     def advance(states, x, n, w, total, keep=True):
@@ -225,7 +246,7 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
         signature, so the first run and a continuation share one trace)."""
         kept, done = [], 0
         sig = shape_key(jax.tree.leaves(states)[0].shape[0], x, n, w)
-        step = ready[sig][1] if sig in ready else steps  # a state from elsewhere: plain call
+        step = ready[sig][2] if sig in ready else steps  # a state from elsewhere: plain call
         while done < total:
             c = min(STEPS, total - done)
             states = jax.tree.map(np.asarray, states)
@@ -237,8 +258,11 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
             return None, None, None, states
         return (*(np.concatenate([k[i] for k in kept], axis=2) for i in range(3)), states)
 
-    def run(keys, x, n, w):
-        start, _ = programs(keys, x, n, w)
+    def run(seed, parts, x, n, w):
+        """The first run of parts ``parts`` (their indices in the fit: their random keys,
+        :func:`part_keys`) from ``seed``, warmup then draws."""
+        key_program, start, _ = programs(x, n, w)
+        keys = key_program(np.int64(seed), _key_indices(parts, x.shape[0]))
         *_, states = advance(start(keys, x, n, w), x, n, w, num_warmup, keep=False)
         return advance(states, x, n, w, num_samples)
 

@@ -232,3 +232,21 @@ def test_second_fit_of_a_shape_reuses_the_sampler_and_the_seed_fixes_the_draws(t
         assert got["first"]["digest"] != got["second"]["digest"]
     assert runs[0]["first"]["digest"] == runs[1]["first"]["digest"]
     assert runs[0]["second"]["digest"] == runs[1]["second"]["digest"]
+
+
+def test_the_command_process_collects_young_garbage_less_often_and_keeps_a_user_setting():
+    """configure_process raises the youngest generation's threshold to GC_YOUNG (from
+    Python's 700), keeps a higher one the process set, and leaves a disabled collector
+    (threshold 0) disabled."""
+    import gc
+
+    from qualbayes.inference.run import GC_YOUNG, configure_process
+
+    saved = gc.get_threshold()
+    try:
+        for before, after in ((700, GC_YOUNG), (50_000, 50_000), (0, 0)):
+            gc.set_threshold(before, 10, 10)
+            configure_process()
+            assert gc.get_threshold() == (after, 10, 10)
+    finally:
+        gc.set_threshold(*saved)

@@ -154,6 +154,7 @@ def test_kept_program_gives_numpyro_draws_and_continues_them():
     import jax.numpy as jnp
     from numpyro.infer import MCMC, NUTS
 
+    from qualbayes.inference import nuts_program
     from qualbayes.inference.compile_cache import chain_runner
     from qualbayes.inference.run import SamplerSettings, chain_method, continue_nuts, run_nuts
     from qualbayes.models.lot_history import lot_history_model, pad
@@ -163,9 +164,31 @@ def test_kept_program_gives_numpyro_draws_and_continues_them():
     args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), jnp.asarray(0.5))
     s = SamplerSettings(num_warmup=150, num_samples=120, target_accept=0.95, seed=11,
                         retry=False)
-    with jax.enable_x64(True):
+    plain_calls = []  # the uncompiled programs are only lowered (compiled ahead of time)
+    real_build = nuts_program._build
+
+    class Counted:
+        def __init__(self, fn):
+            self.fn, self.lower = fn, fn.lower
+
+        def __call__(self, *a):  # eval_shape's abstract call (tracers) is not a run
+            if not any(isinstance(v, jax.core.Tracer) for v in jax.tree.leaves(a)):
+                plain_calls.append(1)
+            return self.fn(*a)
+
+    def build(*a, **k):
+        program = real_build(*a, **k)
+        program.init, program.steps = Counted(program.init), Counted(program.steps)
+        return program
+
+    nuts_program.forget()
+    with pytest.MonkeyPatch.context() as mp, jax.enable_x64(True):
+        mp.setattr(nuts_program, "_build", build)
         fit = run_nuts(lot_history_model, args, s)
         more = continue_nuts(fit, 80)
+    nuts_program.forget()
+    assert plain_calls == []
+    with jax.enable_x64(True):
         mcmc = MCMC(NUTS(lot_history_model, target_accept_prob=0.95),
                     num_warmup=150, num_samples=120, num_chains=4, progress_bar=False,
                     chain_method=chain_runner(chain_method(4)), jit_model_args=True)

@@ -13,6 +13,10 @@ sampler is two programs, built once per :func:`program_for` key and kept in the 
   inside the transition (it follows the iteration counter of the state), so warmup, draws
   and every later continuation are calls of this one program.
 
+The first use of a program compiles both at once (:meth:`Program.compiled`: ``steps`` is
+lowered first and compiles while ``init`` is lowered; each compilation on a thread of its
+own), so a first-ever run waits for the longer compilation rather than the sum.
+
 The chains are mapped with ``pmap`` over CPU devices (``parallel``), a ``vmap``
 (``vectorized``) or ``lax.map`` (``sequential``), with the model's arguments (the data) as
 unmapped inputs: one compiled sampler serves any data of the same shape, in this process and
@@ -30,7 +34,8 @@ from __future__ import annotations
 
 import functools
 from collections import OrderedDict
-from dataclasses import dataclass
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -50,6 +55,10 @@ class Program:
     steps: object
     num_chains: int
     uses: int = 0
+    #: argument types -> (init, steps) compiled ahead of time for them (:meth:`compiled`)
+    ready: dict = field(default_factory=dict)
+    #: (state, model arguments) types -> the compiled ``steps`` that takes them
+    steps_for: dict = field(default_factory=dict)
 
     def start(self, seed: int, model_args: tuple, init_params=None):
         """Every chain's initial state (numpyro's keys and ``NUTS.init``)."""
@@ -57,7 +66,30 @@ class Program:
 
         key = jax.random.PRNGKey(seed)
         keys = key[None] if self.num_chains == 1 else jax.random.split(key, self.num_chains)
-        return self.init(keys, init_params, model_args)
+        init, _ = self.compiled(keys, init_params, model_args)
+        return init(keys, init_params, model_args)
+
+    def compiled(self, keys, init_params, model_args) -> tuple:
+        """(init, steps) compiled for these arguments' types. The first time, ``steps`` is
+        lowered first (its state's types by ``eval_shape`` of ``init``) and each is compiled
+        on a thread of its own as soon as it is lowered: XLA releases the interpreter lock
+        while it compiles or loads from the persistent cache, so ``init`` is lowered while
+        ``steps`` compiles, and a first-ever run waits for the longer compilation, not the
+        sum. They are the programs a plain call compiles, so the draws do not change
+        (tests/test_first_run.py compares them with ``MCMC.run``)."""
+        import jax  # noqa: PLC0415
+        import jax.numpy as jnp  # noqa: PLC0415
+
+        sig = _types((keys, init_params, model_args))
+        if sig not in self.ready:
+            with ThreadPoolExecutor(2) as pool:
+                state = jax.eval_shape(self.init, keys, init_params, model_args)
+                count = jax.ShapeDtypeStruct((), jnp.int32)
+                steps = pool.submit(self.steps.lower(state, model_args, count).compile)
+                init = pool.submit(self.init.lower(keys, init_params, model_args).compile)
+                self.ready[sig] = (init.result(), steps.result())
+                self.steps_for[_types((state, model_args))] = self.ready[sig][1]
+        return self.ready[sig]
 
     def advance(self, state, model_args: tuple, count: int, keep: bool = True):
         """``count`` transitions from ``state``: (last state, sites {name: (chain, count,
@@ -66,9 +98,10 @@ class Program:
         import jax.numpy as jnp  # noqa: PLC0415
 
         parts, divs, done = [], [], 0
+        steps = self.steps_for.get(_types((state, model_args)), self.steps)  # else: plain
         while done < count:
             n = min(CHUNK, count - done)
-            state, sites, div = self.steps(state, model_args, jnp.asarray(n, jnp.int32))
+            state, sites, div = steps(state, model_args, jnp.asarray(n, jnp.int32))
             if keep:
                 parts.append({k: np.asarray(v)[:, :n] for k, v in sites.items()})
                 divs.append(np.asarray(div)[:, :n])
@@ -79,6 +112,16 @@ class Program:
             raise ValueError("no draws asked for")
         sites = {k: np.concatenate([p[k] for p in parts], axis=1) for k in parts[0]}
         return state, sites, np.concatenate(divs, axis=1)
+
+
+def _types(tree) -> tuple:
+    """The tree's structure and each leaf's (shape, dtype, weak type): what a program
+    compiled ahead of time requires of its arguments."""
+    import jax  # noqa: PLC0415
+
+    leaves, treedef = jax.tree.flatten(tree)
+    types = (a if isinstance(a, jax.ShapeDtypeStruct) else jax.typeof(a) for a in leaves)
+    return treedef, tuple((tuple(t.shape), str(t.dtype), bool(t.weak_type)) for t in types)
 
 
 def program_for(model, model_args: tuple, *, num_chains: int, num_warmup: int,

@@ -50,19 +50,22 @@ def _compare(names, nuts, mcse, quad, quad_err, draws: int, method: str) -> dict
                       "quadrature": float(quad[worst]), "mcse": float(mcse[worst])}}
 
 
-def lot_quadrature(data, spec: float, prior, chunk: int = 64) -> list[tuple]:
+def lot_quadrature(data, spec: float, prior, chunk: int = 64, stop=None) -> list[tuple] | None:
     """The quadrature side of each group's cross-check, which needs no draws (so it can be
     computed while the sampler runs): per group of ``data`` ((x, n) arrays), (distinct x,
     distinct n, quadrature answers q, their error), q being P(p <= spec | x of n) for every
     distinct (x, n) then the next lot's P(p <= spec), on the 160 x 160 grid, the error its
     difference from the 100 x 100 grid plus the border mass. Groups are taken ``chunk`` at
     a time (:func:`qualbayes.models.lot_history_grid.posterior_grids`), and only these
-    numbers are kept: the grids of one chunk at most are in memory."""
+    numbers are kept: the grids of one chunk at most are in memory. ``stop`` (an Event):
+    once set, None is returned before the next chunk."""
     from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
 
     terms = [grid.group_terms(*d) for d in data]
     out = []
     for start in range(0, len(terms), chunk):
+        if stop is not None and stop.is_set():
+            return None
         block = terms[start:start + chunk]
         fine = grid.posterior_grids(block, prior, size=160, chunk=chunk)
         half = grid.posterior_grids(block, prior, size=100, chunk=chunk)

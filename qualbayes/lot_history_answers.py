@@ -4,6 +4,7 @@ answers from the draws, and the outlier check by exact quadrature."""
 
 from __future__ import annotations
 
+import threading
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
@@ -46,9 +47,14 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     n_all = frame["inspected"].to_numpy(float)
     data = [(x_all[idx], n_all[idx]) for idx in groups.values()]
     names = list(groups)
+    stop = threading.Event()  # set when the fit ends in an error or an interrupt
     with ThreadPoolExecutor(1) as pool:  # what needs no draws, while the sampler runs
-        side = pool.submit(_without_draws, data, names, spec, hyper)
-        fit = fit_histories(data, settings, names=names, prior=hyper)
+        side = pool.submit(_without_draws, data, names, spec, hyper, stop)
+        try:
+            fit = fit_histories(data, settings, names=names, prior=hyper)
+        except BaseException:
+            stop.set()  # the thread ends at its next group or chunk, not after all of them
+            raise
         outliers, quadrature = side.result()
     per_chain = fit.settings.num_samples
     held = {label: (fit, j) for j, label in enumerate(names)}  # the fit of each group's draws
@@ -130,22 +136,27 @@ def _spread_words(hyper) -> str:
             f"HalfNormal({hyper.cv_scale:g}), kappa <= 1e8")
 
 
-def _without_draws(data, names, spec, hyper) -> tuple[dict, list]:
+def _without_draws(data, names, spec, hyper, stop=None) -> tuple[dict, list] | None:
     """The parts of the answer that do not depend on the draws, by quadrature: each lot's
     leave-one-out predictive p-value within its group (label -> array, in the group's lot
     order) and the quadrature side of every group's cross-check
     (:func:`qualbayes.cross_check.lot_quadrature`). Run on a thread of its own while the
     sampler runs (numpy and scipy release the interpreter lock in their array loops, and
     XLA while it compiles and samples); it reads only its arguments (numpy arrays, no
-    shared frame), so the numbers are those of a call after the fit."""
+    shared frame), so the numbers are those of a call after the fit. ``stop`` (an Event):
+    once set, the work ends at the next group (or chunk of groups) and gives None, so an
+    interrupted or failed fit does not wait for it."""
     from qualbayes.models import lot_history_grid as grid  # noqa: PLC0415
 
     outliers = {}
     for label, (x, n) in zip(names, data, strict=True):
+        if stop is not None and stop.is_set():
+            return None
         xs, ns, pv = grid.loo_pvalues(x, n, prior=hyper)
         lookup = {(a, b): v for a, b, v in zip(xs, ns, pv, strict=True)}
         outliers[label] = np.array([lookup[(a, b)] for a, b in zip(x, n, strict=True)])
-    return outliers, cross_check.lot_quadrature(data, spec, hyper)
+    quadrature = cross_check.lot_quadrature(data, spec, hyper, stop=stop)
+    return None if quadrature is None else (outliers, quadrature)
 
 
 def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,

@@ -163,6 +163,44 @@ def test_lots_cross_check_agrees_and_a_shifted_fit_fails_the_gate(monkeypatch):
     assert set(bad.lots["decision"]) == {"not-converged"}
 
 
+def test_a_failed_fit_does_not_wait_for_the_work_beside_it(monkeypatch):
+    """When the fit ends in an error (or an interrupt), the outlier and quadrature work
+    running beside it stops at its next group instead of finishing all of them, and the
+    error reaches the caller."""
+    import threading
+
+    from qualbayes.data.lot_table import LotTable
+    from qualbayes.lot_question import assess_lots
+    from qualbayes.models import lot_history, lot_history_grid
+
+    rng = np.random.default_rng(5)
+    k = 40 * 5  # 40 parts of 5 lots
+    n = rng.choice([80, 125, 200], size=k)
+    frame = pd.DataFrame({"lot": [f"L{i}" for i in range(k)],
+                          "part": [f"P-{i // 5}" for i in range(k)], "supplier": None,
+                          "date": None, "lot_size": pd.array([None] * k, dtype="Int64"),
+                          "inspected": n, "defectives": rng.binomial(n, 0.01),
+                          "row": np.arange(k) + 2})
+    started, calls, real = threading.Event(), [], lot_history_grid.loo_pvalues
+
+    def slow(*args, **kwargs):  # a group's outlier check, made slow
+        calls.append(1)
+        started.set()
+        threading.Event().wait(0.05)
+        return real(*args, **kwargs)
+
+    def failing(*args, **kwargs):
+        started.wait(10)  # the work beside the fit has begun
+        raise RuntimeError("the sampler failed")
+
+    monkeypatch.setattr(lot_history_grid, "loo_pvalues", slow)
+    monkeypatch.setattr(lot_history, "fit_histories", failing)
+    with pytest.raises(RuntimeError, match="the sampler failed"):
+        assess_lots(LotTable(frame, "sim.csv", None, 1, {}, []), spec=0.01, confidence=0.9,
+                    prior="history", seed=3)
+    assert 1 <= len(calls) <= 5  # stopped at its next group, not after all 40
+
+
 def test_lot_quadrature_is_the_same_whatever_the_chunk_and_serves_the_check():
     """The quadrature side of the lots cross-check (computed before the draws exist) gives
     the same numbers bit for bit whatever the number of groups per chunk, and a check

@@ -52,10 +52,10 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         side = pool.submit(_without_draws, data, names, spec, hyper, stop)
         try:
             fit = fit_histories(data, settings, names=names, prior=hyper)
-        except BaseException:
+            outliers, quadrature = side.result()
+        except BaseException:  # an error or an interrupt, in the fit or while waiting
             stop.set()  # the thread ends at its next group or chunk, not after all of them
             raise
-        outliers, quadrature = side.result()
     per_chain = fit.settings.num_samples
     held = {label: (fit, j) for j, label in enumerate(names)}  # the fit of each group's draws
     alone = is_part_fit(fit) and len(names) >= ALONE_FROM

@@ -122,9 +122,7 @@ def seed(value, name: str = "seed") -> int:
         value = int(value)
     else:
         value = count(value, name, 0)  # a whole float such as 5.0; anything else refused
-        if value >= 2**53:  # a float this large may stand for another whole number
-            raise ParameterError(name, value, f"give a whole number from 0 to {MAX_SEED - 1}")
-    if not 0 <= value < MAX_SEED:
+    if not 0 <= value < MAX_SEED:  # also every float large enough to stand for another number
         raise ParameterError(name, value, f"give a whole number from 0 to {MAX_SEED - 1}")
     return value
 

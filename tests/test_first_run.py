@@ -102,6 +102,68 @@ def test_short_beta_binomial_equals_scipy(mu, kappa):
     assert np.all(np.abs(got - ref) <= tol), (got - ref, tol)
 
 
+@pytest.mark.parametrize("kappa", [2.0, 50.0, 1e3, 1e5, 1e7, 1e8])
+@pytest.mark.parametrize("mu", [1e-4, 0.01, 0.3])
+def test_sampled_kernel_is_scipy_logpmf_without_the_coefficient(mu, kappa):
+    """``beta_binomial.log_kernel`` (what the history samplers use: six log-gammas in one
+    call) plus log C(n, x) against scipy.stats.betabinom.logpmf (reference library), for
+    two parts at once (a, b one per row), with the tolerance of the test above."""
+    import jax
+    from scipy import special
+
+    from qualbayes.models.beta_binomial import log_kernel
+
+    x = np.array([[0.0, 1, 2, 5, 0, 17], [3.0, 0, 0, 1, 4, 0]])
+    n = np.array([[80.0, 80, 125, 200, 1250, 5000], [50.0, 315, 80, 125, 200, 2000]])
+    a = np.array([[mu * kappa], [mu * kappa / 2]])
+    b = np.array([[(1 - mu) * kappa], [(1 - mu) * kappa / 2]])
+    ref = stats.betabinom.logpmf(x, n, a, b)
+    z = n + kappa
+    tol = 1e-13 + 10 * np.finfo(float).eps * z * np.log(z + 2)
+    with jax.enable_x64(True):
+        got = np.asarray(log_kernel(x, n, a, b)) + np.log(special.comb(n, x))
+    assert np.all(np.abs(got - ref) <= tol), (got - ref, tol)
+
+
+def test_history_log_density_differs_from_the_full_one_by_a_constant():
+    """The lots history model (likelihood without the binomial coefficients) against the
+    same model written with the full beta-binomial log pmf: at several (mu, kappa) of two
+    parts the log densities differ by the same constant, sum(w log C(n, x)) (so NUTS, which
+    sees only differences and gradients, has the same target), and the gradients agree."""
+    import jax
+    import jax.numpy as jnp
+    import numpyro
+    from numpyro.infer.util import log_density
+    from scipy import special
+
+    from qualbayes.models import lot_history as lh
+    from qualbayes.models.beta_binomial import log_pmf
+
+    def full(x, n, w, scale):
+        mu, kappa = lh.hyperprior_sites(x.shape[0], scale)
+        ll = log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa, xp=jnp)
+        numpyro.factor("x", jnp.sum(w * ll))
+
+    xs, ns, ws = lh.pad([(np.array([0.0, 1, 0, 3, 0]), np.array([80.0, 125, 125, 200, 50])),
+                         (np.array([2.0, 0, 0]), np.array([315.0, 315, 80]))])
+    constant = float(np.sum(ws * np.log(special.comb(ns, xs))))
+    with jax.enable_x64(True):
+        args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), 0.5)
+        for mu, y in [(0.01, -3.0), (0.002, 0.5), (0.3, -8.0), (0.05, 2.0)]:
+            params = {"mu": jnp.full((2, 1), mu), "spread_y": jnp.full((2, 1), y)}
+
+            def lp(model, p):
+                return log_density(model, args, {}, p)[0]
+
+            new, old = float(lp(lh.lot_history_model, params)), float(lp(full, params))
+            assert abs(old - new - constant) <= 1e-9 * max(1.0, abs(old)), (old, new, constant)
+            g_new = jax.grad(lambda p: lp(lh.lot_history_model, p))(params)
+            g_old = jax.grad(lambda p: lp(full, p))(params)
+            for k in params:
+                np.testing.assert_allclose(np.asarray(g_new[k]), np.asarray(g_old[k]),
+                                           rtol=1e-9, atol=1e-9)
+
+
 SAME_SHAPE = r"""
 import json
 from qualbayes.inference.run import configure_process

@@ -93,9 +93,11 @@ def hyperprior_sites(n_parts, scale):
 def lot_history_model(x, n, w, scale):
     """Marginalised hierarchical beta-binomial. ``x``, ``n``, ``w`` have shape (parts, terms):
     distinct (defectives, inspected) pairs of each part and the number of lots sharing each;
-    ``scale`` the half-normal scale S of the lot-to-lot CV."""
+    ``scale`` the half-normal scale S of the lot-to-lot CV. The likelihood factor leaves out
+    the binomial coefficients, a constant of the data
+    (:func:`qualbayes.models.beta_binomial.log_kernel`)."""
     mu, kappa = hyperprior_sites(x.shape[0], scale)
-    loglik = beta_binomial.log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa, xp=jnp)
+    loglik = beta_binomial.log_kernel(x, n, mu * kappa, (1.0 - mu) * kappa)
     numpyro.factor("x", jnp.sum(w * loglik))
 
 
@@ -103,7 +105,7 @@ def lot_history_model_phi_uniform(x, n, w, scale=None):
     """The earlier hyperprior, phi ~ Uniform(PHI_MIN, 1) (``history-phi-uniform``): kept for
     comparison only; see docs/lots.md for why it is not the default."""
     mu, kappa = hyperprior_sites(x.shape[0], None)
-    loglik = beta_binomial.log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa, xp=jnp)
+    loglik = beta_binomial.log_kernel(x, n, mu * kappa, (1.0 - mu) * kappa)
     numpyro.factor("x", jnp.sum(w * loglik))
 
 

@@ -125,8 +125,9 @@ def test_sampled_kernel_is_scipy_logpmf_without_the_coefficient(mu, kappa):
     assert np.all(np.abs(got - ref) <= tol), (got - ref, tol)
 
 
-def test_history_log_density_differs_from_the_full_one_by_a_constant():
-    """The lots history model (likelihood without the binomial coefficients) against the
+@pytest.mark.parametrize("prior", ["history", "history-phi-uniform"])
+def test_history_log_density_differs_from_the_full_one_by_a_constant(prior):
+    """The lots history models (likelihood without the binomial coefficients) against the
     same model written with the full beta-binomial log pmf: at several (mu, kappa) of two
     parts the log densities differ by the same constant, sum(w log C(n, x)) (so NUTS, which
     sees only differences and gradients, has the same target), and the gradients agree."""
@@ -144,20 +145,22 @@ def test_history_log_density_differs_from_the_full_one_by_a_constant():
         ll = log_pmf(x, n, mu * kappa, (1.0 - mu) * kappa, xp=jnp)
         numpyro.factor("x", jnp.sum(w * ll))
 
+    model, scale = ((lh.lot_history_model, 0.5) if prior == "history"
+                    else (lh.lot_history_model_phi_uniform, None))
     xs, ns, ws = lh.pad([(np.array([0.0, 1, 0, 3, 0]), np.array([80.0, 125, 125, 200, 50])),
                          (np.array([2.0, 0, 0]), np.array([315.0, 315, 80]))])
     constant = float(np.sum(ws * np.log(special.comb(ns, xs))))
     with jax.enable_x64(True):
-        args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), 0.5)
+        args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), scale)
         for mu, y in [(0.01, -3.0), (0.002, 0.5), (0.3, -8.0), (0.05, 2.0)]:
             params = {"mu": jnp.full((2, 1), mu), "spread_y": jnp.full((2, 1), y)}
 
             def lp(model, p):
                 return log_density(model, args, {}, p)[0]
 
-            new, old = float(lp(lh.lot_history_model, params)), float(lp(full, params))
+            new, old = float(lp(model, params)), float(lp(full, params))
             assert abs(old - new - constant) <= 1e-9 * max(1.0, abs(old)), (old, new, constant)
-            g_new = jax.grad(lambda p: lp(lh.lot_history_model, p))(params)
+            g_new = jax.grad(lambda p: lp(model, p))(params)
             g_old = jax.grad(lambda p: lp(full, p))(params)
             for k in params:
                 np.testing.assert_allclose(np.asarray(g_new[k]), np.asarray(g_old[k]),

@@ -152,12 +152,12 @@ def test_history_log_density_differs_from_the_full_one_by_a_constant(prior):
     constant = float(np.sum(ws * np.log(special.comb(ns, xs))))
     with jax.enable_x64(True):
         args = (jnp.asarray(xs), jnp.asarray(ns), jnp.asarray(ws), scale)
+
+        def lp(which, p):
+            return log_density(which, args, {}, p)[0]
+
         for mu, y in [(0.01, -3.0), (0.002, 0.5), (0.3, -8.0), (0.05, 2.0)]:
             params = {"mu": jnp.full((2, 1), mu), "spread_y": jnp.full((2, 1), y)}
-
-            def lp(model, p):
-                return log_density(model, args, {}, p)[0]
-
             new, old = float(lp(model, params)), float(lp(full, params))
             assert abs(old - new - constant) <= 1e-9 * max(1.0, abs(old)), (old, new, constant)
             g_new = jax.grad(lambda p: lp(model, p))(params)

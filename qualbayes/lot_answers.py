@@ -19,6 +19,7 @@ from qualbayes.lot_decisions import (
     extra_clean_units,
     probabilities,
 )
+from qualbayes.lot_draw_sums import lot_sums
 from qualbayes.models import mixtures
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 
@@ -70,16 +71,20 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 confidence: float, full: bool = True,
-                known: dict | None = None, workers: int | None = 1) -> dict[str, object]:
+                known: dict | None = None, workers: int | None = 1,
+                reuse: dict | None = None) -> dict[str, object]:
     """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
     only P, its MCSE and the decision (enough to see whether more draws are needed).
     ``known``: the ``full=False`` answers of the same lots from the same draws, reused
     instead of summing P over every draw again. The full answers of each distinct (x, n)
     can run on ``workers`` threads (None: the CPUs this process may use; numpy and scipy
     release the interpreter lock in their array loops); the numbers do not depend on it.
-    The default is 1; the history path passes None: on the idle 2-core machine the full
-    answers of 1,000 lots took 0.86-1.05 s on two threads against 1.19-1.24 s on one
-    (docs/speed.md)."""
+    The default is 1; the history path passes None: on the 2-core test machine the full
+    answers of 1,000 lots (1,000 distinct lot sizes) took 1.6 s on two threads against
+    2.0 s on one (docs/speed.md). P is summed on one thread: its loops over counts are many
+    small array operations, which two threads slowed down (1.10-1.30 s against 0.99-1.21
+    s for the same lots). ``reuse``: a dict the caller keeps between the calls on one
+    group's continued chains (:func:`qualbayes.lot_decisions.probabilities`)."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}
@@ -94,7 +99,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
         if not sel or known is not None:
             continue
         sub = [(combos[j][0], combos[j][1], combos[j][2], combos[j][3]) for j in sel]
-        prob, err, exact = _probabilities(a0, b0, chains, sub, spec, basis, workers)
+        prob, err, exact = probabilities(a0, b0, chains, sub, spec, basis,
+                                         None if reuse is None else reuse.setdefault(basis, {}))
         x_sel = np.array([combos[j][0] for j in sel])
         dec, close = decide(prob, err, x_sel, confidence)
         for i, j in enumerate(sel):
@@ -157,36 +163,27 @@ def _rate_answers(key: tuple, members: list[int], combos: list[tuple], decisions
                            rate, strict=True))
         v["_approximate"] = False
         d = decisions[j]
+        search = d in (UNDECIDED, REJECT) and not too_close[j]
+        row, quantiles = None, None
+        if rem is not None and rem > 0 and np.size(a0) > 1:  # one sum for both answers
+            need = int(np.floor(spec * size - x + 1e-9)) if search and basis == LOT else 0
+            row, quantiles = lot_sums(a0, b0, x, n, size, need=need, qs=(0.5, confidence),
+                                      rate_high=rate[2])
         if d == ACCEPT:
             v["extra_clean_units_to_accept"] = 0
-        elif d in (UNDECIDED, REJECT) and not too_close[j]:
+        elif search:
             v["extra_clean_units_to_accept"] = extra_clean_units(
-                a0, b0, x, n, rem, size, spec, confidence, basis, ess_cache=ess)
+                a0, b0, x, n, rem, size, spec, confidence, basis, ess_cache=ess,
+                lot_sums=row)
         if rem is not None:
             v["remaining_units"] = rem
-            (med, med_exact), (up, up_exact) = mixtures.betabinom_quantiles(
+            (med, med_exact), (up, up_exact) = quantiles or mixtures.betabinom_quantiles(
                 (0.5, confidence), rem, alpha, beta)
             v["remaining_defectives_median"] = med
             v["remaining_defectives_upper"] = up
             v["_approximate"] = not (med_exact and up_exact)
         out[j] = v
     return out
-
-
-def _probabilities(a0, b0, chains: int, combos: list, spec: float, basis: str,
-                   workers: int | None):
-    """:func:`qualbayes.lot_decisions.probabilities` of ``combos``, in as many slices as
-    ``workers`` threads (each combination's numbers do not depend on the slice)."""
-    k = min(len(combos), threads() if workers is None else int(workers))
-    if k <= 1 or np.size(a0) == 1:
-        return probabilities(a0, b0, chains, combos, spec, basis)
-    slices = [np.arange(i, len(combos), k) for i in range(k)]  # interleaved: even loads
-    done = _map(lambda idx: probabilities(a0, b0, chains, [combos[i] for i in idx], spec,
-                                          basis), slices, workers)
-    prob, err, exact = np.empty(len(combos)), np.empty(len(combos)), np.empty(len(combos), bool)
-    for idx, (p, e, x) in zip(slices, done, strict=True):
-        prob[idx], err[idx], exact[idx] = p, e, x
-    return prob, err, exact
 
 
 def threads() -> int:

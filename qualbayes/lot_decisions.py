@@ -30,6 +30,8 @@ import numpy as np
 from scipy import special
 
 from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
+from qualbayes.lot_draw_cdf import betabinom_cdf, lot_cdfs
+from qualbayes.lot_draw_sums import reweighted_prob
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
 from qualbayes.search_near import doubling_path, smallest_near
@@ -54,23 +56,6 @@ def _lot_g(alpha, beta, k_star: int, remaining: int) -> tuple[np.ndarray, bool]:
     return np.minimum(betabinom_cdf(k_star, remaining, alpha, beta), 1.0), True
 
 
-def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
-    """P(D <= k) per draw for D ~ BetaBinomial(remaining, alpha_d, beta_d), by the ratio of
-    successive probabilities, pmf(j + 1) / pmf(j) = (R - j)(alpha + j) / ((j + 1)(beta + R -
-    j - 1)), summed in logs from pmf(0) = B(alpha, beta + R) / B(alpha, beta): one pair of
-    log-beta functions per draw, then only logarithms (checked against scipy.stats.betabinom
-    in the tests)."""
-    j = np.arange(k, dtype=float)[None, :]
-    a = np.asarray(alpha, float)[:, None]
-    b = np.asarray(beta, float)[:, None]
-    log0 = special.betaln(a, b + remaining) - special.betaln(a, b)
-    ratio = ((remaining - j) / (j + 1.0)) * ((a + j) / (b + remaining - j - 1.0))
-    if log0.min() > -600.0:  # products of ratios stay within float range: no logarithms
-        return np.exp(log0[:, 0]) * (1.0 + np.cumprod(ratio, axis=1).sum(axis=1))
-    logpmf = log0 + np.cumsum(np.log(ratio), axis=1)
-    return np.exp(log0[:, 0]) + np.exp(logpmf).sum(axis=1)
-
-
 def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basis: str,
             lot_size: int | None = None) -> tuple[np.ndarray, bool]:
     """g_d for one combination (see the module docstring); a0, b0 the prior draws."""
@@ -83,17 +68,93 @@ def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basi
     return _lot_g(alpha, beta, k_star, remaining)
 
 
-def probabilities(a0, b0, chains: int, combos, spec: float, basis: str):
+def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
+                  reuse: dict | None = None):
     """P, its MCSE and whether it is exact, for every combination (x, n, remaining or None,
-    lot size or None). ``a0``, ``b0``: prior parameter draws, flat (chains * draws,)."""
+    lot size or None). ``a0``, ``b0``: prior parameter draws, flat (chains * draws,).
+
+    ``reuse``: a dict kept by the caller between calls on the draws of chains that are only
+    continued (a close call's more draws): each combination's g_d of the draws seen so far
+    (:data:`REUSE_VALUES` numbers at most), so that a later call computes g only for the
+    new draws. g_d depends on its own draw only, so P and its MCSE are the same numbers as
+    from all the draws at once (tested). Filled and updated here; its draws are checked to
+    be the first ones of each chain now, else it is emptied and everything is computed."""
     k = len(combos)
     prob, err, exact = np.empty(k), np.zeros(k), np.ones(k, bool)
-    for j, (x, n, rem, size) in enumerate(combos):
-        g, ok = draws_g(a0, b0, x, n, rem, spec, basis, size)
+    a_ch, b_ch = np.asarray(a0, float).reshape(chains, -1), np.asarray(b0, float).reshape(
+        chains, -1)
+    seen = _seen(reuse, a_ch, b_ch)
+    keep = reuse is not None and k * a_ch.size <= REUSE_VALUES
+    cache = reuse.setdefault("g", {}) if keep else {}
+    olds = [cache.get(c) if seen else None for c in combos]
+    new = [old is not None and (basis == PROCESS or not c[2] or a_ch.size * (
+        max(_k_star(c, spec), 0) + 1) <= MAX_PMF_TERMS) for c, old in zip(combos, olds,
+                                                                          strict=True)]
+    got = _many_g(a_ch, b_ch, seen, combos, new, spec, basis)
+    for j, c in enumerate(combos):
+        g, ok = got[j]
+        g = g.reshape(chains, -1)
+        if new[j]:
+            g, ok = np.concatenate([olds[j][0], g], axis=1), olds[j][1] and ok
+        if keep:
+            cache[c] = (g, ok)
         prob[j], exact[j] = float(g.mean()), ok
         if g.size > 1:
-            err[j] = float(mcse_mean(g.reshape(chains, -1)))
+            err[j] = float(mcse_mean(g))
+    if keep:
+        reuse["a"], reuse["b"] = a_ch, b_ch
+    elif reuse is not None:
+        reuse.clear()
     return prob, err, exact
+
+
+def _k_star(combo, spec: float) -> int:
+    x, _, _, size = combo
+    return int(np.floor(spec * size - x + 1e-9))
+
+
+def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float,
+            basis: str) -> list[tuple[np.ndarray, bool]]:
+    """g of every combination, on the draws after the first ``seen`` of each chain where
+    ``new[j]``, else on all: the lot-basis sums of the combinations that share (x, n) in
+    one call of :func:`qualbayes.lot_draw_cdf.lot_cdfs`, the others one at a time
+    (:func:`draws_g`); each number the same as :func:`draws_g` gives."""
+    out: list = [None] * len(combos)
+    together: dict[tuple, list[int]] = {}
+    for j, (x, n, rem, size) in enumerate(combos):
+        ks = _k_star(combos[j], spec) if basis == LOT and rem else -1
+        if 0 <= ks < rem and a_ch.size * (ks + 1) <= MAX_PMF_TERMS:
+            together.setdefault((x, n, new[j]), []).append(j)
+        else:
+            da, db = (a_ch[:, seen:], b_ch[:, seen:]) if new[j] else (a_ch, b_ch)
+            out[j] = draws_g(da.ravel(), db.ravel(), x, n, rem, spec, basis, size)
+    for (x, n, fresh), js in together.items():
+        da, db = (a_ch[:, seen:], b_ch[:, seen:]) if fresh else (a_ch, b_ch)
+        alpha, beta = da.ravel() + x, db.ravel() + (n - x)
+        cdf = lot_cdfs([_k_star(combos[j], spec) for j in js], [combos[j][2] for j in js],
+                       alpha, beta)
+        for row, j in enumerate(js):
+            out[j] = (np.minimum(cdf[row], 1.0), True)
+    return out
+
+
+#: the largest number of g values (combinations x draws) that ``probabilities`` keeps for
+#: reuse (128 MB); past it each call computes everything
+REUSE_VALUES = 1 << 24
+
+
+def _seen(reuse: dict | None, a_ch: np.ndarray, b_ch: np.ndarray) -> int:
+    """How many draws of each chain ``reuse`` holds g for (0: none, or not the first draws of
+    these chains: it is then emptied)."""
+    if not reuse:
+        return 0
+    old_a, old_b = reuse.get("a"), reuse.get("b")
+    n = 0 if old_a is None else old_a.shape[1]
+    if (old_a is not None and old_a.shape[0] == a_ch.shape[0] and 0 < n <= a_ch.shape[1]
+            and np.array_equal(old_a, a_ch[:, :n]) and np.array_equal(old_b, b_ch[:, :n])):
+        return n
+    reuse.clear()
+    return 0
 
 
 def decide(prob, mcse, x, confidence: float):
@@ -110,7 +171,7 @@ def decide(prob, mcse, x, confidence: float):
 
 
 def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis,
-                      ess_cache: dict | None = None):
+                      ess_cache: dict | None = None, lot_sums: np.ndarray | None = None):
     r"""Smallest number m of further defect-free units after which P >= C, or None.
 
     The m units reweight the draws by the change of the lot's marginal likelihood,
@@ -128,7 +189,10 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
     those counts are known from the answer (:func:`qualbayes.search_near.doubling_path`)
     and checked (tests/test_lot_answers.py compares both on many cases). ``ess_cache``: the
     weights' ESS by m, shared between calls of the same (x, n) (the weights do not depend
-    on the lot size).
+    on the lot size). ``lot_sums``: the lot's log U(x + k) for k = 0..k* at least
+    (:func:`qualbayes.lot_draw_sums.lot_sums`, several draws, lot basis): each count then
+    costs one log-beta per draw instead of a beta-binomial sum per draw
+    (:func:`qualbayes.lot_draw_sums.reweighted_prob`; the same P up to rounding).
     """
     alpha, beta = a0 + x, b0 + (n - x)
     lot = basis == LOT and remaining is not None
@@ -146,25 +210,35 @@ def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis
             ess[m] = float(w.sum() ** 2 / (w**2).sum())
         return ess[m]
 
+    k_star = int(np.floor(spec * lot_size - x + 1e-9)) if lot else -1
+    summed = (lot and lot_sums is not None and not single and 0 <= k_star < len(lot_sums)
+              and alpha.size * (k_star + 1) <= MAX_PMF_TERMS)
+
     def value(m: int) -> float:  # P after m clean units against C, on the logit scale
         if single:
             w = np.ones(1)
         else:
             logw = special.betaln(alpha, beta + m) - base
-            w = np.exp(logw - logw.max())
+            top = float(logw.max())
+            w = np.exp(logw - top)
             ess.setdefault(m, float(w.sum() ** 2 / (w**2).sum()))
-        if lot:
+        if summed:  # no more than k* units left (x <= sN here): within the limit for sure
+            p = 1.0 if remaining - m <= k_star else reweighted_prob(
+                lot_sums, k_star, remaining - m, top + math.log(float(w.mean())))
+        elif lot:
             g, _ = draws_g(a0, b0 + m, x, n, remaining - m, spec, LOT, lot_size)
+            p = float(np.average(g, weights=w))
         else:
-            g = special.betainc(alpha, beta + m, spec)
-        v = _gap(float(np.average(g, weights=w)), confidence)
+            p = float(np.average(special.betainc(alpha, beta + m, spec), weights=w))
+        v = _gap(p, confidence)
         if v < 0 and not single and weight_ess(_doubling_point(m, cap)) < MIN_WEIGHT_ESS:
             raise _Degenerate  # the doubling search tests that count (m is below the answer)
         return v
 
     try:
         start, true_at, slope = _first_guess(alpha, beta, x, remaining if lot else None,
-                                             lot_size, spec, confidence, cap)
+                                             lot_size, spec, confidence, cap,
+                                             surrogate=not summed)
         found = smallest_near(value, start, cap, true_at=true_at, slope=slope)
         if found is not None and not single and any(
                 weight_ess(m) < MIN_WEIGHT_ESS for m in doubling_path(found, cap)):
@@ -209,8 +283,8 @@ def _moment_beta(alpha, beta) -> tuple[float, float]:
     return float(np.mean(alpha)), float(np.mean(beta))
 
 
-def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
-                 cap) -> tuple[int, int | None, float | None]:
+def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence, cap,
+                 surrogate: bool = True) -> tuple[int, int | None, float | None]:
     """(first guess of m, a count known to be enough or None, the value's slope there) from
     the Beta(A, B) with the draws' mean and variance of the rate (:func:`_moment_beta`), for
     which the answer is cheap: on the process basis B + m puts the C-quantile at s
@@ -249,7 +323,7 @@ def _first_guess(alpha, beta, x, remaining, lot_size, spec, confidence,
         start = smallest_int(lambda t: h(float(t)) >= 0, 0, top)
     step = max(1, start // 50)
     slope = (h(start + step) - h(start)) / step if start + step <= top else None
-    if k_star >= SURROGATE_TERMS:  # the one-draw sum would be long: the limit's root will do
+    if k_star >= SURROGATE_TERMS or not surrogate:  # the limit's root will do
         return start, enough, slope
     guess = smallest_near(one, start, remaining, true_at=enough, slope=slope)
     if guess is None:

@@ -19,6 +19,7 @@ from qualbayes.lot_answers import (
     next_lot_summary,
     own_data_columns,
 )
+from qualbayes.lot_decisions import REUSE_VALUES
 from qualbayes.questions import NOT_CONVERGED
 
 #: NUTS target acceptance of the history fit: small histories have a curved tail (large mu
@@ -59,7 +60,13 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     per_chain = fit.settings.num_samples
     held = {label: (fit, j) for j, label in enumerate(names)}  # the fit of each group's draws
     alone = is_part_fit(fit) and len(names) >= ALONE_FROM
-    parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False)
+    # g of the draws so far, kept between close-call rounds when all groups' values fit in
+    # REUSE_VALUES at the last round's number of draws
+    draws_at_cap = fit.draws["mu"].shape[0] * per_chain * (1 + MAX_EXTRA_RUNS)
+    reuse = ({label: {} for label in names} if len(frame) * draws_at_cap <= REUSE_VALUES
+             else None)
+    parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False,
+                           reuse=reuse)
     runs, continued = 0, set()
     while runs < MAX_EXTRA_RUNS:
         close = [label for label, (ans, ok) in parts.items()
@@ -70,7 +77,8 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         changed = _continue(held, close if alone else names, more_draws)
         continued.update(changed)
         parts |= _answer_groups(frame, {label: groups[label] for label in changed}, held, spec,
-                                confidence, outliers, full=False)
+                                confidence, outliers, full=False, reuse=reuse)
+    reuse = None  # the full answers below reuse P itself
     checks = cross_check.lot_groups(held, data, names, spec, hyper, quadrature)
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
              _answer_groups(frame, groups, held, spec, confidence, outliers,
@@ -160,11 +168,12 @@ def _without_draws(data, names, spec, hyper, stop=None) -> tuple[dict, list] | N
 
 
 def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
-                   known=None) -> dict:
+                   known=None, reuse=None) -> dict:
     """label -> (answers of the group's lots, converged) for every group of ``groups``;
     ``held[label]``: the fit holding the group's latest draws and the group's part in it;
     ``known``: the same call's ``full=False`` answers from the same draws (P is not summed
-    again)."""
+    again); ``reuse``: label -> the dict that keeps the group's g between close-call rounds
+    (:func:`qualbayes.lot_decisions.probabilities`)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
     out = {}
@@ -177,7 +186,8 @@ def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
         kappa = fit.draws["kappa"][:, :, j].reshape(-1)
         ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, fit.draws["mu"].shape[0],
                           spec, confidence, full,
-                          known=None if known is None else known[label][0], workers=None)
+                          known=None if known is None else known[label][0], workers=None,
+                          reuse=None if reuse is None else reuse[label])
         ans["outlier_p"] = outliers[label]
         ans["outlier"] = list(outliers[label] < OUTLIER_LEVEL)
         out[label] = (ans, True)

@@ -1,7 +1,8 @@
 """The answering pass as it was before the speed work of issue 18 (commit 133ae50), kept
 as the reference that the faster code must reproduce number for number
 (tests/test_lot_answers.py): the clean-unit search by doubling and bisection from 0, and
-the mixture quantile one level at a time."""
+the mixture quantile one level at a time; and each draw's beta-binomial CDF as it was
+before d5980c2 (an array of ratios and their running products)."""
 
 from __future__ import annotations
 
@@ -110,3 +111,17 @@ def log_pmf_block(k0: int, k1: int, remaining: int, a: np.ndarray, b: np.ndarray
     cum = log_first[:, None] + np.cumsum(steps, axis=1)
     logs = np.concatenate([log_first[:, None], cum[:, :-1]], axis=1)
     return logs, cum[:, -1]
+
+
+def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
+    """The earlier ``lot_decisions.betabinom_cdf`` (an array of ratios and their running
+    products), verbatim."""
+    j = np.arange(k, dtype=float)[None, :]
+    a = np.asarray(alpha, float)[:, None]
+    b = np.asarray(beta, float)[:, None]
+    log0 = special.betaln(a, b + remaining) - special.betaln(a, b)
+    ratio = ((remaining - j) / (j + 1.0)) * ((a + j) / (b + remaining - j - 1.0))
+    if log0.min() > -600.0:  # products of ratios stay within float range: no logarithms
+        return np.exp(log0[:, 0]) * (1.0 + np.cumprod(ratio, axis=1).sum(axis=1))
+    logpmf = log0 + np.cumsum(np.log(ratio), axis=1)
+    return np.exp(log0[:, 0]) + np.exp(logpmf).sum(axis=1)

@@ -224,25 +224,27 @@ def test_answer_lots_equal_the_earlier_answering_pass(monkeypatch):
     frame["decision_basis"] = np.where(frame["lot_size"].notna(), "lot", "process")
     a0, b0 = _history_draws(*HISTORIES["typical"], draws=4000, seed=9)
     known = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False)
-    threads = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, full=False, workers=3)
-    for column, values in known.items():  # P by slices on threads: the same numbers
-        assert pd.Series(list(values)).equals(pd.Series(list(threads[column]))), column
     new = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known, workers=3)
     alone = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known, workers=1)
     for column, values in alone.items():  # the threads change no number
         assert pd.Series(list(values)).equals(pd.Series(list(new[column]))), column
-    # the earlier clean-unit search, mixture quantile and beta-binomial blocks
-    from answers_reference import log_pmf_block, mixture_ppf
+    # the earlier clean-unit search, mixture quantile, beta-binomial blocks and CDF, each
+    # draw summed on its own (no shared mixture sums)
+    from answers_reference import betabinom_cdf, log_pmf_block, mixture_ppf
 
+    from qualbayes import lot_decisions
     from qualbayes.models import mixtures
 
     monkeypatch.setattr(lot_answers, "extra_clean_units",
-                        lambda *args, ess_cache=None: reference_extra(*args))
+                        lambda *args, ess_cache=None, lot_sums=None: reference_extra(*args))
+    monkeypatch.setattr(lot_answers, "lot_sums", lambda *args, **kw: (None, None))
+    monkeypatch.setattr(lot_decisions, "betabinom_cdf", betabinom_cdf)
     monkeypatch.setattr(mixtures, "ppf", mixture_ppf)
     monkeypatch.setattr(mixtures, "_log_pmf_block", log_pmf_block)
     old = lot_answers.answer_lots(frame, a0, b0, 4, 0.01, 0.95, known=known)
     counts = pd.Series(list(new["extra_clean_units_to_accept"]))
     assert counts.notna().sum() > 20  # the comparison covers real counts
+    assert pd.Series(list(new["remaining_defectives_upper"])).notna().sum() > 50
     for column, values in old.items():
         assert pd.Series(list(values)).equals(pd.Series(list(new[column]))), column
 

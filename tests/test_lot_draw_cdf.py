@@ -1,0 +1,102 @@
+"""Each draw's beta-binomial CDF, lot by lot and many lots at once, and P reused between
+close-call rounds (qualbayes.lot_draw_cdf, qualbayes.lot_decisions.probabilities).
+
+Reference: scipy.stats.betabinom (reference library, docs/references.md); the reuse and the
+many-lots form are checked number for number against the one-lot, all-draws computation.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats
+
+from qualbayes import lot_decisions as ld
+from qualbayes.lot_draw_cdf import betabinom_cdf, lot_cdfs
+
+
+def _draws(seed: int, d: int):
+    rng = np.random.default_rng(seed)
+    mu = rng.beta(4, 400, d)
+    kappa = np.exp(rng.normal(np.log(300), 0.7, d))
+    return mu * kappa, (1 - mu) * kappa
+
+
+def test_many_lots_equal_one_lot_at_a_time_and_scipy():
+    # draws with pmf(0) far below e^-600 (a = 800: summed in logarithms) among ordinary ones
+    a, b = _draws(1, 300)
+    a[::7] = 800.0
+    alpha, beta = a + 2, b + 123
+    ks = [0, 5, 40, 2900, 12, 12]
+    rems = [10, 700, 4000, 3000, 950, 951]
+    many = lot_cdfs(ks, rems, alpha, beta)
+    for row, (k, r) in enumerate(zip(ks, rems, strict=True)):
+        one = betabinom_cdf(k, r, alpha, beta)
+        assert np.array_equal(many[row], one)  # bit for bit
+        expected = stats.betabinom.cdf(k, r, alpha, beta)
+        np.testing.assert_allclose(one, expected, rtol=1e-9, atol=1e-300)
+
+
+def test_a_draw_gives_the_same_number_whatever_draws_come_with_it():
+    a, b = _draws(2, 500)
+    a[::11] = 900.0  # some draws summed in logarithms
+    alpha, beta = a + 1, b + 79
+    whole = betabinom_cdf(30, 3000, alpha, beta)
+    parts = np.concatenate([betabinom_cdf(30, 3000, alpha[:173], beta[:173]),
+                            betabinom_cdf(30, 3000, alpha[173:], beta[173:])])
+    assert np.array_equal(whole, parts)
+
+
+def _combos(rng, k: int, lot: bool):
+    n = rng.choice([50, 80, 125, 200], size=k).astype(float)
+    x = rng.binomial(n.astype(int), 0.01).astype(float)
+    size = rng.integers(300, 6000, size=k)
+    size[:3] = n[:3].astype(int)  # fully inspected lots
+    if lot:
+        return list(dict.fromkeys((xi, ni, int(si - ni), int(si)) for xi, ni, si in
+                                  zip(x, n, size, strict=True)))
+    return list(dict.fromkeys((xi, ni, None, None) for xi, ni in zip(x, n, strict=True)))
+
+
+def test_probabilities_reused_between_rounds_equal_a_fresh_computation():
+    # chains continued twice (1,000 more draws per chain each time): P, its MCSE and the
+    # exact flag from the reused numbers are those of all the draws at once, bit for bit
+    rng = np.random.default_rng(3)
+    a, b = _draws(4, 4 * 3000)
+    a_ch, b_ch = a.reshape(4, 3000), b.reshape(4, 3000)
+    for basis, combos in ((ld.LOT, _combos(rng, 150, True)),
+                          (ld.PROCESS, _combos(rng, 60, False))):
+        reuse: dict = {}
+        for per_chain in (1000, 2000, 3000):
+            da, db = a_ch[:, :per_chain].ravel(), b_ch[:, :per_chain].ravel()
+            again = ld.probabilities(da, db, 4, combos, 0.01, basis, reuse=reuse)
+            fresh = ld.probabilities(da, db, 4, combos, 0.01, basis)
+            for got, want in zip(again, fresh, strict=True):
+                assert np.array_equal(got, want)
+            assert reuse["a"].shape == (4, per_chain)  # kept for the next round
+
+
+def test_reuse_is_dropped_when_the_draws_are_not_continued_chains():
+    rng = np.random.default_rng(5)
+    combos = _combos(rng, 40, True)
+    a, b = _draws(6, 4000)
+    reuse: dict = {}
+    ld.probabilities(a, b, 4, combos, 0.01, ld.LOT, reuse=reuse)
+    other_a, other_b = _draws(7, 8000)  # a refit: new draws from the start
+    got = ld.probabilities(other_a, other_b, 4, combos, 0.01, ld.LOT, reuse=reuse)
+    want = ld.probabilities(other_a, other_b, 4, combos, 0.01, ld.LOT)
+    for g, w in zip(got, want, strict=True):
+        assert np.array_equal(g, w)
+    assert np.array_equal(reuse["a"], other_a.reshape(4, -1))
+
+
+def test_reuse_keeps_nothing_past_its_memory_budget(monkeypatch):
+    rng = np.random.default_rng(8)
+    combos = _combos(rng, 40, True)
+    a, b = _draws(9, 4000)
+    monkeypatch.setattr(ld, "REUSE_VALUES", len(combos) * 4000 - 1)
+    reuse: dict = {"a": np.zeros((4, 10))}
+    got = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT, reuse=reuse)
+    assert reuse == {}
+    want = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)
+    for g, w in zip(got, want, strict=True):
+        assert np.array_equal(g, w)

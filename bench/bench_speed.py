@@ -1,7 +1,8 @@
 """Benchmark: the whole ``lots --prior history`` command against its fit (issue 18).
 
 Run: ``python bench/bench_speed.py [case ...]`` with cases such as ``lots:1000`` (1,000 lots
-of one part) or ``parts:100`` (100 parts x 20 lots); no case: the full table (20, 100, 1,000,
+of one part, four lot sizes), ``sizes:1000`` (the same lots, nearly every one its own lot
+size) or ``parts:100`` (100 parts x 20 lots); no case: the full table (20, 100, 1,000,
 10,000 and 200,000 lots of one part; 10, 100 and 1,000 parts x 20 lots), then a cold run
 (empty compilation cache) of the 1,000-lot command.
 
@@ -56,13 +57,17 @@ _WRAP = ("import atexit, resource, runpy, sys; atexit.register(lambda: print('MA
          "run_name='__main__')")
 
 
-def write_case(path: Path, lots: int, parts: int, seed: int = 1) -> None:
+def write_case(path: Path, lots: int, parts: int, seed: int = 1,
+               varied: bool = False) -> None:
+    """``varied``: lot sizes drawn from 800..5,000 (nearly every lot its own size, as in a
+    plant's export) instead of four sizes; the same defectives and sample sizes."""
     rng = np.random.default_rng(seed)
     k = lots * parts
     p = rng.beta(0.01 * 300, 0.99 * 300, size=k)
     n = rng.choice([50, 80, 125, 200, 315], size=k)
     x = rng.binomial(n, p)
-    size = rng.choice([800, 2000, 3200, 5000], size=k)
+    size = (rng.integers(800, 5001, size=k) if varied
+            else rng.choice([800, 2000, 3200, 5000], size=k))
     part = np.repeat([f"P{j}" for j in range(parts)], lots)
     with path.open("w") as f:
         f.write("Lot No.,Part Number,Lot Qty,Qty Inspected,Nonconforming\n")
@@ -143,9 +148,9 @@ def _chunk() -> int:
 def measure(case: str, cache: str, tmp: Path, warmup: str = "full",
             with_fit: bool = True) -> dict:
     kind, count = case.split(":")
-    lots, parts = (int(count), 1) if kind == "lots" else (20, int(count))
+    lots, parts = (int(count), 1) if kind in ("lots", "sizes") else (20, int(count))
     path = tmp / f"{kind}-{count}.csv"
-    write_case(path, lots, parts)
+    write_case(path, lots, parts, varied=kind == "sizes")
     load0 = os.getloadavg()[0]
     if warmup == "full" or (warmup == "small" and parts == 1):
         command(str(path), cache)  # warm-up: this shape's compiled code in the cache
@@ -157,7 +162,8 @@ def measure(case: str, cache: str, tmp: Path, warmup: str = "full",
            else {"fit": float("nan"), "fit_cpu": float("nan"), "ess": float("nan"),
                  "passed": True, "fit_process": float("nan")})
     cmd = command(str(path), cache)
-    return {"case": f"{lots:,} lots x {parts:,} part(s)", **fit, **cmd,
+    label = f"{lots:,} lots x {parts:,} part(s)" + (", varied sizes" if kind == "sizes" else "")
+    return {"case": label, **fit, **cmd,
             "load": f"{load0:.1f} to {os.getloadavg()[0]:.1f}"}
 
 

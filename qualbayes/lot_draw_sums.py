@@ -30,8 +30,8 @@ units have the mixture probabilities
 The same numbers as summing each draw's probabilities
 (:func:`qualbayes.lot_decisions.betabinom_cdf`, :func:`qualbayes.models.mixtures.
 betabinom_quantiles`) up to rounding (tested against both and against
-scipy.stats.betabinom); about a quarter of their time for a lot of a few thousand units
-(docs/speed.md).
+scipy.stats.betabinom). With it, the full answers of 1,000 lots of their own sizes took
+2.4-3.1 s on one thread against 6.0-6.5 s (docs/speed.md).
 
 >>> import numpy as np
 >>> from scipy import stats

@@ -30,7 +30,7 @@ import numpy as np
 from scipy import special
 
 from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
-from qualbayes.lot_draw_cdf import betabinom_cdf, lot_cdfs
+from qualbayes.lot_draw_cdf import BLOCK_VALUES, betabinom_cdf, lot_cdfs
 from qualbayes.lot_draw_sums import reweighted_prob
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
@@ -90,9 +90,8 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
     new = [old is not None and (basis == PROCESS or not c[2] or a_ch.size * (
         max(_k_star(c, spec), 0) + 1) <= MAX_PMF_TERMS) for c, old in zip(combos, olds,
                                                                           strict=True)]
-    got = _many_g(a_ch, b_ch, seen, combos, new, spec, basis)
-    for j, c in enumerate(combos):
-        g, ok = got[j]
+    for j, g, ok in _many_g(a_ch, b_ch, seen, combos, new, spec, basis):
+        c = combos[j]
         g = g.reshape(chains, -1)
         if new[j]:
             g, ok = np.concatenate([olds[j][0], g], axis=1), olds[j][1] and ok
@@ -113,13 +112,12 @@ def _k_star(combo, spec: float) -> int:
     return int(np.floor(spec * size - x + 1e-9))
 
 
-def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float,
-            basis: str) -> list[tuple[np.ndarray, bool]]:
-    """g of every combination, on the draws after the first ``seen`` of each chain where
-    ``new[j]``, else on all: the lot-basis sums of the combinations that share (x, n) in
-    one call of :func:`qualbayes.lot_draw_cdf.lot_cdfs`, the others one at a time
-    (:func:`draws_g`); each number the same as :func:`draws_g` gives."""
-    out: list = [None] * len(combos)
+def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float, basis: str):
+    """(j, g, exact) of every combination j, on the draws after the first ``seen`` of each
+    chain where ``new[j]``, else on all: the lot-basis sums of the combinations that share
+    (x, n) by :func:`qualbayes.lot_draw_cdf.lot_cdfs`, a block of lots at a time (at most
+    BLOCK_VALUES numbers alive), the others one at a time (:func:`draws_g`); each number
+    the same as :func:`draws_g` gives. A generator: the caller uses each g and lets it go."""
     together: dict[tuple, list[int]] = {}
     for j, (x, n, rem, size) in enumerate(combos):
         ks = _k_star(combos[j], spec) if basis == LOT and rem else -1
@@ -127,15 +125,18 @@ def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float,
             together.setdefault((x, n, new[j]), []).append(j)
         else:
             da, db = (a_ch[:, seen:], b_ch[:, seen:]) if new[j] else (a_ch, b_ch)
-            out[j] = draws_g(da.ravel(), db.ravel(), x, n, rem, spec, basis, size)
+            yield j, *draws_g(da.ravel(), db.ravel(), x, n, rem, spec, basis, size)
     for (x, n, fresh), js in together.items():
         da, db = (a_ch[:, seen:], b_ch[:, seen:]) if fresh else (a_ch, b_ch)
         alpha, beta = da.ravel() + x, db.ravel() + (n - x)
-        cdf = lot_cdfs([_k_star(combos[j], spec) for j in js], [combos[j][2] for j in js],
-                       alpha, beta)
-        for row, j in enumerate(js):
-            out[j] = (np.minimum(cdf[row], 1.0), True)
-    return out
+        norm = special.betaln(alpha, beta)
+        step = max(1, BLOCK_VALUES // max(alpha.size, 1))
+        for start in range(0, len(js), step):
+            block = js[start:start + step]
+            cdf = lot_cdfs([_k_star(combos[j], spec) for j in block],
+                           [combos[j][2] for j in block], alpha, beta, norm)
+            for row, j in enumerate(block):
+                yield j, np.minimum(cdf[row], 1.0), True
 
 
 #: the largest number of g values (combinations x draws) that ``probabilities`` keeps for

@@ -36,18 +36,16 @@ from scipy import special
 BLOCK_VALUES = 1 << 21
 
 
-def betabinom_cdf(k: int, remaining: int, alpha, beta, log_norm=None) -> np.ndarray:
+def betabinom_cdf(k: int, remaining: int, alpha, beta) -> np.ndarray:
     """P(D <= k) per draw for D ~ BetaBinomial(remaining, alpha_d, beta_d) (module
-    docstring; checked against scipy.stats.betabinom in the tests). ``log_norm``: log
-    B(alpha, beta) when known (lots of one (x, n))."""
-    a = np.asarray(alpha, float)
-    b = np.asarray(beta, float)
-    return lot_cdfs([k], [remaining], a, b, log_norm)[0]
+    docstring; checked against scipy.stats.betabinom in the tests)."""
+    return lot_cdfs([k], [remaining], alpha, beta)[0]
 
 
 def lot_cdfs(ks, remainings, alpha, beta, log_norm=None) -> np.ndarray:
     """P(D_c <= k_c) per lot c and draw d, D_c ~ BetaBinomial(R_c, alpha_d, beta_d): an
-    array (lots, draws), each row the numbers of :func:`betabinom_cdf` for that lot."""
+    array (lots, draws), each row the numbers of :func:`betabinom_cdf` for that lot.
+    ``log_norm``: log B(alpha, beta) when the caller has it (several blocks of one (x, n))."""
     a = np.asarray(alpha, float)
     b = np.asarray(beta, float)
     ks = np.asarray(ks, int)

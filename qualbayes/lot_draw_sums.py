@@ -68,13 +68,11 @@ def lot_sums(a0, b0, x: float, n: float, size: int, *, need: int,
     beta = np.asarray(b0, float) + (n - x)
     remaining = int(size) - int(n)
     k_max = max(64, min(int(need), MAX_COUNTS))
-    hopeless = False  # the quantiles certainly lie past MAX_COUNTS: do not sum for them
-    if rate_high is not None and math.isfinite(rate_high):
-        mean = remaining * rate_high
+    known = rate_high is not None and math.isfinite(rate_high)
+    mean = remaining * rate_high if known else 0.0
+    hopeless = mean > 4 * MAX_COUNTS  # the quantiles lie past MAX_COUNTS: not summed for
+    if known and not hopeless:
         k_max = max(k_max, min(MAX_COUNTS, int(mean + 2.5 * math.sqrt(max(mean, 0.0)) + 3)))
-        hopeless = mean > 4 * MAX_COUNTS
-        if hopeless:
-            k_max = max(64, min(int(need), MAX_COUNTS))
     log_f = special.betaln(alpha, beta + remaining) - special.betaln(alpha, beta)
     while True:
         lu = log_u(alpha, beta, remaining, log_f, min(k_max, remaining))

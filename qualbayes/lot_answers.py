@@ -72,7 +72,7 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 confidence: float, full: bool = True,
                 known: dict | None = None, workers: int | None = 1,
-                reuse: dict | None = None) -> dict[str, object]:
+                reuse: dict | None = None, until_close: bool = False) -> dict[str, object]:
     """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
     only P, its MCSE and the decision (enough to see whether more draws are needed).
     ``known``: the ``full=False`` answers of the same lots from the same draws, reused
@@ -84,7 +84,13 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     2.0-3.1 s on one (docs/speed.md). P is summed on one thread: its loops over counts are
     many small array operations, which two threads slowed down (1.10-1.30 s against
     0.99-1.21 s for the same lots). ``reuse``: a dict the caller keeps between the calls on one
-    group's continued chains (:func:`qualbayes.lot_decisions.probabilities`)."""
+    group's continued chains (:func:`qualbayes.lot_decisions.probabilities`).
+    ``until_close`` (with ``full=False`` and ``reuse``; a close-call round that is not the
+    last): stop at the first lot too close to call and return only ``{"too_close": ...,
+    "_partial": True}`` (that lot True, no other answer); when no lot is close, the complete
+    answers, the same as without it."""
+    if until_close and full:
+        raise ValueError("until_close answers only whether a lot is too close (full=False)")
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}
@@ -100,9 +106,13 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
             continue
         sub = [(combos[j][0], combos[j][1], combos[j][2], combos[j][3]) for j in sel]
         prob, err, exact = probabilities(a0, b0, chains, sub, spec, basis,
-                                         None if reuse is None else reuse.setdefault(basis, {}))
+                                         None if reuse is None else reuse.setdefault(basis, {}),
+                                         until_close=confidence if until_close else None)
         x_sel = np.array([combos[j][0] for j in sel])
         dec, close = decide(prob, err, x_sel, confidence)
+        if np.isnan(err).any():  # stopped at a close call: nothing else is settled
+            found = {sel[i] for i in np.flatnonzero(close)}
+            return {"too_close": [int(j) in found for j in index], "_partial": True}
         for i, j in enumerate(sel):
             cols["prob_within_spec"][j] = float(prob[i])
             cols["prob_within_spec_mcse"][j] = float(err[i])

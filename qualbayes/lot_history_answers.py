@@ -65,8 +65,12 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     draws_at_cap = fit.draws["mu"].shape[0] * per_chain * (1 + MAX_EXTRA_RUNS)
     reuse = ({label: {} for label in names} if len(frame) * draws_at_cap <= REUSE_VALUES
              else None)
+    # a round that may still continue the chains stops at a group's first close call (its
+    # other MCSEs are not needed: the next round computes them from all the draws); the
+    # rounds' decisions and the final numbers are the same as computing every MCSE each round
+    scan = reuse is not None
     parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False,
-                           reuse=reuse)
+                           reuse=reuse, until_close=scan and MAX_EXTRA_RUNS > 0)
     runs, continued = 0, set()
     while runs < MAX_EXTRA_RUNS:
         close = [label for label, (ans, ok) in parts.items()
@@ -77,7 +81,10 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         changed = _continue(held, close if alone else names, more_draws)
         continued.update(changed)
         parts |= _answer_groups(frame, {label: groups[label] for label in changed}, held, spec,
-                                confidence, outliers, full=False, reuse=reuse)
+                                confidence, outliers, full=False, reuse=reuse,
+                                until_close=scan and runs < MAX_EXTRA_RUNS)
+    if any(ans.get("_partial") for ans, _ in parts.values()):  # pragma: no cover - invariant
+        raise RuntimeError("internal: a close-call round left answers unsettled")
     reuse = None  # the full answers below reuse P itself
     checks = cross_check.lot_groups(held, data, names, spec, hyper, quadrature)
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
@@ -168,12 +175,13 @@ def _without_draws(data, names, spec, hyper, stop=None) -> tuple[dict, list] | N
 
 
 def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
-                   known=None, reuse=None) -> dict:
+                   known=None, reuse=None, until_close=False) -> dict:
     """label -> (answers of the group's lots, converged) for every group of ``groups``;
     ``held[label]``: the fit holding the group's latest draws and the group's part in it;
     ``known``: the same call's ``full=False`` answers from the same draws (P is not summed
     again); ``reuse``: label -> the dict that keeps the group's g between close-call rounds
-    (:func:`qualbayes.lot_decisions.probabilities`)."""
+    (:func:`qualbayes.lot_decisions.probabilities`); ``until_close``: stop each group at
+    its first close call (:func:`qualbayes.lot_answers.answer_lots`)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
     out = {}
@@ -187,7 +195,8 @@ def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
         ans = answer_lots(frame.iloc[idx], mu * kappa, (1 - mu) * kappa, fit.draws["mu"].shape[0],
                           spec, confidence, full,
                           known=None if known is None else known[label][0], workers=None,
-                          reuse=None if reuse is None else reuse[label])
+                          reuse=None if reuse is None else reuse[label],
+                          until_close=until_close)
         ans["outlier_p"] = outliers[label]
         ans["outlier"] = list(outliers[label] < OUTLIER_LEVEL)
         out[label] = (ans, True)

@@ -100,3 +100,88 @@ def test_reuse_keeps_nothing_past_its_memory_budget(monkeypatch):
     want = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)
     for g, w in zip(got, want, strict=True):
         assert np.array_equal(g, w)
+
+
+def test_passes_of_any_size_give_the_same_numbers(monkeypatch):
+    # lot_cdfs sums PASS_VALUES lots x draws at a time (for the processor's cache): one lot
+    # per pass, two, or all at once give the same numbers, bit for bit
+    from qualbayes import lot_draw_cdf
+
+    a, b = _draws(10, 300)
+    a[::7] = 800.0  # some draws summed in logarithms
+    alpha, beta = a + 1, b + 90
+    ks = [0, 5, 40, 12, 12, 31, 7]
+    rems = [10, 700, 4000, 950, 951, 3100, 600]
+    got = []
+    for values in (1, 600, 10**9):
+        monkeypatch.setattr(lot_draw_cdf, "PASS_VALUES", values)
+        got.append(lot_cdfs(ks, rems, alpha, beta))
+    assert np.array_equal(got[0], got[1]) and np.array_equal(got[0], got[2])
+
+
+def _fresh_and_scan(combos, a, b, confidence, basis=ld.LOT):
+    fresh = ld.probabilities(a, b, 4, combos, 0.01, basis)
+    scan = ld.probabilities(a, b, 4, combos, 0.01, basis, reuse={}, until_close=confidence)
+    return fresh, scan
+
+
+def test_a_round_that_may_continue_stops_at_its_first_close_call():
+    # C set to one lot's own P: that lot is too close to call, so the scan stops at a close
+    # lot; every P and every MCSE it computed are those of the full computation
+    rng = np.random.default_rng(11)
+    combos = _combos(rng, 150, True)
+    a, b = _draws(12, 4000)
+    prob = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)[0]
+    inside = np.flatnonzero((prob > 0.2) & (prob < 0.99))
+    confidence = float(prob[inside[len(inside) // 2]])
+    (p0, e0, x0), (p1, e1, x1) = _fresh_and_scan(combos, a, b, confidence)
+    assert np.array_equal(p0, p1) and np.array_equal(x0, x1)
+    done = ~np.isnan(e1)
+    assert 0 < done.sum() < len(combos)  # stopped early
+    assert np.array_equal(e0[done], e1[done])
+    x = np.array([c[0] for c in combos])
+    close = ld.decide(p1[done], e1[done], x[done], confidence)[1]
+    assert close[-1] and close.sum() == 1  # the last lot computed is the first close one
+
+
+def test_a_round_without_a_close_call_computes_every_mcse():
+    # C where no lot is within 3 MCSE of either threshold: the scan computes every MCSE and
+    # gives the full computation's numbers, bit for bit
+    rng = np.random.default_rng(13)
+    combos = _combos(rng, 60, True)
+    a, b = _draws(14, 4000)
+    prob, err, _ = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)
+    x = np.array([c[0] for c in combos])
+    clear = [c for c in np.linspace(0.5, 0.999, 500)
+             if not ld.decide(prob, err, x, c)[1].any()]
+    assert clear  # some C leaves every lot settled
+    fresh, scan = _fresh_and_scan(combos, a, b, float(clear[0]))
+    for got, want in zip(scan, fresh, strict=True):
+        assert np.array_equal(got, want)
+
+
+def test_answers_of_a_stopped_round_say_only_that_a_lot_is_close():
+    import pandas as pd
+
+    from qualbayes.lot_answers import answer_lots
+
+    rng = np.random.default_rng(15)
+    combos = _combos(rng, 80, True)
+    frame = pd.DataFrame({"defectives": [c[0] for c in combos],
+                          "inspected": [c[1] for c in combos],
+                          "lot_size": [c[3] for c in combos],
+                          "decision_basis": [ld.LOT] * len(combos)})
+    a, b = _draws(16, 4000)
+    whole = answer_lots(frame, a, b, 4, 0.01, 0.95, full=False, reuse={})
+    p = np.asarray(whole["prob_within_spec"])
+    confidence = float(p[np.flatnonzero((p > 0.2) & (p < 0.99))[0]])
+    part = answer_lots(frame, a, b, 4, 0.01, confidence, full=False, reuse={},
+                       until_close=True)
+    assert part["_partial"] is True and set(part) == {"too_close", "_partial"}
+    assert sum(part["too_close"]) == 1
+    try:
+        answer_lots(frame, a, b, 4, 0.01, confidence, full=True, until_close=True)
+    except ValueError:
+        pass
+    else:
+        raise AssertionError("until_close with full answers must be refused")

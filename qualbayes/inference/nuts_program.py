@@ -62,10 +62,7 @@ class Program:
 
     def start(self, seed: int, model_args: tuple, init_params=None):
         """Every chain's initial state (numpyro's keys and ``NUTS.init``)."""
-        import jax  # noqa: PLC0415
-
-        key = jax.random.PRNGKey(seed)
-        keys = key[None] if self.num_chains == 1 else jax.random.split(key, self.num_chains)
+        keys = chain_keys(seed, self.num_chains)
         init, _ = self.compiled(keys, init_params, model_args)
         return init(keys, init_params, model_args)
 
@@ -112,6 +109,21 @@ class Program:
             raise ValueError("no draws asked for")
         sites = {k: np.concatenate([p[k] for p in parts], axis=1) for k in parts[0]}
         return state, sites, np.concatenate(divs, axis=1)
+
+
+def chain_keys(seed: int, num_chains: int):
+    """The chains' keys: ``jax.random.split(jax.random.PRNGKey(seed), num_chains)`` (the
+    seed's key itself for one chain), computed in numpy with the same bits when jax's random
+    settings allow (:mod:`qualbayes.inference.prng_keys`; no program to lower or compile)."""
+    import jax  # noqa: PLC0415
+
+    from qualbayes.inference import prng_keys  # noqa: PLC0415
+
+    if prng_keys.available():
+        key = prng_keys.seed_key(seed)
+        return key[None] if num_chains == 1 else prng_keys.split(key, num_chains)
+    key = jax.random.PRNGKey(seed)
+    return key[None] if num_chains == 1 else jax.random.split(key, num_chains)
 
 
 def _types(tree) -> tuple:

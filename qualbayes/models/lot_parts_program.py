@@ -5,8 +5,8 @@ vmapped) over chains and, for several parts per call, vmapped over parts.
 Two compiled programs per model, shape and settings (:func:`_compiled`): ``init`` (initial
 point, step-size search) and ``steps`` (up to :data:`STEPS` transitions, the warmup's
 adaptation inside by the iteration counter); warmup, draws and every continuation call the
-same ``steps``. The first use of a shape compiles both, and the parts' keys program, each on
-a thread of its own as soon as it is lowered (a first-ever run waits for the longest of the
+same ``steps``. The first use of a shape compiles both, each on a thread of its own as
+soon as it is lowered (a first-ever run waits for the longest of the
 compilations, not their sum). A single part is called
 without a vmap (batching NUTS's while loops costs seconds of tracing). Part ``j``'s random
 keys come from ``fold_in(seed, j)`` (:func:`part_keys`) and padding lanes repeat the call's
@@ -59,11 +59,17 @@ def part_keys(seed: int, parts: np.ndarray, num_chains: int, width: int):
     """Random keys (chain, width, 2): part ``j``'s chains split from ``fold_in(seed, j)``,
     ``j`` its index in the fit, so that a part's stream does not depend on the chunk it is
     sampled in nor on the other parts (padding lanes get the keys of further indices).
-    Computed by one compiled program (:func:`_keys_program`: one compilation on a first run
-    instead of one per random operation, and about 0.03 ms a call instead of 3 ms), with
-    the same bits as the operations run one by one (tested). The sampler compiles the same
-    program ahead of time with its own two (:func:`_compiled`)."""
-    return _keys_program(int(num_chains))(np.int64(seed), _key_indices(parts, width))
+    Computed in numpy (:mod:`qualbayes.inference.prng_keys`: no program to lower or
+    compile) with the same bits as jax's operations (tested), or by one compiled program
+    (:func:`_keys_program`) when jax's random settings are not the ones reproduced there."""
+    from qualbayes.inference import prng_keys  # noqa: PLC0415
+
+    idx = _key_indices(parts, width)
+    if not prng_keys.available():
+        return _keys_program(int(num_chains))(np.int64(seed), idx)
+    base = prng_keys.seed_key(seed)
+    return np.stack([prng_keys.split(prng_keys.fold_in(base, j), int(num_chains))
+                     for j in idx], axis=1)
 
 
 def _key_indices(parts, width: int) -> np.ndarray:
@@ -73,20 +79,11 @@ def _key_indices(parts, width: int) -> np.ndarray:
     return np.concatenate([np.asarray(parts, np.int64), extra.astype(np.int64)])
 
 
-def _keys_lowered(num_chains: int, width: int):
-    """:func:`_keys_program` lowered for ``width`` parts, to be compiled ahead of time
-    (call inside ``jax_scope``): called as ``(np.int64(seed), _key_indices(parts,
-    width))``, it gives :func:`part_keys`' bits (tested)."""
-    import jax  # noqa: PLC0415
-    import jax.numpy as jnp  # noqa: PLC0415
-
-    return _keys_program(int(num_chains)).lower(jax.ShapeDtypeStruct((), jnp.int64),
-                                                jax.ShapeDtypeStruct((width,), jnp.int64))
-
-
 @lru_cache(maxsize=8)
 def _keys_program(num_chains: int):
-    """(seed, part indices) -> keys (chain, part, 2), compiled (call inside ``jax_scope``)."""
+    """(seed, part indices) -> keys (chain, part, 2), compiled (call inside ``jax_scope``):
+    :func:`part_keys` when jax's random settings are not those of
+    :mod:`qualbayes.inference.prng_keys`."""
     import jax  # noqa: PLC0415
     import jax.numpy as jnp  # noqa: PLC0415
 
@@ -221,7 +218,7 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
         return chains, x.shape, n.shape, w.shape
 
     def programs(x, n, w):
-        """The keys' program, ``init`` and ``steps``, compiled for these shapes. The first
+        """``init`` and ``steps``, compiled for these shapes. The first
         time, each is lowered here and compiled on a thread of its own as soon as it is
         lowered (XLA releases the interpreter lock while it compiles, so ``init`` compiles
         while ``steps`` is traced; the persistent cache serves any of them as usual). The
@@ -236,8 +233,7 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
                 count = jax.ShapeDtypeStruct((), jnp.int32)
                 steps_job = pool.submit(steps.lower(states, x, n, w, count).compile)
                 init_job = pool.submit(init.lower(keys, x, n, w).compile)
-                keys_job = pool.submit(_keys_lowered(num_chains, width).compile)
-                ready[sig] = (keys_job.result(), init_job.result(), steps_job.result())
+                ready[sig] = (init_job.result(), steps_job.result())
         return ready[sig]
 
     def advance(states, x, n, w, total, keep=True):
@@ -246,7 +242,7 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
         signature, so the first run and a continuation share one trace)."""
         kept, done = [], 0
         sig = shape_key(jax.tree.leaves(states)[0].shape[0], x, n, w)
-        step = ready[sig][2] if sig in ready else steps  # a state from elsewhere: plain call
+        step = ready[sig][1] if sig in ready else steps  # a state from elsewhere: plain call
         while done < total:
             c = min(STEPS, total - done)
             states = jax.tree.map(np.asarray, states)
@@ -261,8 +257,8 @@ def _compiled(model, scale, num_warmup, num_samples, target_accept, max_tree_dep
     def run(seed, parts, x, n, w):
         """The first run of parts ``parts`` (their indices in the fit: their random keys,
         :func:`part_keys`) from ``seed``, warmup then draws."""
-        key_program, start, _ = programs(x, n, w)
-        keys = key_program(np.int64(seed), _key_indices(parts, x.shape[0]))
+        start, _ = programs(x, n, w)
+        keys = part_keys(seed, parts, num_chains, x.shape[0])
         *_, states = advance(start(keys, x, n, w), x, n, w, num_warmup, keep=False)
         return advance(states, x, n, w, num_samples)
 

@@ -185,3 +185,18 @@ def test_answers_of_a_stopped_round_say_only_that_a_lot_is_close():
         pass
     else:
         raise AssertionError("until_close with full answers must be refused")
+
+
+def test_blocks_on_threads_give_the_numbers_of_one_thread(monkeypatch):
+    # _many_g sums its blocks on threads: the same (j, g) in the same order as on one
+    monkeypatch.setattr(ld, "BLOCK_VALUES", 3 * 4000)  # three lots per block: many blocks
+    rng = np.random.default_rng(17)
+    combos = _combos(rng, 120, True)
+    a, b = _draws(18, 4000)
+    a_ch, b_ch = a.reshape(4, -1), b.reshape(4, -1)
+    new = [False] * len(combos)
+    one = list(ld._many_g(a_ch, b_ch, 0, combos, new, 0.01, ld.LOT, workers=1))
+    three = list(ld._many_g(a_ch, b_ch, 0, combos, new, 0.01, ld.LOT, workers=3))
+    assert [j for j, _, _ in one] == [j for j, _, _ in three]
+    assert all(np.array_equal(g1, g3) and e1 == e3
+               for (_, g1, e1), (_, g3, e3) in zip(one, three, strict=True))

@@ -81,9 +81,9 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     release the interpreter lock in their array loops); the numbers do not depend on it.
     The default is 1; the history path passes None: on the 2-core test machine the full
     answers of 1,000 lots (1,000 distinct lot sizes) took 1.6-2.3 s on two threads against
-    2.0-3.1 s on one (docs/speed.md). P's beta-binomial sums run on the CPUs this process may
-    use, a block of lots at a time (:func:`qualbayes.lot_decisions.probabilities`). ``reuse``: a dict the caller keeps between the calls on one
-    group's continued chains (:func:`qualbayes.lot_decisions.probabilities`).
+    2.0-3.1 s on one (docs/speed.md). P's beta-binomial sums run on the CPUs this process
+    may use, a block of lots at a time. ``reuse``: a dict the caller keeps between the calls
+    on one group's continued chains (:func:`qualbayes.lot_decisions.probabilities`).
     ``until_close`` (with ``full=False`` and ``reuse``; a close-call round that is not the
     last): stop at the first lot too close to call and return only ``{"too_close": ...,
     "_partial": True}`` (that lot True, no other answer); when no lot is close, the complete

@@ -184,7 +184,9 @@ def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float, basis: 
 def _ordered_map(fn, items: list, workers: int | None):
     """``fn`` of each item, in order, on up to ``workers`` threads, at most ``workers + 1``
     items ahead of the caller (a generator, so that results are let go once used)."""
-    workers = workers or _cpus()
+    from qualbayes.lot_answers import threads  # noqa: PLC0415 - it imports this module
+
+    workers = workers or threads()
     if workers < 2 or len(items) < 2:
         yield from map(fn, items)
         return
@@ -202,14 +204,6 @@ def _ordered_map(fn, items: list, workers: int | None):
                 pending.append(pool.submit(fn, nxt))
             yield done
 
-
-def _cpus() -> int:
-    import os  # noqa: PLC0415
-
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return max(1, os.cpu_count() or 1)
 
 
 #: the largest number of g values (combinations x draws) that ``probabilities`` keeps for

@@ -22,6 +22,7 @@ from qualbayes.lot_decisions import (
 from qualbayes.lot_draw_sums import lot_sums
 from qualbayes.models import mixtures
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
+from qualbayes.threads import ordered_map
 
 RESULT_COLUMNS = [
     "posterior_mean", "interval_low", "interval_high", "upper_bound", "prob_within_spec",
@@ -133,7 +134,7 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                                  cols["too_close"], a0, b0, spec, confidence)
 
         keys = list(by_rate)
-        for done in _map(work, keys, workers):
+        for done in ordered_map(work, keys, workers):
             for j, values in done.items():
                 approximate = values.pop("_approximate")
                 approx[j] = approx[j] or approximate
@@ -194,27 +195,6 @@ def _rate_answers(key: tuple, members: list[int], combos: list[tuple], decisions
         out[j] = v
     return out
 
-
-def threads() -> int:
-    """The CPUs this process may use."""
-    import os  # noqa: PLC0415
-
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return max(1, os.cpu_count() or 1)
-
-
-def _map(fn, items: list, workers: int | None) -> list:
-    """``[fn(i) for i in items]``, on up to ``workers`` threads (default :func:`threads`),
-    in order."""
-    workers = min(len(items), threads() if workers is None else int(workers))
-    if workers <= 1:
-        return [fn(i) for i in items]
-    from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
-
-    with ThreadPoolExecutor(workers) as pool:
-        return list(pool.map(fn, items))
 
 
 def beta_answers(frame: pd.DataFrame, a: float, b: float, spec: float,

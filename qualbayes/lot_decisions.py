@@ -35,6 +35,7 @@ from qualbayes.lot_draw_sums import reweighted_prob
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
 from qualbayes.search_near import doubling_path, smallest_near
+from qualbayes.threads import ordered_map
 
 LOT, PROCESS = "lot", "process"
 MIN_WEIGHT_ESS = 200.0  # below this the reweighted extra-units count is not trusted
@@ -176,33 +177,10 @@ def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float, basis: 
         return block, lot_cdfs([_k_star(combos[j], spec) for j in block],
                                [combos[j][2] for j in block], alpha, beta)
 
-    for block, cdf in _ordered_map(block_sums, tasks, workers):
+    for block, cdf in ordered_map(block_sums, tasks, workers):
         for row, j in enumerate(block):
             yield j, np.minimum(cdf[row], 1.0), True
 
-
-def _ordered_map(fn, items: list, workers: int | None):
-    """``fn`` of each item, in order, on up to ``workers`` threads, at most ``workers + 1``
-    items ahead of the caller (a generator, so that results are let go once used)."""
-    from qualbayes.lot_answers import threads  # noqa: PLC0415 - it imports this module
-
-    workers = workers or threads()
-    if workers < 2 or len(items) < 2:
-        yield from map(fn, items)
-        return
-    from collections import deque  # noqa: PLC0415
-    from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
-    from itertools import islice  # noqa: PLC0415
-
-    with ThreadPoolExecutor(workers) as pool:
-        todo = iter(items)
-        pending = deque(pool.submit(fn, item) for item in islice(todo, workers + 1))
-        while pending:
-            done = pending.popleft().result()
-            nxt = next(todo, None)
-            if nxt is not None:
-                pending.append(pool.submit(fn, nxt))
-            yield done
 
 
 

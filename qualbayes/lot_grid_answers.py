@@ -38,6 +38,7 @@ from qualbayes.lot_grid_bounds import mixture_quantiles
 from qualbayes.models import lot_history_grid as grid
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
 from qualbayes.search import smallest_int
+from qualbayes.threads import cpus
 
 GRID_SIZE = 160
 SUMMARY_TAIL = 1e-5  # mass left out of the nodes used for bounds, means and counts
@@ -297,12 +298,7 @@ BLOCK = 32
 def threads() -> int:
     """Threads for the groups of one process: the CPUs this process may use (numpy releases
     the interpreter lock inside its array loops, so blocks of groups run side by side)."""
-    import os  # noqa: PLC0415
-
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return max(1, os.cpu_count() or 1)
+    return cpus()
 
 
 def _answer_block(labels, groups, x_all, n_all, sizes, basis, spec, confidence, prior,

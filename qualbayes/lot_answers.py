@@ -82,8 +82,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     release the interpreter lock in their array loops); the numbers do not depend on it.
     The default is 1; the history path passes None: on the 2-core test machine the full
     answers of 1,000 lots (1,000 distinct lot sizes) took 1.6-2.3 s on two threads against
-    2.0-3.1 s on one (docs/speed.md). P's beta-binomial sums run on the CPUs this process
-    may use, a block of lots at a time. ``reuse``: a dict the caller keeps between the calls
+    2.0-3.1 s on one (docs/speed.md). P's beta-binomial sums use the same threads, a block
+    of lots each. ``reuse``: a dict the caller keeps between the calls
     on one group's continued chains (:func:`qualbayes.lot_decisions.probabilities`).
     ``until_close`` (with ``full=False`` and ``reuse``; a close-call round that is not the
     last): stop at the first lot too close to call and return only ``{"too_close": ...,
@@ -107,7 +107,8 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
         sub = [(combos[j][0], combos[j][1], combos[j][2], combos[j][3]) for j in sel]
         prob, err, exact = probabilities(a0, b0, chains, sub, spec, basis,
                                          None if reuse is None else reuse.setdefault(basis, {}),
-                                         until_close=confidence if until_close else None)
+                                         until_close=confidence if until_close else None,
+                                         workers=workers)
         x_sel = np.array([combos[j][0] for j in sel])
         dec, close = decide(prob, err, x_sel, confidence)
         if np.isnan(err).any():  # stopped at a close call: nothing else is settled

@@ -70,7 +70,8 @@ def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basi
 
 
 def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
-                  reuse: dict | None = None, *, until_close: float | None = None):
+                  reuse: dict | None = None, *, until_close: float | None = None,
+                  workers: int | None = None):
     """P, its MCSE and whether it is exact, for every combination (x, n, remaining or None,
     lot size or None). ``a0``, ``b0``: prior parameter draws, flat (chains * draws,).
 
@@ -82,7 +83,8 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
     the next round computes every MCSE from all the draws again. The MCSEs not computed are
     NaN (their lots are then neither decided nor close: the caller must not report them).
     When no combination is close every MCSE is computed: the same numbers as without it
-    (tested). Without kept g values it has no effect.
+    (tested). Without kept g values it has no effect. ``workers``: threads for the sums
+    (None: the CPUs this process may use; the numbers do not depend on it).
 
     ``reuse``: a dict kept by the caller between calls on the draws of chains that are only
     continued (a close call's more draws): each combination's g_d of the draws seen so far
@@ -102,7 +104,7 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
         max(_k_star(c, spec), 0) + 1) <= MAX_PMF_TERMS) for c, old in zip(combos, olds,
                                                                           strict=True)]
     scan = until_close is not None and keep
-    for j, g, ok in _many_g(a_ch, b_ch, seen, combos, new, spec, basis):
+    for j, g, ok in _many_g(a_ch, b_ch, seen, combos, new, spec, basis, workers):
         c = combos[j]
         g = g.reshape(chains, -1)
         if new[j]:

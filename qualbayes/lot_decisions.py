@@ -29,7 +29,7 @@ import math
 import numpy as np
 from scipy import special
 
-from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean
+from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean, mcse_means
 from qualbayes.lot_draw_cdf import BLOCK_VALUES, betabinom_cdf, lot_cdfs
 from qualbayes.lot_draw_sums import reweighted_prob
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
@@ -104,6 +104,12 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
         max(_k_star(c, spec), 0) + 1) <= MAX_PMF_TERMS) for c, old in zip(combos, olds,
                                                                           strict=True)]
     scan = until_close is not None and keep
+    block: list[tuple[int, np.ndarray]] = []  # combinations waiting for their MCSE
+
+    def settle() -> None:  # the same numbers as mcse_mean one by one (mcse_means)
+        err[[j for j, _ in block]] = mcse_means(np.stack([g for _, g in block]))
+        block.clear()
+
     for j, g, ok in _many_g(a_ch, b_ch, seen, combos, new, spec, basis, workers):
         c = combos[j]
         g = g.reshape(chains, -1)
@@ -113,7 +119,11 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
             cache[c] = (g, ok)
         prob[j], exact[j] = float(g.mean()), ok
         if g.size > 1 and not scan:
-            err[j] = float(mcse_mean(g))
+            block.append((j, g))
+            if len(block) == MCSE_ROWS:
+                settle()
+    if block:
+        settle()
     if keep:
         reuse["a"], reuse["b"] = a_ch, b_ch
     elif reuse is not None:
@@ -186,6 +196,8 @@ def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float, basis: 
 
 
 
+#: combinations whose MCSE is computed in one call (``mcse_means``; docs/speed.md)
+MCSE_ROWS = 16
 #: the largest number of g values (combinations x draws) that ``probabilities`` keeps for
 #: reuse (128 MB); past it each call computes everything
 REUSE_VALUES = 1 << 24

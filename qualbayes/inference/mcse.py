@@ -12,7 +12,8 @@ where ESS is the effective sample size of the sequence :math:`g(\theta_s)` over 
 the split-chain autocorrelation estimate of Vehtari, Gelman, Simpson, Carpenter & Buerkner
 (2021), Bayesian Analysis 16:667, eqs. (10)-(11), with Geyer's (1992) initial monotone
 sequence to truncate the autocorrelation sum. Pure numpy, vectorised over any trailing
-axes, so no ArviZ import is needed.
+axes (and :func:`mcse_means` over leading rows, each row's numbers its own), so no ArviZ
+import is needed.
 
 Example
 -------
@@ -35,8 +36,12 @@ import numpy as np
 CLOSE_MCSE = 3.0
 
 
-def _split(x: np.ndarray) -> np.ndarray:
-    """(chain, draw, ...) -> (2 chain, draw // 2, ...): each chain split in halves."""
+def _split(x: np.ndarray, chains_last: bool = False) -> np.ndarray:
+    """Each chain split in halves: (chain, draw, ...) -> (2 chain, draw // 2, ...), or with
+    ``chains_last`` (..., chain, draw) -> (..., 2 chain, draw // 2)."""
+    if chains_last:
+        n = x.shape[-1] // 2
+        return np.concatenate([x[..., :n], x[..., x.shape[-1] - n:]], axis=-2)
     n = x.shape[1] // 2
     return np.concatenate([x[:, :n], x[:, x.shape[1] - n:]], axis=0)
 
@@ -50,22 +55,38 @@ def ess_mean(x: np.ndarray) -> np.ndarray | float:
     x = np.asarray(x, dtype=float)
     if x.ndim < 2:
         raise ValueError("x must have shape (chain, draw, ...)")
-    total = x.shape[0] * x.shape[1]
-    y = _split(x)
-    m, n = y.shape[0], y.shape[1]
+    ess = _ess_split(_split(x), x.shape[0] * x.shape[1], chains_last=False)
+    return float(ess) if np.ndim(ess) == 0 else ess
+
+
+def _ess_split(y: np.ndarray, total: int, chains_last: bool) -> np.ndarray:
+    """The ESS of split chains ``y``: (m, n, *rest), or (*rest, m, n) with ``chains_last``
+    (then every transform and sum over the draws runs along memory, and each row's numbers
+    are those of the row alone: :func:`mcse_means`)."""
+    ca, da = (-2, -1) if chains_last else (0, 1)
+    m, n = y.shape[ca], y.shape[da]
     if n < 4:
         raise ValueError("at least 8 draws per chain are needed for an effective sample size")
-    centred = y - y.mean(axis=1, keepdims=True)
+    centred = y - y.mean(axis=da, keepdims=True)
     size = 1 << (2 * n - 1).bit_length()
-    f = np.fft.rfft(centred, n=size, axis=1)
-    acov = np.fft.irfft(f * np.conj(f), n=size, axis=1)[:, :n] / n  # (m, n, ...)
-    chain_mean = y.mean(axis=1)
-    chain_var = acov[:, 0] * n / (n - 1.0)
-    w = chain_var.mean(axis=0)
-    b_over_n = chain_mean.var(axis=0, ddof=1)
+    f = np.fft.rfft(centred, n=size, axis=da)
+    if chains_last and f.ndim > 2:  # row by row: numpy's complex product rounds an
+        power = np.empty_like(f)    # element by where it falls in the array (vector body
+        for r in np.ndindex(f.shape[:-2]):  # or tail), so a row alone gives its numbers
+            power[r] = f[r] * np.conj(f[r])
+    else:
+        power = f * np.conj(f)
+    acov = np.fft.irfft(power, n=size, axis=da)
+    acov = (acov[..., :n] if chains_last else acov[:, :n]) / n  # (m, n, ...) or (..., m, n)
+    chain_mean = y.mean(axis=da)
+    chain_var = (acov[..., 0] if chains_last else acov[:, 0]) * n / (n - 1.0)
+    cm = -1 if chains_last else 0  # the chain axis once the draws are summed
+    w = chain_var.mean(axis=cm)
+    b_over_n = chain_mean.var(axis=cm, ddof=1)
     var_plus = w * (n - 1.0) / n + b_over_n
     with np.errstate(invalid="ignore", divide="ignore"):
-        rho = 1.0 - (w - acov.mean(axis=0)) / var_plus  # (n, ...)
+        rho = 1.0 - (np.expand_dims(w, cm) - acov.mean(axis=ca)) / np.expand_dims(var_plus, cm)
+    rho = np.moveaxis(rho, cm, 0)  # (n, ...): the lags first
     rho[0] = 1.0
     pairs = n // 2
     p = rho[: 2 * pairs : 2] + rho[1 : 2 * pairs : 2]  # (pairs, ...)
@@ -78,8 +99,7 @@ def ess_mean(x: np.ndarray) -> np.ndarray | float:
     with np.errstate(invalid="ignore", divide="ignore"):
         ess = m * n / tau
     constant = ~(var_plus > 0)
-    ess = np.where(constant, float(total), ess)
-    return float(ess) if np.ndim(ess) == 0 else ess
+    return np.where(constant, float(total), ess)
 
 
 def mcse_mean(x: np.ndarray) -> np.ndarray | float:
@@ -95,6 +115,25 @@ def mcse_mean(x: np.ndarray) -> np.ndarray | float:
     sd = np.where(np.ptp(flat, axis=0) == 0, 0.0, flat.std(axis=0, ddof=1))
     out = sd / np.sqrt(ess_mean(x))
     return float(out) if np.ndim(out) == 0 else out
+
+
+def mcse_means(x: np.ndarray) -> np.ndarray:
+    """:func:`mcse_mean` of each row of ``x`` (row, chain, draw), computed together: the
+    same numbers as ``[mcse_mean(row) for row in x]`` bit for bit (tested), in about half
+    the time for many rows (one FFT call and one set of array operations for all).
+
+    >>> import numpy as np
+    >>> g = np.random.default_rng(3).uniform(size=(5, 4, 100))
+    >>> bool(np.array_equal(mcse_means(g), [mcse_mean(row) for row in g]))
+    True
+    """
+    x = np.ascontiguousarray(x, dtype=float)
+    if x.ndim != 3:
+        raise ValueError("x must have shape (row, chain, draw)")
+    flat = x.reshape(x.shape[0], -1)
+    sd = np.where(np.ptp(flat, axis=1) == 0, 0.0, flat.std(axis=1, ddof=1))
+    return sd / np.sqrt(_ess_split(_split(x, chains_last=True), flat.shape[1],
+                                   chains_last=True))
 
 
 def is_close_call(p, mcse, confidence: float, k: float = CLOSE_MCSE):

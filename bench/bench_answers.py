@@ -1,7 +1,8 @@
 """Benchmark: the per-lot answering pass after a history fit (issue 18, item 1).
 
 Run: ``python bench/bench_answers.py [case ...] [--profile] [--workers=K]`` with cases ``lots:20``,
-``lots:1000`` (lots of one part) or ``parts:10`` (10 parts x 20 lots, answered part by
+``lots:1000`` (lots of one part), ``sizes:1000`` (the same, nearly every lot its own
+size) or ``parts:10`` (10 parts x 20 lots, answered part by
 part); no case: ``lots:20 lots:1000 parts:10``.
 
 The lots are bench/bench_speed.py's simulated lots (the same CSV rows). The draws stand in
@@ -38,9 +39,9 @@ CHAINS, DRAWS = 4, 1000
 
 def case_frames(case: str, tmp: Path) -> list[tuple[pd.DataFrame, np.ndarray, np.ndarray]]:
     kind, count = case.split(":")
-    lots, parts = (int(count), 1) if kind == "lots" else (20, int(count))
+    lots, parts = (int(count), 1) if kind in ("lots", "sizes") else (20, int(count))
     path = tmp / f"{kind}_{count}.csv"
-    write_case(path, lots, parts)
+    write_case(path, lots, parts, varied=kind == "sizes")
     raw = pd.read_csv(path)
     rng = np.random.default_rng(11)
     out = []

@@ -200,3 +200,18 @@ def test_blocks_on_threads_give_the_numbers_of_one_thread(monkeypatch):
     assert [j for j, _, _ in one] == [j for j, _, _ in three]
     assert all(np.array_equal(g1, g3) and e1 == e3
                for (_, g1, e1), (_, g3, e3) in zip(one, three, strict=True))
+
+
+def test_every_mcse_is_that_of_its_lot_alone_on_any_path():
+    # the MCSEs are computed 16 lots at a time (mcse_means), whether every g is kept or
+    # not: each is the number mcse_mean gives the lot's own g, bit for bit
+    from qualbayes.inference.mcse import mcse_mean
+
+    rng = np.random.default_rng(19)
+    combos = _combos(rng, 53, True)  # 3 full blocks and a part
+    a, b = _draws(20, 4000)
+    want = [mcse_mean(ld.draws_g(a, b, x, n, rem, 0.01, ld.LOT, size)[0].reshape(4, -1))
+            for x, n, rem, size in combos]
+    kept = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT, reuse={}, workers=3)[1]
+    plain = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT, workers=1)[1]
+    assert np.array_equal(kept, want) and np.array_equal(plain, want)

@@ -197,7 +197,6 @@ def _rate_answers(key: tuple, members: list[int], combos: list[tuple], decisions
     return out
 
 
-
 def beta_answers(frame: pd.DataFrame, a: float, b: float, spec: float,
                  confidence: float) -> tuple[list, list]:
     """(P, decision) of every lot under the prior Beta(a, b), on each lot's own basis (the

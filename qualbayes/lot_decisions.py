@@ -194,8 +194,6 @@ def _many_g(a_ch, b_ch, seen: int, combos, new: list[bool], spec: float, basis: 
             yield j, np.minimum(cdf[row], 1.0), True
 
 
-
-
 #: combinations whose MCSE is computed in one call (``mcse_means``; docs/speed.md)
 MCSE_ROWS = 16
 #: the largest number of g values (combinations x draws) that ``probabilities`` keeps for

@@ -73,7 +73,7 @@ def _combos(frame: pd.DataFrame) -> tuple[list[tuple], np.ndarray]:
 def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
                 confidence: float, full: bool = True,
                 known: dict | None = None, workers: int | None = 1,
-                reuse: dict | None = None, until_close: bool = False) -> dict[str, object]:
+                reuse: dict | None = None, settled: dict | None = None) -> dict[str, object]:
     """Every result column for the lots of ``frame`` (one group), as arrays; ``full=False``
     only P, its MCSE and the decision (enough to see whether more draws are needed).
     ``known``: the ``full=False`` answers of the same lots from the same draws, reused
@@ -85,40 +85,42 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
     2.0-3.1 s on one (docs/speed.md). P's beta-binomial sums use the same threads, a block
     of lots each. ``reuse``: a dict the caller keeps between the calls
     on one group's continued chains (:func:`qualbayes.lot_decisions.probabilities`).
-    ``until_close`` (with ``full=False`` and ``reuse``; a close-call round that is not the
-    last): stop at the first lot too close to call and return only ``{"too_close": ...,
-    "_partial": True}`` (that lot True, no other answer); when no lot is close, the complete
-    answers, the same as without it."""
-    if until_close and full:
-        raise ValueError("until_close answers only whether a lot is too close (full=False)")
+
+    ``settled`` (a dict the caller keeps between the calls on one group's continued chains,
+    :func:`settled_probabilities`): each lot's P is final at the first call where it is not
+    too close to call, and is then taken from there; only the lots still too close are
+    summed again over all the draws. The answers then carry ``prob_within_spec_draws``, the
+    number of draws (all chains) each P was summed over: the first ``draws / chains`` of
+    every chain."""
     combos, index = _combos(frame)
     k = len(combos)
     cols: dict[str, list] = {c: [None] * k for c in RESULT_COLUMNS}
+    used: list[int | None] = [None] * k  # the draws each P was summed over
     approx: list[bool] = [False] * k
     if known is not None:
         first = np.unique(index, return_index=True)[1]  # one lot of each combination
         for c in ("prob_within_spec", "prob_within_spec_mcse", "decision", "too_close"):
             cols[c] = list(np.asarray(known[c], dtype=object)[first])
         approx = [bool(v) for v in np.asarray(known["_approximate"])[first]]
+        if "prob_within_spec_draws" in known:
+            used = list(np.asarray(known["prob_within_spec_draws"], dtype=object)[first])
     for basis in (LOT, PROCESS):
         sel = [j for j, c in enumerate(combos) if c[4] == basis]
         if not sel or known is not None:
             continue
         sub = [(combos[j][0], combos[j][1], combos[j][2], combos[j][3]) for j in sel]
-        prob, err, exact = probabilities(a0, b0, chains, sub, spec, basis,
-                                         None if reuse is None else reuse.setdefault(basis, {}),
-                                         until_close=confidence if until_close else None,
-                                         workers=workers)
         x_sel = np.array([combos[j][0] for j in sel])
+        prob, err, exact, drawn = settled_probabilities(
+            a0, b0, chains, sub, x_sel, spec, basis, confidence,
+            None if reuse is None else reuse.setdefault(basis, {}),
+            None if settled is None else settled.setdefault(basis, {}), workers=workers)
         dec, close = decide(prob, err, x_sel, confidence)
-        if np.isnan(err).any():  # stopped at a close call: nothing else is settled
-            found = {sel[i] for i in np.flatnonzero(close)}
-            return {"too_close": [int(j) in found for j in index], "_partial": True}
         for i, j in enumerate(sel):
             cols["prob_within_spec"][j] = float(prob[i])
             cols["prob_within_spec_mcse"][j] = float(err[i])
             cols["decision"][j] = dec[i]
             cols["too_close"][j] = bool(close[i])
+            used[j] = int(drawn[i])
             approx[j] = approx[j] or not exact[i]
     if full and np.size(a0) > SUMMARY_DRAWS:
         keep = np.linspace(0, np.size(a0) - 1, SUMMARY_DRAWS).round().astype(int)
@@ -153,7 +155,43 @@ def answer_lots(frame: pd.DataFrame, a0, b0, chains: int, spec: float,
         else:
             out[c] = pd.to_numeric(pd.Series(list(arr), dtype=object)).to_numpy()
     out["_approximate"] = np.asarray(approx)[index]
+    if settled is not None or (known is not None and "prob_within_spec_draws" in known):
+        out["prob_within_spec_draws"] = pd.array(list(np.asarray(used, dtype=object)[index]),
+                                                 dtype="Int64")
     return out
+
+
+def settled_probabilities(a0, b0, chains: int, combos: list[tuple], x, spec: float,
+                          basis: str, confidence: float, reuse: dict | None,
+                          settled: dict | None, workers: int | None = None):
+    """(P, MCSE, exact, draws summed over) of every combination (x, n, remaining, lot size)
+    of one basis. ``settled`` (kept by the caller between the calls on one group's continued
+    chains): combination -> its (P, MCSE, exact, draws) from the first call where it was
+    not too close to call (:func:`qualbayes.lot_decisions.decide`); those are returned as
+    they are, and the others are summed over all of the present draws
+    (:func:`qualbayes.lot_decisions.probabilities`, with ``reuse``) and added to it when
+    they are no longer too close. The g values kept for a settled combination are let go.
+    Without ``settled`` every combination is summed over every draw."""
+    k, drawn = len(combos), np.size(a0)
+    prob, err = np.empty(k), np.empty(k)
+    exact, used = np.ones(k, bool), np.full(k, drawn, dtype=np.int64)
+    old = {} if settled is None else settled
+    todo = [i for i, c in enumerate(combos) if c not in old]
+    if todo:
+        p, e, ok = probabilities(a0, b0, chains, [combos[i] for i in todo], spec, basis,
+                                 reuse, workers=workers)
+        prob[todo], err[todo], exact[todo] = p, e, ok
+    for i, c in enumerate(combos):
+        if c in old:
+            prob[i], err[i], exact[i], used[i] = old[c]
+    if settled is not None:
+        _, close = decide(prob[todo], err[todo], np.asarray(x, float)[todo], confidence)
+        kept = (reuse or {}).get("g", {})
+        for i, near in zip(todo, close, strict=True):
+            if not near:
+                settled[combos[i]] = (float(prob[i]), float(err[i]), bool(exact[i]), drawn)
+                kept.pop(combos[i], None)
+    return prob, err, exact, used
 
 
 def _rate_answers(key: tuple, members: list[int], combos: list[tuple], decisions: list,

@@ -29,7 +29,7 @@ import math
 import numpy as np
 from scipy import special
 
-from qualbayes.inference.mcse import CLOSE_MCSE, mcse_mean, mcse_means
+from qualbayes.inference.mcse import CLOSE_MCSE, mcse_means
 from qualbayes.lot_draw_cdf import BLOCK_VALUES, betabinom_cdf, lot_cdfs
 from qualbayes.lot_draw_sums import reweighted_prob
 from qualbayes.questions import ACCEPT, REJECT, UNDECIDED
@@ -70,21 +70,11 @@ def draws_g(a0, b0, x: float, n: float, remaining: int | None, spec: float, basi
 
 
 def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
-                  reuse: dict | None = None, *, until_close: float | None = None,
-                  workers: int | None = None):
+                  reuse: dict | None = None, *, workers: int | None = None):
     """P, its MCSE and whether it is exact, for every combination (x, n, remaining or None,
     lot size or None). ``a0``, ``b0``: prior parameter draws, flat (chains * draws,).
-
-    ``until_close``: the confidence C of a close-call round that is not the last. With the
-    g values kept for reuse, every P is computed but the MCSEs one combination at a time,
-    the nearest to a threshold first (in Monte Carlo standard deviations of g, as if the
-    draws were independent; the order saves time only), stopping at the first combination
-    that :func:`decide` finds too close to call: one is enough to continue the chains, and
-    the next round computes every MCSE from all the draws again. The MCSEs not computed are
-    NaN (their lots are then neither decided nor close: the caller must not report them).
-    When no combination is close every MCSE is computed: the same numbers as without it
-    (tested). Without kept g values it has no effect. ``workers``: threads for the sums
-    (None: the CPUs this process may use; the numbers do not depend on it).
+    ``workers``: threads for the sums (None: the CPUs this process may use; the numbers do
+    not depend on it).
 
     ``reuse``: a dict kept by the caller between calls on the draws of chains that are only
     continued (a close call's more draws): each combination's g_d of the draws seen so far
@@ -103,7 +93,6 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
     new = [old is not None and (basis == PROCESS or not c[2] or a_ch.size * (
         max(_k_star(c, spec), 0) + 1) <= MAX_PMF_TERMS) for c, old in zip(combos, olds,
                                                                           strict=True)]
-    scan = until_close is not None and keep
     block: list[tuple[int, np.ndarray]] = []  # combinations waiting for their MCSE
 
     def settle() -> None:  # the same numbers as mcse_mean one by one (mcse_means)
@@ -118,7 +107,7 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
         if keep:
             cache[c] = (g, ok)
         prob[j], exact[j] = float(g.mean()), ok
-        if g.size > 1 and not scan:
+        if g.size > 1:
             block.append((j, g))
             if len(block) == MCSE_ROWS:
                 settle()
@@ -128,26 +117,7 @@ def probabilities(a0, b0, chains: int, combos, spec: float, basis: str,
         reuse["a"], reuse["b"] = a_ch, b_ch
     elif reuse is not None:
         reuse.clear()
-    if scan:
-        _errors_until_close(prob, err, [cache[c][0] for c in combos],
-                            np.array([c[0] for c in combos], float), until_close)
     return prob, err, exact
-
-
-def _errors_until_close(prob, err, gs: list, x, confidence: float) -> None:
-    """``err`` filled in place, nearest combination first, up to the first that
-    :func:`decide` finds too close to call; the rest set to NaN."""
-    sd = np.array([g.std() for g in gs])
-    size = np.array([g.size for g in gs], float)
-    gap = np.abs(prob - confidence)
-    gap = np.where(x > 0, np.minimum(gap, np.abs(1.0 - prob - confidence)), gap)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        z = np.where(sd > 0, gap / (sd / np.sqrt(size)), np.inf)
-    err[:] = np.nan
-    for j in np.argsort(z, kind="stable"):
-        err[j] = float(mcse_mean(gs[j])) if gs[j].size > 1 else 0.0
-        if decide(prob[j:j + 1], err[j:j + 1], x[j:j + 1], confidence)[1][0]:
-            return
 
 
 def _k_star(combo, spec: float) -> int:

@@ -19,7 +19,6 @@ from qualbayes.lot_answers import (
     next_lot_summary,
     own_data_columns,
 )
-from qualbayes.lot_decisions import REUSE_VALUES
 from qualbayes.questions import NOT_CONVERGED
 
 #: NUTS target acceptance of the history fit: small histories have a curved tail (large mu
@@ -60,17 +59,13 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     per_chain = fit.settings.num_samples
     held = {label: (fit, j) for j, label in enumerate(names)}  # the fit of each group's draws
     alone = is_part_fit(fit) and len(names) >= ALONE_FROM
-    # g of the draws so far, kept between close-call rounds when all groups' values fit in
-    # REUSE_VALUES at the last round's number of draws
-    draws_at_cap = fit.draws["mu"].shape[0] * per_chain * (1 + MAX_EXTRA_RUNS)
-    reuse = ({label: {} for label in names} if len(frame) * draws_at_cap <= REUSE_VALUES
-             else None)
-    # a round that may still continue the chains stops at a group's first close call (its
-    # other MCSEs are not needed: the next round computes them from all the draws); the
-    # rounds' decisions and the final numbers are the same as computing every MCSE each round
-    scan = reuse is not None
+    # each lot's P is final at the first round where it is not too close to call (settled);
+    # the g of the draws so far of the lots still close are kept between the rounds (as
+    # many as REUSE_VALUES allows: lot_decisions.probabilities)
+    settled: dict[str, dict] = {label: {} for label in names}
+    reuse: dict[str, dict] = {label: {} for label in names}
     parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False,
-                           reuse=reuse, until_close=scan and MAX_EXTRA_RUNS > 0)
+                           reuse=reuse, settled=settled)
     runs, continued = 0, set()
     while runs < MAX_EXTRA_RUNS:
         close = [label for label, (ans, ok) in parts.items()
@@ -82,15 +77,14 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         continued.update(changed)
         parts |= _answer_groups(frame, {label: groups[label] for label in changed}, held, spec,
                                 confidence, outliers, full=False, reuse=reuse,
-                                until_close=scan and runs < MAX_EXTRA_RUNS)
-    if any(ans.get("_partial") for ans, _ in parts.values()):  # pragma: no cover - invariant
-        raise RuntimeError("internal: a close-call round left answers unsettled")
-    reuse = None  # the full answers below reuse P itself
+                                settled=settled)
+    reuse = settled = None  # the full answers below reuse P itself
     checks = cross_check.lot_groups(held, data, names, spec, hyper, quadrature)
     parts = {k: v if cross_check.agrees(checks[k]) else ({}, False) for k, v in
              _answer_groups(frame, groups, held, spec, confidence, outliers,
                             known=parts).items()}
-    out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "_approximate"]}
+    out = {c: [None] * len(frame) for c in [*RESULT_COLUMNS, "prob_within_spec_draws",
+                                            "_approximate"]}
     out["decision_basis"] = list(frame["decision_basis"])  # kept for lots without a verdict
     diagnostics, next_lot, draws = {}, {}, {}
     for label, idx in groups.items():
@@ -116,7 +110,7 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
         frame.loc[frame.index[idx], "group"] = label
     for c, values in out.items():
         if c in ("extra_clean_units_to_accept", "remaining_units", "remaining_defectives_median",
-                 "remaining_defectives_upper"):
+                 "remaining_defectives_upper", "prob_within_spec_draws"):
             frame[c] = pd.array(values, dtype="Int64")
         elif c in ("decision", "decision_basis", "too_close", "outlier"):
             frame[c] = pd.Series(values, dtype=object).to_numpy()
@@ -175,13 +169,14 @@ def _without_draws(data, names, spec, hyper, stop=None) -> tuple[dict, list] | N
 
 
 def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
-                   known=None, reuse=None, until_close=False) -> dict:
+                   known=None, reuse=None, settled=None) -> dict:
     """label -> (answers of the group's lots, converged) for every group of ``groups``;
     ``held[label]``: the fit holding the group's latest draws and the group's part in it;
     ``known``: the same call's ``full=False`` answers from the same draws (P is not summed
     again); ``reuse``: label -> the dict that keeps the group's g between close-call rounds
-    (:func:`qualbayes.lot_decisions.probabilities`); ``until_close``: stop each group at
-    its first close call (:func:`qualbayes.lot_answers.answer_lots`)."""
+    (:func:`qualbayes.lot_decisions.probabilities`); ``settled``: label -> the dict that
+    keeps the P of the group's lots already settled (:func:`qualbayes.lot_answers.
+    settled_probabilities`)."""
     from qualbayes.models.lot_history_grid import OUTLIER_LEVEL  # noqa: PLC0415
 
     out = {}
@@ -196,7 +191,7 @@ def _answer_groups(frame, groups, held, spec, confidence, outliers, full=True,
                           spec, confidence, full,
                           known=None if known is None else known[label][0], workers=None,
                           reuse=None if reuse is None else reuse[label],
-                          until_close=until_close)
+                          settled=None if settled is None else settled[label])
         ans["outlier_p"] = outliers[label]
         ans["outlier"] = list(outliers[label] < OUTLIER_LEVEL)
         out[label] = (ans, True)
@@ -241,12 +236,15 @@ def _sampler_settings(fit, held: dict, names: list[str], continued: int, alone: 
 def _continued_note(runs: int, per_chain: int, continued: int, parts: int, alone: bool,
                     cap: int) -> str:
     """The note on the close-call rounds: how many rounds, and which chains continued."""
+    settled = ("each lot's P is summed over the first draws of every chain up to the round "
+               "where it was no longer too close to call, or over all of them (its draws: "
+               "'P draws' in the workbook)")
     if not alone:
         return (f"close calls: the adapted chains were continued {runs} time(s) by "
                 f"{per_chain:,} draws per chain, without a new warmup (cap {cap}), to settle "
-                "P within its Monte Carlo error; the gate and every P use all the draws")
+                f"P within its Monte Carlo error; the gate uses all the draws, and {settled}")
     return (f"close calls: the adapted chains of the parts with a close call ({continued:,} "
             f"of {parts:,} parts) were continued, in up to {runs} round(s) of {per_chain:,} "
             f"draws per chain, without a new warmup (cap {cap}), to settle P within its Monte "
-            "Carlo error; each part's gate and P use all its draws, and the other parts keep "
-            "their first draws")
+            "Carlo error; each part's gate uses all its draws, the other parts keep their "
+            f"first draws, and {settled}")

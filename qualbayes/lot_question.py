@@ -188,8 +188,10 @@ def _columns(frame: pd.DataFrame) -> list[str]:
     return base + RESULT_COLUMNS + [c for c in EXTRA_COLUMNS if c in frame]
 
 
-#: columns one engine adds: the quadrature error of P (in place of its MCSE)
-EXTRA_COLUMNS = ("prob_within_spec_error",)
+#: columns one engine adds: the quadrature error of P (in place of its MCSE); the draws
+#: (all chains) each P was summed over (NUTS: a lot settled before the last close-call
+#: round keeps the P of that round)
+EXTRA_COLUMNS = ("prob_within_spec_error", "prob_within_spec_draws")
 
 
 def lot_columns(frame: pd.DataFrame) -> list[str]:

@@ -119,48 +119,44 @@ def test_passes_of_any_size_give_the_same_numbers(monkeypatch):
     assert np.array_equal(got[0], got[1]) and np.array_equal(got[0], got[2])
 
 
-def _fresh_and_scan(combos, a, b, confidence, basis=ld.LOT):
-    fresh = ld.probabilities(a, b, 4, combos, 0.01, basis)
-    scan = ld.probabilities(a, b, 4, combos, 0.01, basis, reuse={}, until_close=confidence)
-    return fresh, scan
+def test_a_lot_settled_in_a_round_keeps_its_p_and_the_others_use_every_draw():
+    # C set to one lot's own P from the first half of the draws: that lot (and perhaps a
+    # few others) is too close to call in the first round. In the second round, on all the
+    # draws, the lots settled in the first keep that round's P, MCSE and exact flag and its
+    # number of draws; the close ones are summed over every draw, the same numbers as a
+    # fresh computation; the g values kept are only those of lots still close
+    from qualbayes.lot_answers import settled_probabilities
 
-
-def test_a_round_that_may_continue_stops_at_its_first_close_call():
-    # C set to one lot's own P: that lot is too close to call, so the scan stops at a close
-    # lot; every P and every MCSE it computed are those of the full computation
     rng = np.random.default_rng(11)
     combos = _combos(rng, 150, True)
+    x = np.array([c[0] for c in combos], float)
     a, b = _draws(12, 4000)
-    prob = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)[0]
-    inside = np.flatnonzero((prob > 0.2) & (prob < 0.99))
-    confidence = float(prob[inside[len(inside) // 2]])
-    (p0, e0, x0), (p1, e1, x1) = _fresh_and_scan(combos, a, b, confidence)
-    assert np.array_equal(p0, p1) and np.array_equal(x0, x1)
-    done = ~np.isnan(e1)
-    assert 0 < done.sum() < len(combos)  # stopped early
-    assert np.array_equal(e0[done], e1[done])
-    x = np.array([c[0] for c in combos])
-    close = ld.decide(p1[done], e1[done], x[done], confidence)[1]
-    assert close[-1] and close.sum() == 1  # the last lot computed is the first close one
+    a_ch, b_ch = a.reshape(4, -1), b.reshape(4, -1)
+    half = a_ch[:, :500].ravel(), b_ch[:, :500].ravel()
+    fresh1 = ld.probabilities(*half, 4, combos, 0.01, ld.LOT)
+    inside = np.flatnonzero((fresh1[0] > 0.2) & (fresh1[0] < 0.99))
+    confidence = float(fresh1[0][inside[len(inside) // 2]])
+    close1 = ld.decide(fresh1[0], fresh1[1], x, confidence)[1]
+    assert 0 < close1.sum() < len(combos)
+    fresh2 = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)
+    settled, reuse = {}, {}
+    got1 = settled_probabilities(*half, 4, combos, x, 0.01, ld.LOT, confidence, reuse, settled)
+    for g, w in zip(got1[:3], fresh1, strict=True):
+        assert np.array_equal(g, w)
+    assert (got1[3] == 2000).all()
+    assert set(settled) == {c for c, near in zip(combos, close1, strict=True) if not near}
+    assert set(reuse["g"]) == {c for c, near in zip(combos, close1, strict=True) if near}
+    got2 = settled_probabilities(a, b, 4, combos, x, 0.01, ld.LOT, confidence, reuse, settled)
+    for g, w1, w2 in zip(got2[:3], fresh1, fresh2, strict=True):
+        assert np.array_equal(g[~close1], w1[~close1])
+        assert np.array_equal(g[close1], w2[close1])
+    assert (got2[3][~close1] == 2000).all() and (got2[3][close1] == 4000).all()
+    close2 = ld.decide(got2[0], got2[1], x, confidence)[1]
+    assert not close2[~close1].any()  # a settled lot stays settled
+    assert set(reuse["g"]) == {c for c, near in zip(combos, close2, strict=True) if near}
 
 
-def test_a_round_without_a_close_call_computes_every_mcse():
-    # C where no lot is within 3 MCSE of either threshold: the scan computes every MCSE and
-    # gives the full computation's numbers, bit for bit
-    rng = np.random.default_rng(13)
-    combos = _combos(rng, 60, True)
-    a, b = _draws(14, 4000)
-    prob, err, _ = ld.probabilities(a, b, 4, combos, 0.01, ld.LOT)
-    x = np.array([c[0] for c in combos])
-    clear = [c for c in np.linspace(0.5, 0.999, 500)
-             if not ld.decide(prob, err, x, c)[1].any()]
-    assert clear  # some C leaves every lot settled
-    fresh, scan = _fresh_and_scan(combos, a, b, float(clear[0]))
-    for got, want in zip(scan, fresh, strict=True):
-        assert np.array_equal(got, want)
-
-
-def test_answers_of_a_stopped_round_say_only_that_a_lot_is_close():
+def test_answers_carry_the_draws_behind_each_p_only_when_rounds_settle_lots():
     import pandas as pd
 
     from qualbayes.lot_answers import answer_lots
@@ -172,19 +168,13 @@ def test_answers_of_a_stopped_round_say_only_that_a_lot_is_close():
                           "lot_size": [c[3] for c in combos],
                           "decision_basis": [ld.LOT] * len(combos)})
     a, b = _draws(16, 4000)
-    whole = answer_lots(frame, a, b, 4, 0.01, 0.95, full=False, reuse={})
-    p = np.asarray(whole["prob_within_spec"])
-    confidence = float(p[np.flatnonzero((p > 0.2) & (p < 0.99))[0]])
-    part = answer_lots(frame, a, b, 4, 0.01, confidence, full=False, reuse={},
-                       until_close=True)
-    assert part["_partial"] is True and set(part) == {"too_close", "_partial"}
-    assert sum(part["too_close"]) == 1
-    try:
-        answer_lots(frame, a, b, 4, 0.01, confidence, full=True, until_close=True)
-    except ValueError:
-        pass
-    else:
-        raise AssertionError("until_close with full answers must be refused")
+    plain = answer_lots(frame, a, b, 4, 0.01, 0.95, full=False)
+    assert "prob_within_spec_draws" not in plain
+    rounds = answer_lots(frame, a, b, 4, 0.01, 0.95, full=False, reuse={}, settled={})
+    assert list(rounds["prob_within_spec_draws"]) == [4000] * len(frame)
+    assert np.array_equal(rounds["prob_within_spec"], plain["prob_within_spec"])
+    full = answer_lots(frame, a, b, 4, 0.01, 0.95, known=rounds)
+    assert list(full["prob_within_spec_draws"]) == [4000] * len(frame)
 
 
 def test_blocks_on_threads_give_the_numbers_of_one_thread(monkeypatch):

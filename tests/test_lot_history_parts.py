@@ -213,6 +213,22 @@ def test_a_close_call_continues_every_part_of_the_fit():
     assert any(n.startswith("close calls: the adapted chains") for n in res.notes)
     q_lots = res.lots[res.lots.part == "Q"]
     assert set(q_lots["decision"]) == {"accept"} and not q_lots["too_close"].any()
+    # every P and MCSE follows from the recorded draws: the first draws / 4 of each chain
+    # (its own column); the clean part's lots were settled in the first round, lot B (C at
+    # its exact P) only later
+    from scipy import special
+
+    from qualbayes.inference.mcse import mcse_mean
+
+    for lot in res.lots.itertuples():
+        d = int(lot.prob_within_spec_draws) // 4
+        mu, kappa = res.draws[lot.part]["mu"][:, :d], res.draws[lot.part]["kappa"][:, :d]
+        g = special.betainc(mu * kappa + lot.defectives,
+                            (1 - mu) * kappa + lot.inspected - lot.defectives, 0.03)
+        assert lot.prob_within_spec == pytest.approx(g.mean(), rel=1e-12, abs=1e-15)
+        assert lot.prob_within_spec_mcse == pytest.approx(mcse_mean(g), rel=1e-9, abs=1e-15)
+    assert set(q_lots["prob_within_spec_draws"]) == {4000}
+    assert int(res.lots.set_index("lot").loc["B", "prob_within_spec_draws"]) > 4000
 
 
 def _close_and_clean_parts(clean_parts: int):

@@ -64,7 +64,7 @@ def _lot_rows(frame: pd.DataFrame) -> PlainRows:
     col = {c: _plain_column(frame[c]) for c in frame.columns}
     col["too_close"] = _flag(col["too_close"])
     col["outlier"] = _flag(col["outlier"])
-    error = col.get("prob_within_spec_error")
+    extra = tuple(c for c in ("prob_within_spec_error", "prob_within_spec_draws") if c in col)
     keys = ("lot", "part", "supplier", "date", "row", "lot_size", "inspected", "defectives",
             "posterior_mean")
     tail = ("upper_bound", "prob_within_spec", "prob_within_spec_mcse")
@@ -76,8 +76,7 @@ def _lot_rows(frame: pd.DataFrame) -> PlainRows:
     col["remaining_defectives"] = [
         {"median": m, "upper_bound": u} for m, u in zip(
             col["remaining_defectives_median"], col["remaining_defectives_upper"], strict=True)]
-    order = (*keys, "interval", *tail, *(("prob_within_spec_error",) if error is not None
-                                          else ()), *rest, "remaining_defectives")
+    order = (*keys, "interval", *tail, *extra, *rest, "remaining_defectives")
     return PlainRows(dict(zip(order, values, strict=True))
                      for values in zip(*(col[k] for k in order), strict=True))
 
@@ -217,7 +216,8 @@ def lots_sheets(record: dict, data: LotTable | None = None) -> dict:
         "interval high": r["interval"][1], "upper bound": r["upper_bound"],
         "decided about": r["decision_basis"], "P(within spec)": r["prob_within_spec"],
         "P MCSE": r["prob_within_spec_mcse"],
-        "P quadrature error": r.get("prob_within_spec_error"), "decision": r["decision"],
+        "P quadrature error": r.get("prob_within_spec_error"),
+        "P draws": r.get("prob_within_spec_draws"), "decision": r["decision"],
         "too close to call": r["too_close"], "group": r["group"],
         "own-data decision (uniform prior)": r["own_data_decision"],
         "own-data P": r["own_data_prob"], "outlier / prior conflict": r["outlier"],

@@ -32,7 +32,7 @@ SCHEMAS = {
                   "defectives": "count", "lot_size?": "count|none",
                   "posterior_mean": "prob|none", "interval": ["prob|none"],
                   "upper_bound": "prob|none", "prob_within_spec": "prob|none",
-                  "decision": "str"}],
+                  "prob_within_spec_draws?": "count|none", "decision": "str"}],
     },
     "life": {
         **COMMON,

@@ -278,8 +278,8 @@ def lot_notes(frame: pd.DataFrame, conflict: str | None) -> list[str]:
     close = frame["too_close"].fillna(False).astype(bool) if "too_close" in frame else None
     if close is not None and close.any():
         notes.append(f"lot(s) {_names(list(lots[close]))}: {TOO_CLOSE} (P is within 3 Monte "
-                     "Carlo standard errors of the confidence level after drawing more); "
-                     "they are undecided")
+                     "Carlo standard errors of the confidence level, or within its stated "
+                     "quadrature error); they are undecided")
     flagged = frame["outlier"].fillna(False).astype(bool) if "outlier" in frame else None
     if flagged is not None and flagged.any():
         names = _names(list(lots[flagged]))

@@ -198,6 +198,29 @@ def decide(prob, mcse, x, confidence: float):
     return out, too_close
 
 
+def could_settle(prob, mcse, x, confidence: float, draws, cap_draws: int) -> np.ndarray:
+    """True for each lot too close to call now (:func:`decide`) that the draws up to the cap
+    could still settle: no longer too close with the MCSE it would have at the cap,
+    projected as mcse sqrt(draws / cap_draws) (an MCSE falling as one over the square root
+    of the draws, the chains' autocorrelation unchanged). A lot within that projected error
+    of a threshold would very likely still be too close at the cap, so the chains are not
+    continued for it alone.
+
+    The projection only decides whether to draw more, never a verdict: with the same seed,
+    stopping earlier leaves some lots too close that more draws might have settled, and
+    every verdict given is the one the rounds to the cap would have given, since a lot's P
+    is final at the round where it is settled (:func:`qualbayes.lot_answers.
+    settled_probabilities`). So this rule cannot accept or reject more lots than drawing to
+    the cap whenever any lot is close.
+
+    >>> could_settle([0.9500, 0.9505], [0.0002, 0.0002], [1, 1], 0.95, [4000, 4000], 16000)
+    array([False,  True])
+    """
+    prob, mcse, x = (np.asarray(v, float) for v in (prob, mcse, x))
+    projected = mcse * np.sqrt(np.asarray(draws, float) / float(cap_draws))
+    return decide(prob, mcse, x, confidence)[1] & ~decide(prob, projected, x, confidence)[1]
+
+
 def extra_clean_units(a0, b0, x, n, remaining, lot_size, spec, confidence, basis,
                       ess_cache: dict | None = None, lot_sums: np.ndarray | None = None):
     r"""Smallest number m of further defect-free units after which P >= C, or None.

@@ -19,6 +19,7 @@ from qualbayes.lot_answers import (
     next_lot_summary,
     own_data_columns,
 )
+from qualbayes.lot_decisions import could_settle
 from qualbayes.questions import NOT_CONVERGED
 
 #: NUTS target acceptance of the history fit: small histories have a curved tail (large mu
@@ -67,9 +68,11 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
     parts = _answer_groups(frame, groups, held, spec, confidence, outliers, full=False,
                            reuse=reuse, settled=settled)
     runs, continued = 0, set()
+    cap = fit.draws["mu"].shape[0] * per_chain * (1 + MAX_EXTRA_RUNS)
     while runs < MAX_EXTRA_RUNS:
+        # continue while some lot too close to call could still be settled by the cap
         close = [label for label, (ans, ok) in parts.items()
-                 if ok and bool(np.any(ans.get("too_close", [])))]
+                 if ok and _settleable(ans, x_all[groups[label]], confidence, cap)]
         if not close:
             break
         runs += 1
@@ -136,6 +139,16 @@ def assess_history(frame, spec, confidence, hyper, seed, settings, group_by, dec
                          sampler=_sampler_settings(fit, held, names, len(continued), alone),
                          group_by=tuple(group_by), decision_basis=decision_basis,
                          lot_spread=spread)
+
+
+def _settleable(ans: dict, x, confidence: float, cap: int) -> bool:
+    """Whether some lot of a group's answers is too close to call now and could be settled
+    by the draws up to ``cap`` (:func:`qualbayes.lot_decisions.could_settle`)."""
+    if not np.any(ans.get("too_close", [])):
+        return False
+    return bool(could_settle(ans["prob_within_spec"], ans["prob_within_spec_mcse"], x,
+                             confidence, np.asarray(ans["prob_within_spec_draws"], float),
+                             cap).any())
 
 
 def _spread_words(hyper) -> str:

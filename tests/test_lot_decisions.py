@@ -20,8 +20,8 @@ from scipy import stats
 
 from qualbayes.cli import main
 from qualbayes.data.lot_table import LotTable
-from qualbayes.lot_decisions import LOT, PROCESS, decide
-from qualbayes.lot_question import assess_lots
+from qualbayes.lot_decisions import LOT, PROCESS, could_settle, decide
+from qualbayes.lot_question import MAX_EXTRA_RUNS, assess_lots
 from qualbayes.models import lot_history_grid as grid
 from qualbayes.models.lot_prior import JEFFREYS, UNIFORM
 from qualbayes.models.lot_spread import HistoryPrior, spread_floor
@@ -271,8 +271,10 @@ def test_reported_mcse_agrees_with_spread_over_independent_chains():
 
 def _close_call_decisions(seeds) -> set:
     """C set to the exact (quadrature) P of a lot: within 1 MCSE of C by construction, so
-    every seed must draw more and then say 'too close to call', never accept or undecided by
-    chance alone."""
+    every seed must say 'too close to call', never accept or undecided by chance alone. The
+    rounds stop at the cap or where no lot too close could still be settled by the cap
+    (``could_settle``); a lot that far from settling is not drawn for (typically no extra
+    round here)."""
     rows = [("A", "P", 80, 0, None), ("B", "P", 125, 1, None), ("C", "P", 80, 2, None)]
     exact = [float(grid.prob_within(grid.posterior_grid([0, 1, 2], [80, 125, 80], size=k),
                                     [1], [125], 0.03)[0]) for k in (400, 800)]
@@ -284,8 +286,13 @@ def _close_call_decisions(seeds) -> set:
         assert res.converged
         b = res.lots.set_index("lot").loc["B"]
         decisions.add((b["decision"], bool(b["too_close"])))
-        assert res.sampler.get("continued_draws_per_chain", 0) > 0  # drew more
         assert any("too close to call" in n for n in res.notes)
+        lots, first = res.lots, res.sampler["draws_per_chain"]
+        chains, per_chain = res.draws["P"]["mu"].shape
+        cap = chains * first * (1 + MAX_EXTRA_RUNS)
+        assert per_chain * chains == cap or not could_settle(
+            lots["prob_within_spec"], lots["prob_within_spec_mcse"], lots["defectives"], c,
+            lots["prob_within_spec_draws"].astype(float), cap).any()
     return decisions
 
 
@@ -307,3 +314,21 @@ def test_betabinom_cdf_by_ratios_against_scipy():
     for k, r in ((0, 10), (5, 700), (50, 4900), (300, 100_000)):
         assert betabinom_cdf(k, r, a, b) == pytest.approx(stats.betabinom(r, a, b).cdf(k),
                                                           rel=1e-9)
+
+
+def test_could_settle_only_close_lots_that_the_cap_can_settle():
+    # the projection of the MCSE to the cap, mcse sqrt(draws / cap): a lot 2 MCSE from C
+    # now is 4 projected MCSE from it at four times the draws (settleable), a lot 1 MCSE
+    # from C is 2 (not); a lot 5 MCSE away is not close now; at the cap nothing is
+    # settleable; a lot without a defective is never close to the reject side
+    c, e = 0.95, 1e-4
+    prob = np.array([c + 2 * e, c - 1 * e, c + 5 * e, c - 2 * e, 1 - c + 2 * e, 1 - c + 2 * e])
+    x = np.array([1, 1, 1, 1, 1, 0])
+    draws = np.full(6, 4000.0)
+    got = could_settle(prob, np.full(6, e), x, c, draws, 16000)
+    assert got.tolist() == [True, False, False, True, True, False]
+    assert not could_settle(prob, np.full(6, e), x, c, np.full(6, 16000.0), 16000).any()
+    # a lot close to both thresholds (C near 1/2) needs both sides settled
+    both = could_settle([0.5], [0.02], [1], 0.52, [4000], 16000)
+    assert both.tolist() == [False]
+    assert could_settle([0.5], [0.02], [1], 0.52, [4000], 10**8).tolist() == [True]

@@ -184,11 +184,12 @@ def test_a_part_is_continued_alone_from_its_own_chains():
 
 
 def test_a_close_call_continues_every_part_of_the_fit():
-    """C set to the exact (quadrature) P of one lot of part "P": that lot is within a few
-    MCSE of C, so the fit's chains are continued, every part's from its own state, so that
-    the parts keep equal numbers of draws (one InferenceData); part "Q" (a clean history, P
-    far above C) keeps its decisions. Reference: the 2-D quadrature of
-    models/lot_history_grid.py."""
+    """C set 2.2 MCSE above lot B's P of the first round (part "P"; the first run, at C = the
+    exact quadrature P, gives both): B is too close to call (within 3 MCSE) and the cap
+    could settle it (more than 3 x MCSE / 2 at four times the draws), so the fit's chains
+    are continued, every part's from its own state, so that the parts keep equal numbers of
+    draws (one InferenceData); part "Q" (a clean history, P far above C) keeps its
+    decisions. Reference: the 2-D quadrature of models/lot_history_grid.py."""
     import pandas as pd
 
     from qualbayes.data.lot_table import LotTable
@@ -204,6 +205,10 @@ def test_a_close_call_continues_every_part_of_the_fit():
     frame["lot_size"] = frame["lot_size"].astype("Int64")
     c = float(grid.prob_within(grid.posterior_grid([0, 1, 2], [80, 125, 80], size=800),
                                [1], [125], 0.03)[0])
+    first = assess_lots(LotTable(frame.copy(), "t.csv", None, 1, {}, []), 0.03, c, "history",
+                        seed=2).lots.set_index("lot").loc["B"]
+    assert first["prob_within_spec_draws"] == 4000  # nothing the cap could settle: no round
+    c = float(first["prob_within_spec"] + 2.2 * first["prob_within_spec_mcse"])
     res = assess_lots(LotTable(frame, "t.csv", None, 1, {}, []), 0.03, c, "history",
                       seed=2)
     assert res.converged

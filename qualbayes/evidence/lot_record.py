@@ -27,7 +27,8 @@ BASIS_WORDS = {
     "process": "the process: the defect rate p of the supplier's process for this lot",
 }
 MCSE_WORDS = ("P carries its Monte Carlo standard error (MCSE); a side of C within 3 MCSE is "
-              "too close to call and gives undecided after drawing more")
+              "too close to call and gives undecided (more draws are made while the cap of "
+              "draws could still settle it)")
 
 
 QUADRATURE_WORDS = ("P is computed by quadrature (no sampling, no seed) and carries its stated "

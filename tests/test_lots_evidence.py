@@ -92,3 +92,17 @@ def test_terminal_shows_at_most_its_row_cap_and_counts_the_rest(monkeypatch):
     assert "L2" in text and "L3" not in text and "L4" not in text
     assert "... and 2 more lots not shown here" in text
     assert sum(record["decision_counts"].values()) == 5
+
+
+def test_the_report_says_how_many_draws_are_behind_each_p():
+    from qualbayes.evidence.lot_report import draws_line
+
+    assert draws_line([{"lot": "A"}, {"lot": "B", "prob_within_spec_draws": None}]) is None
+    same = [{"lot": f"L{i}", "prob_within_spec_draws": 4000} for i in range(3)]
+    assert draws_line(same) == "Draws behind each P (all chains): 4,000 for every lot."
+    mixed = same + [{"lot": f"M{i}", "prob_within_spec_draws": 8000 + 4000 * (i % 2)}
+                    for i in range(23)]
+    line = draws_line(mixed)
+    assert line.startswith("Draws behind each P (all chains): 4,000, except M0 (8,000), "
+                           "M1 (12,000), ")
+    assert "M19 (12,000) and 3 more: a close call" in line and "M20" not in line

@@ -18,6 +18,31 @@ def has_dates(record: dict) -> bool:
     return any(lot.get("date") for lot in record["lots"])
 
 
+def draws_line(lots: list[dict], shown: int = 20) -> str | None:
+    """The number of draws behind each lot's P, in one sentence: the common number and the
+    lots summed over more (a close call settled in a later round); None when the record
+    has no such numbers (closed form, quadrature).
+
+    >>> lots = [{"lot": "A", "prob_within_spec_draws": 4000},
+    ...         {"lot": "B", "prob_within_spec_draws": 12000}]
+    >>> print(draws_line(lots))  # doctest: +NORMALIZE_WHITESPACE
+    Draws behind each P (all chains): 4,000, except B (12,000): a close call, settled at a
+    later round or at the cap.
+    """
+    have = [(lot["lot"], lot["prob_within_spec_draws"]) for lot in lots
+            if lot.get("prob_within_spec_draws") is not None]
+    if not have:
+        return None
+    base = min(d for _, d in have)
+    more = [f"{name} ({d:,})" for name, d in have if d > base]
+    if not more:
+        return f"Draws behind each P (all chains): {base:,} for every lot."
+    listed = ", ".join(more[:shown]) + (f" and {len(more) - shown} more" if len(more) > shown
+                                        else "")
+    return (f"Draws behind each P (all chains): {base:,}, except {listed}: a close call, "
+            "settled at a later round or at the cap.")
+
+
 def build(record: dict) -> Report:
     from qualbayes.evidence import lot_plots  # noqa: PLC0415 - matplotlib
 
@@ -51,7 +76,9 @@ def build(record: dict) -> Report:
                 "uniform prior on the lot's own data, shown where it differs.",
         id="decision-summary")
     counts = ", ".join(f"{k}: {v}" for k, v in sorted(record["decision_counts"].items()))
+    drawn = draws_line(record["lots"])
     summary = Section("Decision summary", [Paragraph(f"Decisions: {counts}."),
+                                           *([Paragraph(drawn)] if drawn else []),
                                            *[Paragraph(n) for n in record["notes"]
                                              if "OUTLIER" in n or "does not look like" in n
                                              or "conflict" in n], decisions])

@@ -332,3 +332,26 @@ def test_could_settle_only_close_lots_that_the_cap_can_settle():
     both = could_settle([0.5], [0.02], [1], 0.52, [4000], 16000)
     assert both.tolist() == [False]
     assert could_settle([0.5], [0.02], [1], 0.52, [4000], 10**8).tolist() == [True]
+
+
+def test_stopping_when_the_cap_could_settle_nothing_only_removes_verdicts(monkeypatch):
+    """The same data and seed with the chains continued whenever any lot is close (the rule
+    before 5 December 2026): every lot that the shipped rule decides gets the same decision,
+    P and MCSE there (a settled P is final), and the shipped rule stops earlier. C at lot
+    B's exact (quadrature) P, so B is too close and the cap cannot settle it."""
+    from qualbayes import lot_history_answers
+
+    rows = [("A", "P", 80, 0, None), ("B", "P", 125, 1, None), ("C", "P", 80, 2, None),
+            ("D", "P", 200, 1, None), ("E", "P", 125, 0, None)]
+    c = float(grid.prob_within(grid.posterior_grid([0, 1, 2, 1, 0], [80, 125, 80, 200, 125],
+                                                   size=800), [1], [125], 0.03)[0])
+    shipped = assess_lots(_table(rows), 0.03, c, "history", seed=2).lots.set_index("lot")
+    monkeypatch.setattr(lot_history_answers, "_settleable",
+                        lambda ans, *_: bool(np.any(ans.get("too_close", []))))
+    to_cap = assess_lots(_table(rows), 0.03, c, "history", seed=2).lots.set_index("lot")
+    assert shipped.loc["B", "too_close"] and to_cap.loc["B", "too_close"]
+    assert shipped["prob_within_spec_draws"].max() < to_cap["prob_within_spec_draws"].max()
+    cols = ["decision", "prob_within_spec", "prob_within_spec_mcse", "prob_within_spec_draws"]
+    decided = ~shipped["too_close"].astype(bool)
+    assert decided.sum() >= 3
+    assert shipped.loc[decided, cols].equals(to_cap.loc[decided, cols])
